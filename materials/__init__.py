@@ -1,0 +1,1 @@
+"""Data package: the shipped optical-constant tables and Drude-Lorentz fits (see README.md here)."""

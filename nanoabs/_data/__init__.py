@@ -1,0 +1,1 @@
+"""Shipped reference data other than optical constants (illumination spectra, demo studies)."""

@@ -1,0 +1,556 @@
+"""Write and read result tables as CSV + JSON sidecar (or a single JSON file).
+
+An export is meant for a device-level model (drift-diffusion, circuit) that must
+read it without guesswork:
+
+* ``det.csv`` -- a plain CSV: one header row with the column names, one row per
+  sample, no index column, no comment lines. Floats are written with the
+  shortest representation that round-trips exactly; missing values are ``nan``,
+  infinities ``inf`` / ``-inf``.
+* ``det.json`` -- the sidecar: ``format`` ("nanoabs-export"), ``format_version``
+  (1), ``package_version``, ``created_utc``, ``data_file`` (the CSV file name),
+  ``rows``, ``columns`` (ordered list of ``{"name", "unit", "dtype"}``) and
+  ``metadata`` (the caller's dict: inputs, materials and sources, methods and
+  references, band totals, warnings).
+
+A path ending in ``.json`` instead gives one self-contained file: the same
+document with ``data_file`` null and an extra ``data`` object holding one array
+per column (NaN as null; infinities are refused there because JSON has none).
+
+Files are written atomically (temporary file in the same directory, fsync,
+``os.replace``) and existing files are never overwritten unless ``force=True``.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import os
+import tempfile
+from collections.abc import Mapping
+from datetime import datetime, timezone
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from nanoabs._errors import DataError, NanoabsError
+
+__all__ = ["FORMAT_NAME", "FORMAT_VERSION", "write_export", "read_export", "check_writable"]
+
+FORMAT_NAME = "nanoabs-export"
+FORMAT_VERSION = 1
+_SUFFIXES = (".csv", ".json")
+_TEXT_DTYPES = ("object", "str", "string")
+
+
+# --------------------------------------------------------------------------- paths
+
+
+def _targets(path: Path) -> tuple[Path, ...]:
+    suffix = path.suffix.lower()
+    if suffix == ".csv":
+        return (path, path.with_suffix(".json"))
+    if suffix == ".json":
+        return (path,)
+    raise NanoabsError(
+        f"export path = {str(path)!r} has suffix {path.suffix or '(none)'!r}; "
+        f"allowed suffixes: {', '.join(_SUFFIXES)}"
+    )
+
+
+def check_writable(path, *, force: bool = False) -> tuple[Path, ...]:
+    """Check that an export to ``path`` can be written, before any computation.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Target file; ``.csv`` (CSV + ``.json`` sidecar) or ``.json`` (single file).
+    force : bool, optional
+        Allow overwriting existing files.
+
+    Returns
+    -------
+    tuple of pathlib.Path
+        The files that :func:`write_export` will create: ``(csv, sidecar)`` or
+        ``(json,)``.
+
+    Raises
+    ------
+    NanoabsError
+        Bad suffix, missing or unwritable parent directory, a target that is a
+        directory, or a target that exists while ``force`` is false.
+    """
+    path = Path(path)
+    targets = _targets(path)
+    parent = path.parent
+    if not parent.is_dir():
+        raise NanoabsError(
+            f"output directory {str(parent)!r} does not exist: create it first"
+        )
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise NanoabsError(f"output directory {str(parent)!r} is not writable")
+    for target in targets:
+        if target.is_dir():
+            raise NanoabsError(f"output file {str(target)!r} is a directory: choose a file name")
+        if target.exists() and not force:
+            raise NanoabsError(
+                f"output file {str(target)!r} exists: pass force=True (CLI: --force) to overwrite"
+            )
+    return targets
+
+
+# --------------------------------------------------------------------------- conversion
+
+
+def _jsonable(value, where: str):
+    """Return ``value`` as plain JSON types; non-finite floats become None."""
+    if value is None or isinstance(value, (bool, np.bool_)):
+        return None if value is None else bool(value)
+    if isinstance(value, str):
+        return str(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        v = float(value)
+        return v if math.isfinite(v) else None
+    if isinstance(value, np.ndarray):
+        return _jsonable(value.tolist(), where)
+    if isinstance(value, Mapping):
+        out = {}
+        for key, item in value.items():
+            if not isinstance(key, str):
+                raise NanoabsError(
+                    f"metadata{where} has key {key!r} of type {type(key).__name__}: keys must be str"
+                )
+            out[str(key)] = _jsonable(item, f"{where}[{key!r}]")
+        return out
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(item, f"{where}[{i}]") for i, item in enumerate(value)]
+    if isinstance(value, os.PathLike):
+        return os.fspath(value)
+    raise NanoabsError(
+        f"metadata{where} = {type(value).__name__}: not JSON-serialisable; allowed: "
+        "dict, list, tuple, str, int, float, bool, None, numpy scalars/arrays, paths"
+    )
+
+
+def _column_dtype(name: str, series: pd.Series) -> str:
+    """The dtype name recorded in the sidecar; refuse what cannot round-trip."""
+    dtype = series.dtype
+    if isinstance(dtype, np.dtype) and dtype.kind in "fiub":
+        return str(dtype)
+    is_text = isinstance(dtype, pd.StringDtype) or (
+        dtype == object and all(isinstance(v, str) for v in series.to_numpy())
+    )
+    if is_text and str(dtype) in _TEXT_DTYPES:
+        if series.isna().any():
+            raise NanoabsError(
+                f"column {name!r} is text with missing values: fill them (e.g. with '') before export"
+            )
+        return str(dtype)
+    raise NanoabsError(
+        f"column {name!r} has dtype {dtype}: allowed are float, int, uint, bool or text columns "
+        "(split complex values into real/imag columns)"
+    )
+
+
+def _check_frame(frame, units) -> list[dict]:
+    if not isinstance(frame, pd.DataFrame):
+        raise NanoabsError(f"frame = {type(frame).__name__}: must be a pandas DataFrame")
+    names = list(frame.columns)
+    if not names:
+        raise NanoabsError("frame has no columns: give at least one column")
+    bad = [n for n in names if not isinstance(n, str) or not n]
+    if bad:
+        raise NanoabsError(f"frame column names {bad!r}: must be non-empty str")
+    dupes = sorted({n for n in names if names.count(n) > 1})
+    if dupes:
+        raise NanoabsError(f"frame has duplicate column names {dupes}: names must be unique")
+    if not isinstance(units, Mapping):
+        raise NanoabsError(f"units = {type(units).__name__}: must be a dict column -> unit string")
+    missing = [n for n in names if n not in units]
+    if missing:
+        raise NanoabsError(
+            f"units has no entry for column(s) {', '.join(missing)}: give a unit for every "
+            "column ('1' for dimensionless)"
+        )
+    columns = []
+    for name in names:
+        unit = units[name]
+        if not isinstance(unit, str) or not unit.strip():
+            raise NanoabsError(
+                f"units[{name!r}] = {unit!r}: must be a non-empty str ('1' for dimensionless)"
+            )
+        columns.append({"name": name, "unit": unit, "dtype": _column_dtype(name, frame[name])})
+    return columns
+
+
+def _package_version() -> str:
+    try:
+        import nanoabs
+
+        version = getattr(nanoabs, "__version__", None)
+        if version:
+            return str(version)
+    except ImportError:  # pragma: no cover - we are inside the package
+        pass
+    try:
+        from importlib.metadata import PackageNotFoundError, version as dist_version
+
+        return dist_version("nanoabs")
+    except PackageNotFoundError:
+        return "unknown"
+
+
+def _json_data(frame: pd.DataFrame, columns: list[dict]) -> dict:
+    data = {}
+    for col in columns:
+        values = frame[col["name"]].to_numpy()
+        kind = np.dtype(col["dtype"]).kind if col["dtype"] not in _TEXT_DTYPES else "U"
+        if kind == "f":
+            if np.isinf(values).any():
+                raise NanoabsError(
+                    f"column {col['name']!r} has infinite values: a .json export cannot hold "
+                    "them; use a .csv path"
+                )
+            data[col["name"]] = [None if math.isnan(v) else v for v in values.astype(float).tolist()]
+        elif kind == "U":
+            data[col["name"]] = [str(v) for v in values]
+        else:
+            data[col["name"]] = values.tolist()
+    return data
+
+
+def _json_text(doc: dict, data: dict | None) -> str:
+    """Header indented for people; each data column on a single line."""
+    text = json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False)
+    if data is None:
+        return text + "\n"
+    body = ",\n".join(
+        f"    {json.dumps(name, ensure_ascii=False)}: "
+        f"{json.dumps(values, ensure_ascii=False, allow_nan=False)}"
+        for name, values in data.items()
+    )
+    return text[: -len("\n}")] + ',\n  "data": {\n' + body + "\n  }\n}\n"
+
+
+# --------------------------------------------------------------------------- writing
+
+
+def _file_mode() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+def _write_temp(target: Path, write) -> Path:
+    """Write through ``write(handle)`` into a temporary file beside ``target``."""
+    tmp = tempfile.NamedTemporaryFile(
+        mode="w",
+        encoding="utf-8",
+        newline="",
+        delete=False,
+        dir=target.parent,
+        prefix=f".{target.name}.",
+        suffix=".tmp",
+    )
+    try:
+        with tmp:
+            write(tmp)
+            tmp.flush()
+            os.fsync(tmp.fileno())
+        os.chmod(tmp.name, _file_mode())
+    except BaseException:
+        Path(tmp.name).unlink(missing_ok=True)
+        raise
+    return Path(tmp.name)
+
+
+def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[Path, ...]:
+    """Write ``frame`` with units and metadata as CSV + JSON sidecar or single JSON.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        The table; column names carry the unit (``wavelength_nm``, ``sigma_abs_m2``).
+        Columns may be float, int, uint, bool or text. The index is not written
+        (call ``reset_index()`` first to keep it).
+    path : str or os.PathLike
+        ``*.csv`` writes ``path`` and ``path.with_suffix('.json')``; ``*.json``
+        writes one file holding the sidecar and the data.
+    metadata : dict
+        JSON-serialisable description (inputs, materials, methods, totals,
+        warnings). numpy scalars/arrays become plain numbers/lists, tuples become
+        lists, paths become str, NaN and infinities become null.
+    units : dict
+        Column name -> unit string (``"nm"``, ``"m^2"``, ``"1"`` for
+        dimensionless). Every column needs one; extra entries are ignored.
+    force : bool, optional
+        Overwrite existing files.
+
+    Returns
+    -------
+    tuple of pathlib.Path
+        The files written.
+
+    Raises
+    ------
+    NanoabsError
+        See :func:`check_writable`; a column without unit, an unsupported column
+        dtype, or metadata that cannot be written as JSON. On any failure no new
+        file and no temporary file is left behind.
+    """
+    targets = check_writable(path, force=force)
+    columns = _check_frame(frame, units)
+    if not isinstance(metadata, Mapping):
+        raise NanoabsError(f"metadata = {type(metadata).__name__}: must be a dict")
+    single = len(targets) == 1
+    doc = {
+        "format": FORMAT_NAME,
+        "format_version": FORMAT_VERSION,
+        "package_version": _package_version(),
+        "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "data_file": None if single else targets[0].name,
+        "rows": int(len(frame)),
+        "columns": columns,
+        "metadata": _jsonable(metadata, ""),
+    }
+    json_text = _json_text(doc, _json_data(frame, columns) if single else None)
+
+    temps: list[Path] = []
+    placed: list[Path] = []
+    try:
+        if not single:
+            # float32/float16 go out as the float64 repr of their exact value, so
+            # parsing as float64 and casting back is exact
+            wide = {c["name"]: "float64" for c in columns if c["dtype"] in ("float16", "float32")}
+            table = frame.astype(wide) if wide else frame
+            temps.append(
+                _write_temp(
+                    targets[0],
+                    lambda fh: table.to_csv(fh, index=False, na_rep="nan", lineterminator="\n"),
+                )
+            )
+        temps.append(_write_temp(targets[-1], lambda fh: fh.write(json_text)))
+        for tmp, target in zip(temps, targets):
+            os.replace(tmp, target)
+            placed.append(target)
+    except BaseException:
+        for leftover in temps:
+            leftover.unlink(missing_ok=True)
+        for target in placed:  # roll back: never leave a CSV without its sidecar
+            target.unlink(missing_ok=True)
+        raise
+    return targets
+
+
+# --------------------------------------------------------------------------- reading
+
+
+def _load_json(path: Path) -> dict:
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise DataError(f"export file {str(path)!r} not found") from None
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise DataError(f"export file {str(path)!r} is not readable JSON: {exc}") from None
+    if not isinstance(doc, dict):
+        raise DataError(f"export file {str(path)!r} must hold a JSON object, found {type(doc).__name__}")
+    return doc
+
+
+def _check_header(doc: dict, source: Path) -> list[dict]:
+    where = repr(str(source))
+    if doc.get("format") != FORMAT_NAME:
+        raise DataError(f"{where}: format = {doc.get('format')!r}, expected {FORMAT_NAME!r}")
+    if doc.get("format_version") != FORMAT_VERSION:
+        raise DataError(
+            f"{where}: format_version = {doc.get('format_version')!r}; this nanoabs reads {FORMAT_VERSION}"
+        )
+    rows = doc.get("rows")
+    if not isinstance(rows, int) or isinstance(rows, bool) or rows < 0:
+        raise DataError(f"{where}: rows = {rows!r}, must be an integer >= 0")
+    if not isinstance(doc.get("metadata"), dict):
+        raise DataError(f"{where}: 'metadata' must be a JSON object")
+    columns = doc.get("columns")
+    if not isinstance(columns, list) or not columns:
+        raise DataError(f"{where}: 'columns' must be a non-empty list of {{name, unit, dtype}}")
+    for i, col in enumerate(columns):
+        ok = isinstance(col, dict) and all(isinstance(col.get(k), str) for k in ("name", "unit", "dtype"))
+        if not ok:
+            raise DataError(f"{where}: columns[{i}] = {col!r}, must have str name, unit and dtype")
+        if col["dtype"] not in _TEXT_DTYPES:
+            try:
+                ok = np.dtype(col["dtype"]).kind in "fiub"
+            except TypeError:
+                ok = False
+            if not ok:
+                raise DataError(
+                    f"{where}: column {col['name']!r} has dtype {col['dtype']!r}; "
+                    f"allowed: float*, int*, uint*, bool, {', '.join(_TEXT_DTYPES)}"
+                )
+    return columns
+
+
+def _parse(value, kind: str):
+    """One value from the CSV (str) or the JSON data (number, bool, None)."""
+    if kind == "f":
+        return np.nan if value is None else float(value)
+    if kind == "b":
+        if value is True or value == "True":
+            return True
+        if value is False or value == "False":
+            return False
+        raise ValueError(value)
+    if isinstance(value, float):
+        raise ValueError(value)
+    return int(value)
+
+
+def _to_series(values: list, col: dict, source: Path) -> pd.Series:
+    name, dtype = col["name"], col["dtype"]
+    if dtype in _TEXT_DTYPES:
+        if not all(isinstance(v, str) for v in values):
+            raise DataError(f"{str(source)!r}: column {name!r} must hold only text")
+        return pd.Series(values, dtype=dtype, name=name)
+    kind = np.dtype(dtype).kind
+    parsed = []
+    for i, value in enumerate(values):
+        try:
+            parsed.append(_parse(value, kind))
+        except (TypeError, ValueError):
+            raise DataError(
+                f"{str(source)!r}: column {name!r} row {i + 1} value {value!r} is not a valid {dtype}"
+            ) from None
+    try:
+        arr = np.array(parsed, dtype=np.float64 if kind == "f" else dtype).astype(dtype)
+    except OverflowError:
+        raise DataError(f"{str(source)!r}: column {name!r} has values outside the {dtype} range") from None
+    return pd.Series(arr, name=name)
+
+
+def _read_csv(csv_path: Path, columns: list[dict]) -> dict[str, list]:
+    try:
+        with open(csv_path, encoding="utf-8", newline="") as fh:
+            rows = list(csv.reader(fh))
+    except FileNotFoundError:
+        raise DataError(f"data file {str(csv_path)!r} not found (named by its sidecar)") from None
+    except (OSError, UnicodeDecodeError, csv.Error) as exc:
+        raise DataError(f"data file {str(csv_path)!r} is not readable CSV: {exc}") from None
+    expected = [c["name"] for c in columns]
+    header = rows[0] if rows else []
+    if header != expected:
+        raise DataError(
+            f"{str(csv_path)!r}: CSV columns {header} do not match the sidecar columns {expected}"
+        )
+    for lineno, row in enumerate(rows[1:], start=2):
+        if len(row) != len(expected):
+            raise DataError(
+                f"{str(csv_path)!r}: line {lineno} has {len(row)} fields, expected {len(expected)}"
+            )
+    return {name: [row[i] for row in rows[1:]] for i, name in enumerate(expected)}
+
+
+def read_export(path) -> tuple[pd.DataFrame, dict]:
+    """Read an export written by :func:`write_export`.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The ``.csv`` (its ``.json`` sidecar must sit beside it), the sidecar
+        ``.json`` itself, or a single-file ``.json`` export.
+
+    Returns
+    -------
+    frame : pandas.DataFrame
+        Same columns, order, dtypes and values as written, with a RangeIndex.
+    header : dict
+        The sidecar document without ``data``: ``format``, ``format_version``,
+        ``package_version``, ``created_utc``, ``data_file``, ``rows``,
+        ``columns`` (name, unit, dtype) and ``metadata`` (the caller's dict).
+
+    Raises
+    ------
+    NanoabsError
+        The suffix is neither ``.csv`` nor ``.json``.
+    DataError
+        A missing file or sidecar, a foreign format or version, or data that
+        do not match the columns/rows the sidecar lists.
+    """
+    path = Path(path)
+    _targets(path)  # validates the suffix
+    if path.suffix.lower() == ".csv":
+        sidecar = path.with_suffix(".json")
+        if not sidecar.is_file():
+            raise DataError(
+                f"sidecar {str(sidecar)!r} for {str(path)!r} not found: the units and metadata live there"
+            )
+        if not path.is_file():
+            raise DataError(f"export file {str(path)!r} not found")
+        doc, source, csv_path = _load_json(sidecar), sidecar, path
+        if "data" in doc:
+            raise DataError(
+                f"{str(sidecar)!r} is a single-file export, not the sidecar of {str(path)!r}"
+            )
+    else:
+        doc, source = _load_json(path), path
+        csv_path = None
+        if "data" not in doc:
+            name = doc.get("data_file")
+            if not isinstance(name, str) or not name:
+                raise DataError(f"{str(path)!r} has neither 'data' nor a 'data_file' name")
+            csv_path = path.parent / name
+    columns = _check_header(doc, source)
+    names = [c["name"] for c in columns]
+    if csv_path is not None:
+        raw = _read_csv(csv_path, columns)
+    else:
+        raw = doc.pop("data")
+        if not isinstance(raw, dict) or list(raw) != names:
+            got = list(raw) if isinstance(raw, dict) else type(raw).__name__
+            raise DataError(f"{str(path)!r}: data columns {got} do not match the listed columns {names}")
+    for name in names:
+        if not isinstance(raw[name], list) or len(raw[name]) != doc["rows"]:
+            n = len(raw[name]) if isinstance(raw[name], list) else "not a list"
+            raise DataError(
+                f"{str(csv_path or path)!r}: column {name!r} has {n} rows, the sidecar says {doc['rows']}"
+            )
+    frame = pd.DataFrame(
+        {c["name"]: _to_series(raw[c["name"]], c, csv_path or path) for c in columns},
+        index=pd.RangeIndex(doc["rows"]),
+    )
+    return frame, doc
+
+
+# --------------------------------------------------------------------------- other files
+
+
+def write_file_atomic(path, write, *, force: bool = False, binary: bool = False) -> Path:
+    """Write any output file atomically: ``write(handle)`` fills a temporary beside it, then rename.
+
+    Used for figures, reports and parameter files. Refuses to overwrite an
+    existing file unless ``force``; leaves nothing behind on failure.
+    """
+    target = Path(path)
+    if not target.parent.is_dir():
+        raise NanoabsError(f"output directory {str(target.parent)!r} does not exist: create it first")
+    if target.is_dir():
+        raise NanoabsError(f"output file {str(target)!r} is a directory: choose a file name")
+    if target.exists() and not force:
+        raise NanoabsError(f"output file {str(target)!r} exists: pass force=True (CLI: --force) to overwrite")
+    tmp = tempfile.NamedTemporaryFile(mode="wb" if binary else "w", delete=False, dir=target.parent,
+                                      prefix=f".{target.name}.", suffix=".tmp",
+                                      **({} if binary else {"encoding": "utf-8", "newline": ""}))
+    try:
+        with tmp:
+            write(tmp)
+            tmp.flush()
+            os.fsync(tmp.fileno())
+        os.chmod(tmp.name, _file_mode())
+        os.replace(tmp.name, target)
+    except BaseException:
+        Path(tmp.name).unlink(missing_ok=True)
+        raise
+    return target

@@ -1,0 +1,408 @@
+"""The material store: tabulated optical constants, interpolation, shipped Drude–Lorentz fits.
+
+Each dataset is one CSV in the ``materials`` data package (``materials/`` in the
+source tree, installed as ``nanoabs.material_data``) with a ``#`` header giving the
+material, the publication, the open dataset and licence, the valid range and the
+sign convention (exp(−iωt), n + ik with k ≥ 0). A fitted Drude–Lorentz model for
+a dataset lives beside it as ``<material>__<source>.dl.json``.
+
+Interpolation is shape-preserving piecewise-cubic Hermite (PCHIP; Fritsch &
+Carlson, SIAM J. Numer. Anal. 17, 238 (1980)) of n and k separately against
+log(wavelength): it passes through every tabulated point, is C¹, and never
+overshoots the data between points.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+from dataclasses import dataclass, field
+from functools import lru_cache
+from importlib import resources
+from pathlib import Path
+
+import numpy as np
+from scipy.interpolate import PchipInterpolator
+
+from ._errors import DataError, NanoabsError, check_finite_array, suggest
+from .drude_lorentz import DrudeLorentz, surface_damping_eV
+from .hotcarriers import FREE_ELECTRON
+
+__all__ = [
+    "Material",
+    "material",
+    "catalog",
+    "load_table",
+    "effective_length_nm",
+]
+
+ALIASES = {
+    "water": "H2O", "gold": "Au", "silver": "Ag", "copper": "Cu", "aluminium": "Al",
+    "aluminum": "Al", "silica": "SiO2", "glass": "SiO2", "titania": "TiO2", "alumina": "Al2O3",
+    "sapphire": "Al2O3", "silicon": "Si", "vacuum": "air",
+}
+
+# Free-electron parameters (Ashcroft & Mermin 1976, Tables 1.1 and 2.1) live in hotcarriers.
+FREE_ELECTRON_SOURCE = ("N. W. Ashcroft, N. D. Mermin, Solid State Physics (1976), "
+                        "Tables 1.1 and 2.1 (values from memory)")
+
+
+def _data_dir() -> Path:
+    try:
+        return Path(str(resources.files("nanoabs.material_data")))
+    except ModuleNotFoundError:  # running from a source checkout without installing
+        return Path(__file__).resolve().parents[1] / "materials"
+
+
+def _read_header(text: str) -> tuple[dict, str]:
+    header, body = {}, []
+    for line in text.splitlines():
+        if line.startswith("#"):
+            key, sep, value = line[1:].partition(":")
+            if sep:
+                header[key.strip().lower()] = value.strip()
+        elif line.strip():
+            body.append(line)
+    return header, "\n".join(body)
+
+
+def _parse_table(path: Path, text: str):
+    """Columns (wavelength_nm, n, k) or (wavelength_nm, eps_real, eps_imag) → (wl, complex n, note)."""
+    header, body = _read_header(text)
+    rows = list(csv.reader(io.StringIO(body)))
+    if not rows:
+        raise DataError(f"material table {path}: no data rows")
+    cols = [c.strip().lower() for c in rows[0]]
+    if cols[:3] == ["wavelength_nm", "n", "k"]:
+        kind = "nk"
+    elif cols[:3] == ["wavelength_nm", "eps_real", "eps_imag"]:
+        kind = "eps"
+    else:
+        raise DataError(f"material table {path}: header row must be 'wavelength_nm,n,k' or "
+                        f"'wavelength_nm,eps_real,eps_imag', got {','.join(rows[0])!r}")
+    vals = []
+    for i, r in enumerate(rows[1:], start=2):
+        try:
+            vals.append([float(x) for x in r[:3]])
+            if len(r) < 3:
+                raise ValueError
+        except ValueError:
+            raise DataError(f"material table {path}: data row {i} is not three numbers: {','.join(r)!r}") from None
+    a = np.array(vals, dtype=float)
+    if a.shape[0] < 2:
+        raise DataError(f"material table {path}: need at least 2 data rows, found {a.shape[0]}")
+    if not np.all(np.isfinite(a)):
+        raise DataError(f"material table {path}: contains NaN or infinite values")
+    wl = a[:, 0]
+    if np.any(wl <= 0):
+        raise DataError(f"material table {path}: wavelengths must be > 0 nm")
+    if np.any(np.diff(wl) <= 0):
+        i = int(np.argmax(np.diff(wl) <= 0))
+        raise DataError(f"material table {path}: wavelength_nm must increase strictly "
+                        f"({wl[i + 1]:g} follows {wl[i]:g})")
+    note = ""
+    if kind == "nk":
+        n = a[:, 1] + 1j * a[:, 2]
+        if np.any(a[:, 2] < 0):
+            if np.all(a[:, 2] <= 0):
+                n = np.conj(n)
+                note = "k < 0 in the file: converted from the exp(+i omega t) convention (n - ik)"
+            else:
+                raise DataError(f"material table {path}: k changes sign; cannot tell the sign convention")
+    else:
+        eps = a[:, 1] + 1j * a[:, 2]
+        if np.any(a[:, 2] < 0):
+            if np.all(a[:, 2] <= 0):
+                eps = np.conj(eps)
+                note = "eps'' < 0 in the file: converted from the exp(+i omega t) convention"
+            else:
+                raise DataError(f"material table {path}: eps_imag changes sign; cannot tell the sign convention")
+        n = np.sqrt(eps)
+    return header, wl, n, note
+
+
+@dataclass
+class Material:
+    """Optical constants of one dataset (or a constant index) as functions of vacuum wavelength.
+
+    Use :func:`material` to obtain one. ``permittivity`` and ``refractive_index``
+    take scalars or arrays of wavelengths [nm] and keep their shape.
+    """
+
+    name: str
+    source: str
+    kind: str = "dielectric"
+    info: dict = field(default_factory=dict)
+    range_nm: tuple = (0.0, math.inf)
+    extrapolate: bool = False
+    model: DrudeLorentz | None = None
+    _wl: np.ndarray | None = field(default=None, repr=False)
+    _n: np.ndarray | None = field(default=None, repr=False)
+    _constant: complex | None = field(default=None, repr=False)
+
+    def __post_init__(self):
+        if self._wl is not None:
+            x = np.log(self._wl)
+            self._n_interp = PchipInterpolator(x, self._n.real, extrapolate=False)
+            self._k_interp = PchipInterpolator(x, self._n.imag, extrapolate=False)
+
+    @property
+    def label(self) -> str:
+        return self.name if self._constant is not None else f"{self.name} ({self.source})"
+
+    @property
+    def is_metal(self) -> bool:
+        return self.kind == "metal"
+
+    def outside(self, wavelength_nm) -> np.ndarray:
+        """Boolean mask of wavelengths outside the tabulated range."""
+        wl = np.asarray(wavelength_nm, dtype=float)
+        lo, hi = self.range_nm
+        return (wl < lo * (1 - 1e-12)) | (wl > hi * (1 + 1e-12))
+
+    def refractive_index(self, wavelength_nm):
+        """Complex refractive index n + ik (k ≥ 0) at vacuum wavelengths [nm]."""
+        wl = np.asarray(wavelength_nm, dtype=float)
+        if np.any(~np.isfinite(wl)) or np.any(wl <= 0):
+            bad = wl[~np.isfinite(wl) | (wl <= 0)].flat[0]
+            raise NanoabsError(f"wavelength = {bad:g} nm: must be a finite number > 0")
+        if self._constant is not None:
+            return np.full(wl.shape, self._constant, dtype=complex)[()]
+        out = self.outside(wl)
+        if np.any(out):
+            if not (self.extrapolate and self.model is not None):
+                lo, hi = self.range_nm
+                how = ("; no fitted model to extrapolate with" if self.extrapolate else
+                       "; pass extrapolate=True to use the fitted Drude-Lorentz model there"
+                       if self.model is not None else "")
+                raise NanoabsError(
+                    f"wavelength {wl.min():g}-{wl.max():g} nm is outside material {self.name} "
+                    f"dataset {self.source!r} range {lo:g}-{hi:g} nm{how}")
+        x = np.log(wl)
+        n = self._n_interp(x) + 1j * self._k_interp(x)
+        if np.any(out):
+            n = np.where(out, self.model.refractive_index(wl), n)
+        return np.asarray(n)[()]
+
+    def permittivity(self, wavelength_nm):
+        """Complex permittivity ε = (n + ik)² (ε″ ≥ 0) at vacuum wavelengths [nm]."""
+        return np.asarray(self.refractive_index(wavelength_nm)) ** 2
+
+    def with_surface_damping(self, length_nm: float, *, A: float = 1.0,
+                             fermi_velocity_m_s: float | None = None) -> "DampedMaterial":
+        """This metal with the size-dependent surface-scattering correction for mean free path L [nm].
+
+        ε(ω, L) = ε_bulk(ω) + ω_p²/(ω² + iγω) − ω_p²/(ω² + i(γ + A v_F/L)ω)
+        (Kreibig & Vollmer 1995, Sec. 2.2.4), with ω_p and γ from the dataset's
+        shipped Drude–Lorentz fit and v_F from Ashcroft & Mermin (1976) Table 2.1.
+        """
+        if self.model is None or self.model.plasma_energy_eV <= 0:
+            raise NanoabsError(f"surface damping needs a Drude term: material {self.label} has no "
+                               "fitted Drude-Lorentz model with a free-electron part")
+        if fermi_velocity_m_s is None:
+            if self.name not in FREE_ELECTRON:
+                raise NanoabsError(
+                    f"surface damping for {self.name}: no tabulated Fermi velocity (known: "
+                    f"{', '.join(FREE_ELECTRON)}); give fermi_velocity_m_s or turn the correction off")
+            fermi_velocity_m_s = FREE_ELECTRON[self.name].fermi_velocity_m_s
+        extra = float(surface_damping_eV(length_nm, fermi_velocity_m_s, A=A))
+        return DampedMaterial(self, float(length_nm), float(A), float(fermi_velocity_m_s), extra)
+
+    def metadata(self) -> dict:
+        d = {"material": self.name, "source": self.source, "kind": self.kind,
+             "range_nm": list(self.range_nm)}
+        for key in ("reference", "doi", "dataset", "values", "convention", "note"):
+            if self.info.get(key):
+                d[key] = self.info[key]
+        if self.extrapolate:
+            d["extrapolation"] = "fitted Drude-Lorentz model used outside the tabulated range"
+        return d
+
+
+@dataclass
+class DampedMaterial:
+    """A metal with surface damping; same interface as :class:`Material`."""
+
+    bulk: Material
+    length_nm: float
+    A: float
+    fermi_velocity_m_s: float
+    extra_damping_eV: float
+
+    name = property(lambda self: self.bulk.name)
+    source = property(lambda self: self.bulk.source)
+    kind = property(lambda self: self.bulk.kind)
+    is_metal = property(lambda self: self.bulk.is_metal)
+    range_nm = property(lambda self: self.bulk.range_nm)
+    label = property(lambda self: self.bulk.label)
+
+    @property
+    def model(self) -> DrudeLorentz:
+        return self.bulk.model.with_surface_damping(self.extra_damping_eV)
+
+    def outside(self, wavelength_nm):
+        return self.bulk.outside(wavelength_nm)
+
+    def damping_correction(self, wavelength_nm):
+        """Δε(ω, L) added to the bulk permittivity [-]."""
+        return self.model.parts_at_energy(
+            1239.8419843320026 / np.asarray(wavelength_nm, dtype=float))["drude_surface"]
+
+    def permittivity(self, wavelength_nm):
+        eps = np.asarray(self.bulk.permittivity(wavelength_nm)) + self.damping_correction(wavelength_nm)
+        # The Drude-Lorentz form stays passive for any L; against tabulated data the
+        # difference of two Drude terms could in principle push eps'' below 0 far in
+        # the infrared (omega < gamma(L)); clip there and say so in the metadata.
+        return (eps.real + 1j * np.maximum(eps.imag, 0.0))[()]
+
+    def refractive_index(self, wavelength_nm):
+        return np.sqrt(self.permittivity(wavelength_nm))
+
+    def with_surface_damping(self, length_nm, **kw):
+        return self.bulk.with_surface_damping(length_nm, **kw)
+
+    def metadata(self) -> dict:
+        d = self.bulk.metadata()
+        d["surface_damping"] = {
+            "effective_length_nm": self.length_nm, "A": self.A,
+            "fermi_velocity_m_s": self.fermi_velocity_m_s,
+            "extra_damping_eV": self.extra_damping_eV,
+            "reference": "Kreibig & Vollmer (1995) Sec. 2.2.4; v_F: " + FREE_ELECTRON_SOURCE,
+        }
+        return d
+
+
+def effective_length_nm(volume_nm3: float, surface_nm2: float) -> float:
+    """Effective mean free path L = 4V/S [nm] of a convex particle (Coronado & Schatz 2003)."""
+    return 4.0 * float(volume_nm3) / float(surface_nm2)
+
+
+@lru_cache(maxsize=None)
+def catalog() -> dict:
+    """All shipped datasets: {material: {source: header dict}}, with the default marked."""
+    out: dict = {}
+    for p in sorted(_data_dir().glob("*__*.csv")):
+        mat, src = p.stem.split("__", 1)
+        header, _ = _read_header(p.read_text(encoding="utf-8"))
+        header["path"] = str(p)
+        fit = p.with_name(p.stem + ".dl.json")
+        header["fit"] = str(fit) if fit.exists() else ""
+        out.setdefault(mat, {})[src] = header
+    return out
+
+
+def default_source(name: str) -> str:
+    srcs = catalog()[name]
+    for s, h in srcs.items():
+        if h.get("default", "no") == "yes":
+            return s
+    return next(iter(srcs))
+
+
+def _resolve_name(name: str) -> str:
+    cat = catalog()
+    if name in cat:
+        return name
+    low = {k.lower(): k for k in cat}
+    key = str(name).strip()
+    if key.lower() in low:
+        return low[key.lower()]
+    if key.lower() in ALIASES:
+        return ALIASES[key.lower()]
+    names = sorted(cat) + sorted(ALIASES)
+    raise NanoabsError(f"unknown material {name!r}{suggest(name, names)}; known: {', '.join(sorted(cat))} "
+                       f"(aliases: {', '.join(sorted(ALIASES))}) or a number for a constant index")
+
+
+def _constant(value) -> Material:
+    try:
+        n = complex(value)
+    except (TypeError, ValueError):
+        raise NanoabsError(f"medium = {value!r}: must be a material name or a refractive index") from None
+    if not (np.isfinite(n.real) and np.isfinite(n.imag)) or n.real <= 0 or n.imag < 0:
+        raise NanoabsError(f"refractive index = {value!r}: need a finite real part > 0 and imaginary part >= 0")
+    label = f"n={n.real:g}" if n.imag == 0 else f"n={n.real:g}+{n.imag:g}i"
+    return Material(label, "constant", "medium", {"values": "constant refractive index"},
+                    _constant=n)
+
+
+def material(name, source: str | None = None, *, extrapolate: bool = False) -> Material:
+    """Load a material from the store, or make a constant-index medium from a number.
+
+    Parameters
+    ----------
+    name : str or float
+        A material (``"Au"``, ``"SiO2"``, ``"H2O"``/``"water"``, …; see
+        ``nanoabs materials``) or a refractive index (``1.33``, ``"1.5"``).
+    source : str, optional
+        Dataset key (e.g. ``"mcpeak-2015"``); default: the dataset marked default.
+    extrapolate : bool, keyword-only
+        Outside the tabulated range, use the dataset's fitted Drude–Lorentz
+        model instead of raising. The material's metadata records it.
+
+    Examples
+    --------
+    >>> au = material("Au")
+    >>> eps = au.permittivity([500.0, 600.0])
+    """
+    if isinstance(name, (int, float, complex)) and not isinstance(name, bool):
+        return _constant(name)
+    try:
+        float(str(name))
+        return _constant(str(name))
+    except ValueError:
+        pass
+    key = _resolve_name(name)
+    srcs = catalog()[key]
+    if source is None:
+        source = default_source(key)
+    if source not in srcs:
+        raise NanoabsError(f"unknown dataset {source!r} for {key}{suggest(source, srcs)}; "
+                           f"available: {', '.join(srcs)}")
+    return _load(key, source, bool(extrapolate))
+
+
+@lru_cache(maxsize=None)
+def _load_cached(key: str, source: str):
+    h = catalog()[key][source]
+    path = Path(h["path"])
+    header, wl, n, note = _parse_table(path, path.read_text(encoding="utf-8"))
+    model = DrudeLorentz.load(h["fit"]) if h.get("fit") else None
+    return header, wl, n, note, model
+
+
+def _load(key: str, source: str, extrapolate: bool) -> Material:
+    header, wl, n, note, model = _load_cached(key, source)
+    info = dict(header)
+    if note:
+        info["note"] = note
+    if len(np.unique(n)) == 1:  # constant table (air)
+        return Material(key, source, header.get("kind", "medium"), info, (float(wl[0]), float(wl[-1])),
+                        _constant=complex(n[0]))
+    return Material(key, source, header.get("kind", "dielectric"), info,
+                    (float(wl[0]), float(wl[-1])), extrapolate, model, wl, n)
+
+
+def load_table(path, *, name: str | None = None, kind: str = "metal") -> Material:
+    """Read a user table (CSV: ``wavelength_nm,n,k`` or ``wavelength_nm,eps_real,eps_imag``).
+
+    ``#`` header lines of the shipped form are read if present. Data in the
+    exp(+iωt) convention (k ≤ 0 or ε″ ≤ 0 throughout) are conjugated on import
+    and the material's metadata says so; a column whose sign changes is an error.
+    """
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise DataError(f"material table {p}: file not found") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise DataError(f"material table {p}: cannot be read ({exc.__class__.__name__})") from None
+    header, wl, n, note = _parse_table(p, text)
+    info = dict(header)
+    info.setdefault("dataset", f"user table {p.name}")
+    if note:
+        info["note"] = note
+    check_finite_array("wavelength_nm", wl, increasing=True)
+    return Material(name or header.get("material", p.stem), header.get("source", "user"),
+                    header.get("kind", kind), info, (float(wl[0]), float(wl[-1])), False, None, wl, n)

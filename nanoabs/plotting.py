@@ -1,0 +1,131 @@
+"""Figures (matplotlib, headless Agg backend): optical constants, spectra, maps, yields.
+
+Every function returns a ``matplotlib.figure.Figure``; :func:`save_figure` writes
+PNG or SVG atomically. Axis labels carry units; colour maps are perceptually
+uniform (viridis / cividis).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from ._errors import NanoabsError
+
+__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "save_figure"]
+
+
+def _figure(nrows=1, ncols=1, **kw):
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=kw.pop("figsize", (6.4, 4.2)), layout="constrained")
+    axes = fig.subplots(nrows, ncols, **kw)
+    return fig, axes
+
+
+def save_figure(fig, path, *, force: bool = False, dpi: int = 150) -> Path:
+    """Save ``fig`` to ``path`` (.png or .svg) atomically; never overwrite unless ``force``."""
+    from .export import write_file_atomic
+
+    p = Path(path)
+    fmt = p.suffix.lower().lstrip(".")
+    if fmt not in ("png", "svg"):
+        raise NanoabsError(f"plot file {str(p)!r}: suffix must be .png or .svg")
+    return write_file_atomic(p, lambda fh: fig.savefig(fh, format=fmt, dpi=dpi), force=force,
+                             binary=True)
+
+
+def plot_material(mat, wavelength_nm=None):
+    """n, k and ε′, ε″ of a material against wavelength [nm]; tabulated points marked."""
+    if wavelength_nm is None:
+        lo, hi = mat.range_nm
+        if not np.isfinite(hi):
+            lo, hi = 300.0, 2000.0
+        hi = min(hi, 20 * lo, 20000.0)
+        wavelength_nm = np.geomspace(lo, hi, 400)
+    wl = np.asarray(wavelength_nm, dtype=float)
+    n = np.atleast_1d(mat.refractive_index(wl))
+    fig, (a1, a2) = _figure(1, 2, figsize=(9.0, 3.8))
+    a1.plot(wl, n.real, label="n", color="#1b6ca8")
+    a1.plot(wl, n.imag, label="k", color="#c8553d")
+    eps = n**2
+    a2.plot(wl, eps.real, label="ε′", color="#1b6ca8")
+    a2.plot(wl, eps.imag, label="ε″", color="#c8553d")
+    if getattr(mat, "_wl", None) is not None:
+        t = mat._wl[(mat._wl >= wl.min()) & (mat._wl <= wl.max())]
+        if t.size < 300:
+            nt = np.atleast_1d(mat.refractive_index(t))
+            a1.plot(t, nt.real, ".", color="#1b6ca8", ms=3)
+            a1.plot(t, nt.imag, ".", color="#c8553d", ms=3)
+    for a, y in ((a1, "refractive index"), (a2, "permittivity")):
+        a.set_xlabel("wavelength [nm]")
+        a.set_ylabel(y)
+        a.legend(frameon=False)
+        a.grid(alpha=0.3)
+    a2.axhline(0, color="0.5", lw=0.8)
+    fig.suptitle(mat.label)
+    return fig
+
+
+def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None, band=None,
+                 scale=1.0):
+    """Overlay of spectra: ``curves`` is a list of (label, wavelength_nm, values)."""
+    import matplotlib
+
+    fig, ax = _figure()
+    cmap = matplotlib.colormaps["viridis"]
+    for i, (label, wl, y) in enumerate(curves):
+        ax.plot(wl, np.asarray(y) * scale, label=label,
+                color=cmap(0.9 * i / max(1, len(curves) - 1)))
+    if band is not None:
+        ax.axvspan(band[0], band[1], color="0.85", zorder=0, label="target band")
+    ax.set_xlabel("wavelength [nm]")
+    ax.set_ylabel(ylabel)
+    ax.grid(alpha=0.3)
+    if len(curves) <= 12:
+        ax.legend(frameon=False, fontsize=8)
+    if title:
+        ax.set_title(title)
+    return fig
+
+
+def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=True, band=None,
+             title=None):
+    """Wavelength × parameter map (values shape (len(param), len(wavelength))) with the peak ridge."""
+    wl = np.asarray(wavelength_nm, dtype=float)
+    p = np.asarray(param, dtype=float)
+    v = np.asarray(values, dtype=float)
+    fig, ax = _figure()
+    mesh = ax.pcolormesh(wl, p, v, cmap="viridis", shading="nearest")
+    fig.colorbar(mesh, ax=ax, label=value_label)
+    if ridge:
+        ax.plot(wl[np.argmax(v, axis=1)], p, color="white", lw=1.2, ls="--", label="peak")
+        ax.legend(frameon=False, labelcolor="white", loc="upper left")
+    if band is not None:
+        for b in band:
+            ax.axvline(b, color="#ff7f0e", lw=1.0)
+    ax.set_xlabel("wavelength [nm]")
+    ax.set_ylabel(param_label)
+    if title:
+        ax.set_title(title)
+    return fig
+
+
+def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False):
+    """Simple line plot: ``curves`` is a list of (label, y) against a shared x."""
+    import matplotlib
+
+    fig, ax = _figure()
+    cmap = matplotlib.colormaps["cividis"]
+    for i, (label, y) in enumerate(curves):
+        ax.plot(x, y, label=label, color=cmap(0.85 * i / max(1, len(curves) - 1)))
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    if logy:
+        ax.set_yscale("log")
+    ax.grid(alpha=0.3)
+    ax.legend(frameon=False, fontsize=8)
+    if title:
+        ax.set_title(title)
+    return fig
