@@ -1,15 +1,23 @@
 """nanoabs: absorption of metal nanoparticles for plasmonic hot-carrier photodetectors.
 
 Public names are re-exported here; everything else is an implementation detail.
+Submodules with more functions: ``nanoabs.illumination``, ``nanoabs.hotcarriers``,
+``nanoabs.quasistatic``, ``nanoabs.mie``, ``nanoabs.plotting``.
 """
-
-from ._errors import NanoabsError
-from .drude_lorentz import DrudeLorentz, Oscillator, fit_drude_lorentz, rakic_1998
-from .materials import Material, load_table, material
 
 __version__ = "0.1.0"
 
+from ._errors import NanoabsError  # noqa: E402
+from .drude_lorentz import DrudeLorentz, Oscillator, fit_drude_lorentz, rakic_1998  # noqa: E402
+from .materials import Material, load_table, material  # noqa: E402
+from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid  # noqa: E402
+from .optics import Spectrum, spectrum  # noqa: E402
+from .detector import HotCarrierResult, hot_carrier_estimate  # noqa: E402
+from .export import read_export, write_export  # noqa: E402
+from . import illumination  # noqa: E402
+
 __all__ = [
+    "__version__",
     "NanoabsError",
     "DrudeLorentz",
     "Oscillator",
@@ -18,5 +26,15 @@ __all__ = [
     "Material",
     "material",
     "load_table",
-    "__version__",
+    "Sphere",
+    "LayeredSphere",
+    "Ellipsoid",
+    "spheroid",
+    "Spectrum",
+    "spectrum",
+    "HotCarrierResult",
+    "hot_carrier_estimate",
+    "read_export",
+    "write_export",
+    "illumination",
 ]

@@ -137,6 +137,269 @@ def _cmd_materials(args) -> int:
     raise NanoabsError(f"materials: unknown action {args.action!r}; allowed: list, show, fit")
 
 
+# -- particles, spectrum, hot-carriers -------------------------------------------
+
+
+def _material_arg(text, option):
+    """'Au' or 'Au:mcpeak-2015' (material:dataset) or a number."""
+    from .materials import material
+
+    if text is None:
+        raise NanoabsError(f"{option} is required for this shape")
+    name, _, source = str(text).partition(":")
+    return material(name, source or None)
+
+
+def _particle_from_args(args):
+    from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid
+
+    shape = args.shape
+    if shape == "sphere":
+        if args.radius is None:
+            raise NanoabsError("--radius [nm] is required for --shape sphere")
+        return Sphere(_material_arg(args.material, "--material"), args.radius)
+    if shape == "shell":
+        core = args.core if args.core is not None else args.material
+        if args.core_radius is None:
+            raise NanoabsError("--core-radius [nm] is required for --shape shell")
+        shells = args.shell or []
+        thick = args.thickness or []
+        if not shells or len(shells) != len(thick):
+            raise NanoabsError(f"--shape shell needs one --thickness per --shell: got {len(shells)} --shell and "
+                               f"{len(thick)} --thickness")
+        return LayeredSphere(_material_arg(core, "--core"), args.core_radius,
+                             [(_material_arg(m, "--shell"), t) for m, t in zip(shells, thick)])
+    shell = None
+    if args.shell:
+        if len(args.shell) != 1 or not args.thickness or len(args.thickness) != 1:
+            raise NanoabsError("a coated ellipsoid takes exactly one --shell and one --thickness")
+        shell = (_material_arg(args.shell[0], "--shell"), args.thickness[0])
+    if shape == "spheroid":
+        if args.length is None or args.diameter is None:
+            raise NanoabsError("--length and --diameter [nm] are required for --shape spheroid")
+        return spheroid(_material_arg(args.material, "--material"), args.length, args.diameter, shell=shell)
+    if shape == "ellipsoid":
+        if args.semi_axes is None:
+            raise NanoabsError("--semi-axes A,B,C [nm] is required for --shape ellipsoid")
+        try:
+            axes = [float(v) for v in args.semi_axes.split(",")]
+        except ValueError:
+            raise NanoabsError(f"--semi-axes = {args.semi_axes!r}: expected three numbers A,B,C in nm") from None
+        if len(axes) != 3:
+            raise NanoabsError(f"--semi-axes = {args.semi_axes!r}: expected exactly three numbers A,B,C in nm")
+        return Ellipsoid(_material_arg(args.material, "--material"), axes, shell)
+    raise NanoabsError(f"--shape = {shape!r}: allowed: sphere, shell, spheroid, ellipsoid")
+
+
+def _medium_arg(text):
+    from .materials import material
+
+    name, _, source = str(text).partition(":")
+    return material(name, source or None)
+
+
+def _spectrum_from_args(args):
+    from .optics import spectrum
+
+    particle = _particle_from_args(args)
+    wl = parse_range(args.wl)
+    pol = args.polarization or ("long" if args.shape == "spheroid" else "x")
+    spec = spectrum(particle, wl, medium=_medium_arg(args.medium), method=args.method,
+                    polarization=pol, surface_damping=not args.no_surface_damping,
+                    damping_A=args.damping_a)
+    return particle, spec
+
+
+def _print_warnings(meta):
+    for w in meta.get("warnings", []):
+        print(f"warning: {w}", file=sys.stderr)
+
+
+def _cmd_spectrum(args) -> int:
+    from .export import check_writable, write_export
+    from .optics import UNITS
+
+    if args.output:
+        check_writable(args.output, force=args.force)
+    particle, spec = _spectrum_from_args(args)
+    _print_warnings(spec.metadata)
+    summ = spec.summary()
+    frame = spec.to_frame()
+    if args.output:
+        meta = dict(spec.metadata)
+        meta["summary"] = summ
+        write_export(frame, args.output, metadata=meta, units=UNITS, force=args.force)
+        print(f"wrote {args.output}")
+    else:
+        step = max(1, len(frame) // 20)
+        print(f"{'wavelength_nm':>13s} {'sigma_abs_m2':>13s} {'sigma_sca_m2':>13s} {'q_abs':>8s} {'q_sca':>8s}")
+        for _, r in frame.iloc[::step].iterrows():
+            print(f"{r.wavelength_nm:13.1f} {r.sigma_abs_m2:13.4e} {r.sigma_sca_m2:13.4e} {r.q_abs:8.4f} "
+                  f"{r.q_sca:8.4f}")
+    fwhm = summ["fwhm_nm"]
+    print(f"method {spec.metadata['method']}; absorption peak {summ['peak_wavelength_nm']:.1f} nm, "
+          f"FWHM {'not resolved in the grid' if fwhm != fwhm else f'{fwhm:.1f} nm'}, "
+          f"sigma_abs {summ['peak_sigma_abs_m2']:.4g} m^2, Q_abs {summ['peak_q_abs']:.3g}, "
+          f"absorbed fraction {summ['absorbed_fraction_at_peak']:.3f}")
+    if args.plot:
+        from .plotting import plot_spectra, save_figure
+
+        fig = plot_spectra([("absorption", spec.wavelength_nm, spec.sigma_abs_m2),
+                            ("scattering", spec.wavelength_nm, spec.sigma_sca_m2),
+                            ("extinction", spec.wavelength_nm, spec.sigma_ext_m2)],
+                           ylabel="cross-section [nm²]", scale=1e18,
+                           title=_title(spec.metadata["particle"]))
+        save_figure(fig, args.plot, force=args.force)
+        print(f"wrote {args.plot}")
+    return 0
+
+
+def _title(p):
+    parts = [p.get("shape", "")]
+    for k, v in p.items():
+        if k != "shape" and not isinstance(v, (dict, list)):
+            parts.append(f"{k}={v}")
+    return ", ".join(parts)[:90]
+
+
+def _illumination_from_args(args):
+    from . import illumination as il
+
+    given = [a for a in ("irradiance", "laser_power", "spectrum") if getattr(args, a) is not None]
+    if len(given) > 1:
+        raise NanoabsError("give only one of --irradiance, --laser-power, --spectrum")
+    if args.irradiance is not None:
+        src = il.monochromatic(args.irradiance)
+    elif args.laser_power is not None:
+        if args.beam_radius is None:
+            raise NanoabsError("--laser-power needs --beam-radius (1/e^2 intensity radius) [nm]")
+        src = il.laser(args.laser_power, args.beam_radius)
+    elif args.spectrum is not None:
+        text = args.spectrum
+        low = text.lower()
+        if low in ("am1.5g", "am1.5d", "am0"):
+            src = il.solar(low)
+        elif low.startswith("blackbody:"):
+            try:
+                T = float(low.split(":", 1)[1])
+            except ValueError:
+                raise NanoabsError(f"--spectrum {text!r}: expected blackbody:TEMPERATURE_K") from None
+            src = il.blackbody(T, total_irradiance_W_m2=args.total_irradiance)
+        elif low.startswith("flat:"):
+            try:
+                src = il.flat(float(low.split(":", 1)[1]))
+            except ValueError:
+                raise NanoabsError(f"--spectrum {text!r}: expected flat:W_PER_M2_PER_NM") from None
+        else:
+            src = il.from_csv(text)
+    else:
+        raise NanoabsError("give the illumination: --irradiance W/m^2, --laser-power W with --beam-radius nm, "
+                           "or --spectrum am1.5g|am1.5d|am0|blackbody:T|flat:VALUE|FILE.csv")
+    if args.band:
+        lo, hi = parse_range(args.band, "--band", need_step=False)
+        src = src.filtered(lo, hi)
+    return src
+
+
+def _cmd_hot_carriers(args) -> int:
+    from .detector import hot_carrier_estimate
+    from .export import check_writable
+    from .hotcarriers import SAFETY_CAUTION, schottky_barrier
+
+    if args.output:
+        check_writable(args.output, force=args.force)
+    if (args.barrier is None) == (args.schottky is None):
+        raise NanoabsError("give exactly one of --barrier EV or --schottky METAL/SEMICONDUCTOR (e.g. Au/Si)")
+    if args.schottky is not None:
+        barrier, barrier_src = schottky_barrier(args.schottky)
+    else:
+        barrier, barrier_src = args.barrier, "user value"
+    illum = _illumination_from_args(args)
+    particle, spec = _spectrum_from_args(args)
+    res = hot_carrier_estimate(spec, particle, illum, barrier_eV=barrier,
+                               fermi_energy_eV=args.fermi_energy,
+                               attenuation_length_nm=args.attenuation_length,
+                               yield_model=args.yield_model, momentum_factor=args.momentum_factor,
+                               contact_fraction=args.contact_fraction, density_per_um2=args.density,
+                               thermal_conductivity_W_mK=args.thermal_conductivity)
+    res.metadata["schottky"]["barrier_source"] = barrier_src
+    _print_warnings(res.metadata)
+    t = res.totals
+    print(f"barrier {float(barrier):.3g} eV ({barrier_src}); illumination: {illum.description}")
+    if "absorbed_power_W" in t:
+        print(f"band-integrated absorbed power per particle: {t['absorbed_power_W']:.4g} W; "
+              f"photocurrent per particle: {t['photocurrent_A']:.4g} A")
+    else:
+        print(f"peak absorbed power per particle: {t['peak_absorbed_power_W']:.4g} W at "
+              f"{t['peak_absorbed_power_wavelength_nm']:g} nm; peak photocurrent {t['peak_photocurrent_A']:.4g} A")
+    if "photocurrent_density_A_m2" in t:
+        print(f"array photocurrent density: {t['photocurrent_density_A_m2']:.4g} A/m^2")
+    if "peak_responsivity_A_W" in t:
+        print(f"responsivity at peak: {t['peak_responsivity_A_W']:.4g} A/W at "
+              f"{t['peak_responsivity_wavelength_nm']:g} nm")
+    if "temperature_rise_K" in t:
+        print(f"steady-state temperature rise of one particle: {t['temperature_rise_K']:.3g} K "
+              f"({t['temperature_rise_basis']})")
+    else:
+        print("temperature rise: not estimated (no thermal conductivity for this medium; "
+              "give --thermal-conductivity)")
+    print("caution: " + " ".join(SAFETY_CAUTION.split()))
+    if args.output:
+        res.write(args.output, force=args.force)
+        print(f"wrote {args.output}")
+    return 0
+
+
+def _add_particle_options(p):
+    g = p.add_argument_group("particle (lengths in nm)")
+    g.add_argument("--shape", required=True, choices=["sphere", "shell", "spheroid", "ellipsoid"])
+    g.add_argument("--material", help="particle material, e.g. Au or Au:mcpeak-2015 (material:dataset)")
+    g.add_argument("--radius", type=float, help="sphere radius [nm]")
+    g.add_argument("--core", help="shell: core material (default --material)")
+    g.add_argument("--core-radius", type=float, help="shell: core radius [nm]")
+    g.add_argument("--shell", action="append", help="shell material (repeat for more shells, core outward)")
+    g.add_argument("--thickness", type=float, action="append", help="shell thickness [nm] (one per --shell)")
+    g.add_argument("--length", type=float, help="spheroid: extent along the symmetry axis [nm]")
+    g.add_argument("--diameter", type=float, help="spheroid: diameter [nm]")
+    g.add_argument("--semi-axes", help="ellipsoid: A,B,C semi-axes along x,y,z [nm]")
+    g.add_argument("--polarization", help="spheroid: long|short|random; ellipsoid: x|y|z|random")
+    g.add_argument("--medium", default="water", help="medium name or refractive index (default water)")
+    g.add_argument("--wl", default="400:1000:2", help="wavelengths START:STOP:STEP [nm] (default 400:1000:2)")
+    g.add_argument("--method", default="auto", help="auto|mie|miepython|quasistatic|mlwa")
+    g.add_argument("--no-surface-damping", action="store_true", help="turn the size correction off")
+    g.add_argument("--damping-a", type=float, default=1.0, help="surface-scattering parameter A (default 1)")
+    p.add_argument("-o", "--output", help="write CSV (+ JSON sidecar) or .json")
+    p.add_argument("--force", action="store_true", help="overwrite existing output files")
+
+
+def _register_particle_commands(sub):
+    s = sub.add_parser("spectrum", help="absorption/scattering spectrum of one particle")
+    _add_particle_options(s)
+    s.add_argument("--plot", help="save a plot of the cross-sections (.png or .svg)")
+    s.set_defaults(func=_cmd_spectrum)
+
+    h = sub.add_parser("hot-carriers", help="absorbed power, hot-electron injection and photocurrent")
+    _add_particle_options(h)
+    g = h.add_argument_group("illumination")
+    g.add_argument("--irradiance", type=float, help="monochromatic irradiance [W/m^2] at every wavelength")
+    g.add_argument("--laser-power", type=float, help="laser power [W] (Gaussian beam, peak irradiance)")
+    g.add_argument("--beam-radius", type=float, help="1/e^2 intensity radius of the beam [nm]")
+    g.add_argument("--spectrum", help="am1.5g | am1.5d | am0 | blackbody:T_K | flat:W_m2_nm | FILE.csv")
+    g.add_argument("--total-irradiance", type=float, help="blackbody: scale to this total [W/m^2]")
+    g.add_argument("--band", help="keep only START:STOP [nm] of the illumination (band filter)")
+    d = h.add_argument_group("detector")
+    d.add_argument("--barrier", type=float, help="Schottky barrier height [eV]")
+    d.add_argument("--schottky", help="tabulated metal/semiconductor pair, e.g. Au/Si")
+    d.add_argument("--fermi-energy", type=float, help="Fermi energy of the metal [eV] (default tabulated)")
+    d.add_argument("--attenuation-length", type=float, help="hot-electron attenuation length [nm]")
+    d.add_argument("--yield-model", default="escape-cone", choices=["escape-cone", "fowler"])
+    d.add_argument("--momentum-factor", type=float, default=1.0, help="empirical emission multiplier")
+    d.add_argument("--contact-fraction", type=float, default=1.0, help="fraction of surface on the semiconductor")
+    d.add_argument("--density", type=float, help="particles per um^2 (adds array columns)")
+    d.add_argument("--thermal-conductivity", type=float, help="of the surroundings [W/(m K)]")
+    h.set_defaults(func=_cmd_hot_carriers)
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="nanoabs", description="Absorption of metal nanoparticles for hot-carrier "
                 "photodetectors: optical constants, spectra, absorbed power, injection estimates.")
@@ -157,6 +420,8 @@ def build_parser() -> argparse.ArgumentParser:
     m.add_argument("--save", help="fit: write the parameters to this JSON file")
     m.add_argument("--force", action="store_true", help="overwrite existing output files")
     m.set_defaults(func=_cmd_materials)
+
+    _register_particle_commands(sub)
 
     return p
 

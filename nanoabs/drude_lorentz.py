@@ -42,6 +42,7 @@ __all__ = [
     "rakic_1998",
     "energy_eV_from_wavelength_nm",
     "surface_damping_eV",
+    "surface_damping_correction",
 ]
 
 HC_EV_NM = _c.h * _c.c / _c.e * 1e9  # h c [eV nm] (CODATA via scipy.constants)
@@ -76,6 +77,20 @@ def surface_damping_eV(length_nm, fermi_velocity_m_s, *, A: float = 1.0):
     if not np.isfinite(A) or A < 0:
         raise NanoabsError(f"surface-damping parameter A = {A!r}: must be a finite number >= 0")
     return HBAR_EV_S * A * fermi_velocity_m_s / (L * 1e-9)
+
+
+def surface_damping_correction(model: "DrudeLorentz", energy_eV, extra_damping_eV):
+    """Δε = ω_p²/(ω² + iγω) − ω_p²/(ω² + i(γ + Δγ)ω), broadcasting Δγ [eV] against ħω [eV].
+
+    Added to the bulk permittivity, it replaces the Drude damping γ by γ + Δγ
+    (Kreibig & Vollmer 1995, Sec. 2.2.4). For Δγ ≥ 0 it raises ε″ wherever
+    ħω > γ + Δγ, and vanishes as Δγ → 0.
+    """
+    w = np.asarray(energy_eV, dtype=float)
+    wp2 = model.plasma_energy_eV**2
+    g = model.damping_eV
+    dg = np.asarray(extra_damping_eV, dtype=float)
+    return wp2 / (w * w + 1j * g * w) - wp2 / (w * w + 1j * (g + dg) * w)
 
 
 @dataclass(frozen=True)

@@ -144,8 +144,9 @@ class Material:
     def __post_init__(self):
         if self._wl is not None:
             x = np.log(self._wl)
-            self._n_interp = PchipInterpolator(x, self._n.real, extrapolate=False)
-            self._k_interp = PchipInterpolator(x, self._n.imag, extrapolate=False)
+            with np.errstate(divide="ignore", over="ignore", invalid="ignore"):  # flat runs (k = 0)
+                self._n_interp = PchipInterpolator(x, self._n.real, extrapolate=False)
+                self._k_interp = PchipInterpolator(x, self._n.imag, extrapolate=False)
 
     @property
     def label(self) -> str:
@@ -350,9 +351,10 @@ def material(name, source: str | None = None, *, extrapolate: bool = False) -> M
         return _constant(name)
     try:
         float(str(name))
-        return _constant(str(name))
     except ValueError:
         pass
+    else:
+        return _constant(str(name))
     key = _resolve_name(name)
     srcs = catalog()[key]
     if source is None:

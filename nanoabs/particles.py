@@ -1,0 +1,240 @@
+"""Particle geometries: sphere, layered sphere, ellipsoid (optionally with a confocal shell), spheroid.
+
+Sizes are in nm and may be numpy arrays (they broadcast against the wavelength
+grid in the solvers, e.g. radius of shape (P, 1) against W wavelengths).
+Materials are names, numbers (constant index) or :class:`~nanoabs.materials.Material`.
+
+Orientation convention for non-spherical particles: semi-axes (a, b, c) lie
+along x, y, z. Light is taken to travel along z (normal incidence on a
+substrate carrying the particle in the x–y plane) when the field is along x or
+y, and along x when the field is along z. A rod from :func:`spheroid` with
+length > diameter lies along x; a disc (length < diameter) has its symmetry axis
+along z. "long" and "short" pick the field along the long or a short axis.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+
+from ._errors import NanoabsError, check_choice, check_positive
+
+__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "MONOLAYER_NM"]
+
+#: Thinnest shell accepted [nm]: about one atomic monolayer of gold/silver
+#: (lattice constant 0.408 nm; (111) spacing 0.236 nm; common practice to call
+#: ~0.2-0.3 nm a monolayer). Thinner "shells" are outside any continuum model.
+MONOLAYER_NM = 0.2
+
+
+def _mat(value):
+    from .materials import Material, material
+
+    if isinstance(value, Material) or hasattr(value, "permittivity"):
+        return value
+    return material(value)
+
+
+@dataclass
+class Sphere:
+    """Homogeneous sphere of ``radius_nm`` [nm]."""
+
+    material: object
+    radius_nm: object
+
+    def __post_init__(self):
+        self.material = _mat(self.material)
+        self.radius_nm = check_positive("radius", self.radius_nm, unit="nm")
+
+    shape = "sphere"
+
+    @property
+    def layers(self):
+        """[(material, outer radius [nm])] from the centre outward."""
+        return [(self.material, self.radius_nm)]
+
+    @property
+    def outer_radius_nm(self):
+        return self.radius_nm
+
+    def volume_nm3(self):
+        return 4.0 / 3.0 * np.pi * self.radius_nm**3
+
+    def surface_nm2(self):
+        return 4.0 * np.pi * self.radius_nm**2
+
+    def describe(self) -> dict:
+        return {"shape": "sphere", "material": self.material.label,
+                "radius_nm": _plain(self.radius_nm)}
+
+
+@dataclass
+class LayeredSphere:
+    """Core of ``core_radius_nm`` [nm] with shells [(material, thickness_nm), ...] outward."""
+
+    core: object
+    core_radius_nm: object
+    shells: Sequence
+
+    def __post_init__(self):
+        self.core = _mat(self.core)
+        self.core_radius_nm = check_positive("core radius", self.core_radius_nm, unit="nm")
+        if len(self.shells) == 0:
+            raise NanoabsError("shells: give at least one (material, thickness_nm) pair")
+        out = []
+        for i, item in enumerate(self.shells, 1):
+            try:
+                mat, t = item
+            except (TypeError, ValueError):
+                raise NanoabsError(f"shell {i} = {item!r}: must be a (material, thickness_nm) pair") from None
+            t = check_positive(f"shell {i} thickness", t, unit="nm")
+            if np.any(t < MONOLAYER_NM):
+                raise NanoabsError(f"shell {i} thickness = {float(np.min(t)):g} nm: must be at least "
+                                   f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
+            out.append((_mat(mat), t))
+        self.shells = out
+
+    shape = "layered sphere"
+
+    @property
+    def layers(self):
+        r = self.core_radius_nm
+        out = [(self.core, r)]
+        for mat, t in self.shells:
+            r = r + t
+            out.append((mat, r))
+        return out
+
+    @property
+    def outer_radius_nm(self):
+        return self.layers[-1][1]
+
+    def volume_nm3(self):
+        return 4.0 / 3.0 * np.pi * self.outer_radius_nm**3
+
+    def surface_nm2(self):
+        return 4.0 * np.pi * self.outer_radius_nm**2
+
+    def describe(self) -> dict:
+        return {"shape": "layered sphere", "core": self.core.label,
+                "core_radius_nm": _plain(self.core_radius_nm),
+                "shells": [{"material": m.label, "thickness_nm": _plain(t)} for m, t in self.shells]}
+
+
+@dataclass
+class Ellipsoid:
+    """Ellipsoid with semi-axes (a, b, c) [nm] along x, y, z; optional confocal shell.
+
+    ``shell`` = (material, thickness_nm): a confocal coating whose thickness is
+    measured along the shortest semi-axis (the confocal family then fixes the
+    thickness along the others; they are thinner along longer axes).
+    """
+
+    material: object
+    semi_axes_nm: Sequence
+    shell: tuple | None = None
+    kind: str = "ellipsoid"  # "rod" / "disc" when built by spheroid()
+
+    def __post_init__(self):
+        self.material = _mat(self.material)
+        try:
+            axes = tuple(self.semi_axes_nm)
+        except TypeError:
+            raise NanoabsError(f"semi-axes = {self.semi_axes_nm!r}: give three lengths a,b,c in nm") from None
+        if len(axes) != 3:
+            raise NanoabsError(f"semi-axes = {self.semi_axes_nm!r}: give exactly three lengths a,b,c in nm")
+        self.semi_axes_nm = tuple(check_positive(f"semi-axis {n}", v, unit="nm") for n, v in zip("abc", axes))
+        if self.shell is not None:
+            try:
+                mat, t = self.shell
+            except (TypeError, ValueError):
+                raise NanoabsError(f"shell = {self.shell!r}: must be a (material, thickness_nm) pair") from None
+            t = check_positive("shell thickness", t, unit="nm")
+            if np.any(t < MONOLAYER_NM):
+                raise NanoabsError(f"shell thickness = {float(np.min(t)):g} nm: must be at least "
+                                   f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
+            self.shell = (_mat(mat), t)
+
+    shape = "ellipsoid"
+
+    def shell_axes_nm(self):
+        """Outer semi-axes of the confocal shell: a_i² + t_conf with t_conf from the thinnest axis."""
+        a = self.semi_axes_nm
+        t = self.shell[1]
+        amin = np.minimum(np.minimum(a[0], a[1]), a[2])
+        tconf = (amin + t) ** 2 - amin**2
+        return tuple(np.sqrt(ai**2 + tconf) for ai in a)
+
+    @property
+    def outer_axes_nm(self):
+        return self.shell_axes_nm() if self.shell is not None else self.semi_axes_nm
+
+    def volume_nm3(self):
+        a, b, c = self.outer_axes_nm
+        return 4.0 / 3.0 * np.pi * a * b * c
+
+    def core_volume_nm3(self):
+        a, b, c = self.semi_axes_nm
+        return 4.0 / 3.0 * np.pi * a * b * c
+
+    def surface_nm2(self, axes=None):
+        from .quasistatic import ellipsoid_surface_area
+
+        return ellipsoid_surface_area(*(axes or self.outer_axes_nm))
+
+    def projected_area_nm2(self, axis: str):
+        """Geometric cross-section for the field along ``axis`` (module docstring convention)."""
+        a, b, c = self.outer_axes_nm
+        return np.pi * a * b if axis in ("x", "y") else np.pi * b * c
+
+    def describe(self) -> dict:
+        d = {"shape": self.kind, "material": self.material.label,
+             "semi_axes_nm": [_plain(v) for v in self.semi_axes_nm]}
+        if self.shell is not None:
+            d["shell"] = {"material": self.shell[0].label, "thickness_nm": _plain(self.shell[1]),
+                          "outer_semi_axes_nm": [_plain(v) for v in self.shell_axes_nm()]}
+        return d
+
+
+def spheroid(material, length_nm, diameter_nm, *, shell=None) -> Ellipsoid:
+    """Rod (length > diameter, axis along x) or disc (length < diameter, axis along z).
+
+    Parameters
+    ----------
+    length_nm : float
+        Extent along the symmetry axis [nm].
+    diameter_nm : float
+        Extent across it [nm].
+    """
+    L = check_positive("length", length_nm, unit="nm")
+    D = check_positive("diameter", diameter_nm, unit="nm")
+    if np.ndim(L) == 0 and np.ndim(D) == 0 and float(L) < float(D):
+        return Ellipsoid(material, (D / 2, D / 2, L / 2), shell, kind="disc")
+    if np.ndim(L) or np.ndim(D):
+        if np.any(L < D) and np.any(L >= D):
+            raise NanoabsError("length/diameter arrays must be all rods (length >= diameter) or all discs")
+        if np.all(L < D):
+            return Ellipsoid(material, (D / 2, D / 2, L / 2), shell, kind="disc")
+    return Ellipsoid(material, (L / 2, D / 2, D / 2), shell, kind="rod")
+
+
+def resolve_polarization(particle, polarization: str) -> str:
+    """Map 'long'/'short'/'x'/'y'/'z'/'random' to an axis letter or 'random'."""
+    if isinstance(particle, (Sphere, LayeredSphere)):
+        return "x"
+    kind = getattr(particle, "kind", "ellipsoid")
+    if kind in ("rod", "disc"):
+        p = check_choice("polarization", polarization, ["long", "short", "random", "x", "y", "z"])
+        if p == "long":
+            return "x"
+        if p == "short":
+            return "y" if kind == "rod" else "z"
+        return p
+    return check_choice("polarization", polarization, ["x", "y", "z", "random"])
+
+
+def _plain(v):
+    a = np.asarray(v)
+    return float(a) if a.ndim == 0 else a.astype(float).ravel().tolist()

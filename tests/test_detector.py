@@ -1,0 +1,151 @@
+"""Hot-carrier pipeline: absorbed power, partition, transport, array quantities, export contract."""
+
+import numpy as np
+import pytest
+from scipy import constants as c
+
+import nanoabs
+from nanoabs import NanoabsError, Sphere, hot_carrier_estimate, illumination as il, spectrum, spheroid
+from nanoabs.cli import main
+from nanoabs.detector import ARRAY_COLUMNS, EXPORT_COLUMNS
+
+
+def _run(p, wl, src, **kw):
+    s = spectrum(p, wl, medium=kw.pop("medium", "water"))
+    return s, hot_carrier_estimate(s, p, src, **kw)
+
+
+def test_power_and_photon_rate_identities():
+    wl = np.arange(500, 1001, 10.0)
+    s, r = _run(Sphere("Au", 20), wl, il.monochromatic(1e4), barrier_eV=0.8)
+    f = r.frame
+    np.testing.assert_allclose(f.absorbed_power_W, s.sigma_abs_m2 * 1e4, rtol=1e-12)
+    # Gamma = P lambda / (h c), CODATA constants
+    np.testing.assert_allclose(f.absorbed_photon_rate_per_s, f.absorbed_power_W * wl * 1e-9 / (c.h * c.c),
+                               rtol=1e-12)
+    np.testing.assert_allclose(f.photocurrent_A, c.e * f.injected_electron_rate_per_s, rtol=1e-12)
+    np.testing.assert_allclose(f.injected_electron_rate_per_s,
+                               f.absorbed_photon_rate_per_s * f.emission_probability * f.transport_factor,
+                               rtol=1e-12)
+    assert list(f.columns[:9]) == EXPORT_COLUMNS
+
+
+def test_mechanism_partition_sums_to_total():
+    wl = np.arange(450, 1201, 10.0)
+    _, r = _run(Sphere("Au", 8), wl, il.solar("am1.5g"), barrier_eV=0.7)
+    f = r.frame
+    parts = f.power_interband_W + f.power_intraband_bulk_W + f.power_intraband_surface_W
+    np.testing.assert_allclose(parts, f.absorbed_power_W, rtol=1e-10)
+    # interband dominates below ~500 nm in gold, intraband in the infrared (common practice)
+    assert f.power_interband_W.iloc[0] > f.power_intraband_bulk_W.iloc[0]
+    assert f.power_interband_W.iloc[-1] < f.power_intraband_bulk_W.iloc[-1] + f.power_intraband_surface_W.iloc[-1]
+
+
+def test_emission_zero_below_barrier_and_transport_limits():
+    wl = np.arange(600, 1921, 20.0)
+    p = Sphere("Au", 15)
+    s = spectrum(p, wl, medium="water")
+    r = hot_carrier_estimate(s, p, il.monochromatic(1e3), barrier_eV=0.9)
+    hv = c.h * c.c / (wl * 1e-9) / c.e
+    assert np.all(r.frame.emission_probability[hv <= 0.9] == 0)
+    # transport -> 1 for very long attenuation length, smaller for short ones
+    long = hot_carrier_estimate(s, p, il.monochromatic(1e3), barrier_eV=0.9, attenuation_length_nm=1e7)
+    short = hot_carrier_estimate(s, p, il.monochromatic(1e3), barrier_eV=0.9, attenuation_length_nm=2.0)
+    np.testing.assert_allclose(long.frame.transport_factor, 1.0, rtol=1e-5)
+    assert np.all(short.frame.transport_factor < 0.6)
+
+
+def test_transport_small_sphere_matches_uniform_closed_form():
+    # Small sphere: absorption profile uniform (quasi-static), so the profile-weighted transport equals the
+    # closed-form volume average of exp(-(R-r)/l) (nanoabs.hotcarriers.transport_factor_uniform).
+    from nanoabs.hotcarriers import transport_factor_uniform
+
+    p = Sphere("Au", 3.0)
+    s = spectrum(p, [800.0], medium="water")
+    r = hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=0.5, attenuation_length_nm=2.0)
+    assert r.frame.transport_factor[0] == pytest.approx(transport_factor_uniform(3.0, 2.0), rel=2e-3)
+
+
+def test_array_quantities_and_warning():
+    wl = np.arange(400, 1601, 10.0)
+    rod = spheroid("Au", 80, 20)
+    s = spectrum(rod, wl, medium=1.45, polarization="long")
+    r = hot_carrier_estimate(s, rod, il.solar("am1.5g"), barrier_eV=0.8, density_per_um2=20)
+    f = r.frame
+    assert list(f.columns[9:13]) == ARRAY_COLUMNS
+    np.testing.assert_allclose(f.absorptance, 20e12 * f.sigma_abs_m2, rtol=1e-12)
+    np.testing.assert_allclose(f.photocurrent_density_A_m2, 20e12 * f.photocurrent_A, rtol=1e-12)
+    ok = f.irradiance_W_m2_nm > 0
+    np.testing.assert_allclose(f.external_quantum_efficiency[ok],
+                               f.responsivity_A_W[ok] * c.h * c.c / (c.e * wl[ok] * 1e-9), rtol=1e-10)
+    assert any("coupling" in w for w in r.metadata["warnings"])
+    assert r.totals["photocurrent_A"] == pytest.approx(np.trapezoid(f.photocurrent_A, wl), rel=1e-12)
+
+
+def test_temperature_rise_formula():
+    # Govorov & Richardson (2007): Delta T = P/(4 pi kappa R), kappa(water) = 0.6 W/(m K).
+    p = Sphere("Au", 20)
+    s, r = _run(p, np.arange(500, 560, 5.0), il.monochromatic(1e8), barrier_eV=0.8)
+    P = r.totals["peak_absorbed_power_W"]
+    assert r.totals["temperature_rise_K"] == pytest.approx(P / (4 * np.pi * 0.6 * 20e-9), rel=1e-9)
+    assert "laser" in r.metadata["safety_caution"].lower()
+
+
+def test_bad_detector_inputs():
+    p = Sphere("Au", 20)
+    s = spectrum(p, np.arange(500, 1001, 10.0))
+    with pytest.raises(NanoabsError, match="barrier"):
+        hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=-0.1)
+    with pytest.raises(NanoabsError, match="largest photon energy"):
+        hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=3.0)
+    with pytest.raises(NanoabsError, match="contact fraction"):
+        hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=0.8, contact_fraction=2)
+    q = Sphere("SiO2", 20)
+    with pytest.raises(NanoabsError, match="no metal"):
+        hot_carrier_estimate(spectrum(q, [600.0]), q, il.monochromatic(1.0), barrier_eV=0.8)
+
+
+CLI = [
+    "hot-carriers --shape sphere --material Au --radius 20 --medium water --barrier 0.8 --irradiance 1e4 --wl 500:1500:5 -o det.csv",
+    "hot-carriers --shape spheroid --material Au --length 80 --diameter 20 --medium 1.45 --polarization long --schottky Au/Si --spectrum am1.5g --density 20 --wl 400:1600:5 -o rods.csv",
+]
+
+
+@pytest.mark.parametrize("form", CLI)
+def test_cli_forms_and_round_trip(form, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert main(form.split()) == 0
+    out = capsys.readouterr().out
+    assert "caution" in out and ("photocurrent" in out)
+    name = form.split()[-1]
+    df, meta = nanoabs.read_export(name)
+    assert list(df.columns[:9]) == EXPORT_COLUMNS
+    md = meta["metadata"]
+    for key in ("illumination", "schottky", "methods", "materials", "totals", "package_version"):
+        assert key in md
+    units = {c["name"]: c["unit"] for c in meta["columns"]}
+    assert units["sigma_abs_m2"] == "m^2" and units["wavelength_nm"] == "nm"
+    # never overwrite without --force; nothing changes
+    before = (tmp_path / name).read_bytes()
+    assert main(form.split()) == 2
+    assert (tmp_path / name).read_bytes() == before
+    assert main(form.split() + ["--force"]) == 0
+
+
+@pytest.mark.parametrize("extra,needle", [
+    ("--barrier 0.8", "illumination"),
+    ("--barrier 0.8 --irradiance -5", "irradiance"),
+    ("--irradiance 1e4", "barrier"),
+    ("--schottky Au/Unob --irradiance 1e4", "Au/Si"),
+    ("--barrier 0.8 --laser-power 0.01", "beam-radius"),
+    ("--barrier 0.8 --spectrum blackbody:hot", "blackbody"),
+    ("--barrier 0.8 --spectrum missing.csv", "missing.csv"),
+    ("--barrier 0.8 --irradiance 1e4 --density -1", "density"),
+])
+def test_cli_errors(extra, needle, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    base = "hot-carriers --shape sphere --material Au --radius 20 --wl 500:1500:5 -o o.csv "
+    code = main((base + extra).split())
+    err = capsys.readouterr().err
+    assert code in (2, 3) and needle in err and err.count("\n") == 1, err
+    assert not (tmp_path / "o.csv").exists()
