@@ -400,6 +400,37 @@ def _register_particle_commands(sub):
     h.set_defaults(func=_cmd_hot_carriers)
 
 
+def _cmd_run(args) -> int:
+    from .study import run_study
+
+    summary = run_study(args.study, args.output, force=args.force, progress=not args.quiet)
+    print(f"wrote report {summary.parent}/ (summary: {summary})")
+    return 0
+
+
+def _cmd_demo(args) -> int:
+    from .study import demo_study_path, run_study
+
+    print(f"running the demo study {demo_study_path().name} (an invented lab and device)")
+    summary = run_study(demo_study_path(), args.output, force=args.force, progress=not args.quiet)
+    print(f"wrote report {summary.parent}/ (summary: {summary})")
+    return 0
+
+
+def _register_study_commands(sub):
+    r = sub.add_parser("run", help="run a study file (TOML) and write a report folder")
+    r.add_argument("study", help="study file (.toml); see README 'Study files'")
+    r.add_argument("-o", "--output", required=True, help="report folder")
+    r.add_argument("--force", action="store_true", help="write into an existing non-empty folder")
+    r.add_argument("--quiet", action="store_true", help="no progress bars")
+    r.set_defaults(func=_cmd_run)
+    d = sub.add_parser("demo", help="run the shipped demo study (an invented sub-bandgap Si detector)")
+    d.add_argument("-o", "--output", default="nanoabs-demo", help="report folder (default nanoabs-demo)")
+    d.add_argument("--force", action="store_true", help="write into an existing non-empty folder")
+    d.add_argument("--quiet", action="store_true", help="no progress bars")
+    d.set_defaults(func=_cmd_demo)
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="nanoabs", description="Absorption of metal nanoparticles for hot-carrier "
                 "photodetectors: optical constants, spectra, absorbed power, injection estimates.")
@@ -422,6 +453,7 @@ def build_parser() -> argparse.ArgumentParser:
     m.set_defaults(func=_cmd_materials)
 
     _register_particle_commands(sub)
+    _register_study_commands(sub)
 
     return p
 

@@ -335,7 +335,8 @@ def material(name, source: str | None = None, *, extrapolate: bool = False) -> M
     ----------
     name : str or float
         A material (``"Au"``, ``"SiO2"``, ``"H2O"``/``"water"``, …; see
-        ``nanoabs materials``) or a refractive index (``1.33``, ``"1.5"``).
+        ``nanoabs materials``), ``"material:dataset"`` (``"Au:mcpeak-2015"``), or
+        a refractive index (``1.33``, ``"1.5"``).
     source : str, optional
         Dataset key (e.g. ``"mcpeak-2015"``); default: the dataset marked default.
     extrapolate : bool, keyword-only
@@ -355,6 +356,8 @@ def material(name, source: str | None = None, *, extrapolate: bool = False) -> M
         pass
     else:
         return _constant(str(name))
+    if source is None and ":" in str(name):
+        name, source = str(name).split(":", 1)
     key = _resolve_name(name)
     srcs = catalog()[key]
     if source is None:

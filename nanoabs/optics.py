@@ -390,7 +390,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
         core_axes = tuple(np.asarray(a, dtype=float) for a in particle.semi_axes_nm)
         from .quasistatic import ellipsoid_surface_area
 
-        core_L = 4.0 * (4.0 / 3.0 * np.pi * np.prod(core_axes, axis=0)) / ellipsoid_surface_area(*core_axes)
+        core_L = 4.0 * (4.0 / 3.0 * np.pi * (core_axes[0] * core_axes[1] * core_axes[2])) / ellipsoid_surface_area(*core_axes)
         eps_core = _eps_with_damping(particle.material, wl, core_L, surface_damping, damping_A, notes,
                                      "core" if particle.shell else particle.kind)
         eps_shell = shell_axes = None
@@ -407,7 +407,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
                                        method == "mlwa")
         outer = shell_axes or core_axes
         _check_dipole_validity(outer, wl, n_med, method, notes)
-        vol = 4.0 / 3.0 * np.pi * np.prod(outer, axis=0)
+        vol = 4.0 / 3.0 * np.pi * (outer[0] * outer[1] * outer[2])
         if pol == "random":
             geo = ellipsoid_surface_area(*outer) / 4.0 * np.ones_like(wl)
             ref_area = "surface area / 4 (random orientation, Cauchy's theorem)"
@@ -416,7 +416,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
             ref_area = ("projected area pi a b (light along z)" if pol in ("x", "y")
                         else "projected area pi b c (light along x)")
         eqv = np.pi * (3 * vol / (4 * np.pi)) ** (2.0 / 3.0) * np.ones_like(wl)
-        core_vol = 4.0 / 3.0 * np.pi * np.prod(core_axes, axis=0)
+        core_vol = 4.0 / 3.0 * np.pi * (core_axes[0] * core_axes[1] * core_axes[2])
         metal_vol = (core_vol if particle.material.is_metal else 0.0)
         if particle.shell is not None and particle.shell[0].is_metal:
             metal_vol = metal_vol + (vol - core_vol)

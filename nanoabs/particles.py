@@ -85,10 +85,9 @@ class LayeredSphere:
             raise NanoabsError("shells: give at least one (material, thickness_nm) pair")
         out = []
         for i, item in enumerate(self.shells, 1):
-            try:
-                mat, t = item
-            except (TypeError, ValueError):
-                raise NanoabsError(f"shell {i} = {item!r}: must be a (material, thickness_nm) pair") from None
+            if isinstance(item, str) or not hasattr(item, "__len__") or len(item) != 2:
+                raise NanoabsError(f"shell {i} = {item!r}: must be a (material, thickness_nm) pair")
+            mat, t = item
             t = check_positive(f"shell {i} thickness", t, unit="nm")
             if np.any(t < MONOLAYER_NM):
                 raise NanoabsError(f"shell {i} thickness = {float(np.min(t)):g} nm: must be at least "
@@ -147,10 +146,9 @@ class Ellipsoid:
             raise NanoabsError(f"semi-axes = {self.semi_axes_nm!r}: give exactly three lengths a,b,c in nm")
         self.semi_axes_nm = tuple(check_positive(f"semi-axis {n}", v, unit="nm") for n, v in zip("abc", axes))
         if self.shell is not None:
-            try:
-                mat, t = self.shell
-            except (TypeError, ValueError):
-                raise NanoabsError(f"shell = {self.shell!r}: must be a (material, thickness_nm) pair") from None
+            if isinstance(self.shell, str) or not hasattr(self.shell, "__len__") or len(self.shell) != 2:
+                raise NanoabsError(f"shell = {self.shell!r}: must be a (material, thickness_nm) pair")
+            mat, t = self.shell
             t = check_positive("shell thickness", t, unit="nm")
             if np.any(t < MONOLAYER_NM):
                 raise NanoabsError(f"shell thickness = {float(np.min(t)):g} nm: must be at least "

@@ -7,10 +7,10 @@ sizes of shape ``(1, n_size)``) and keeps the broadcast shape.
 Conventions
 -----------
 * Time dependence ``exp(-i omega t)``: a passive material has ``Im(eps) >= 0``.
-* ``eps`` arguments are complex permittivities (absolute or relative to vacuum,
-  the same for particle and medium); ``eps_medium`` may be real or complex
-  (``Re > 0``, ``Im >= 0``); cross-sections assume a lossless medium and a real
-  wavenumber ``k``.
+* ``eps`` arguments are the complex permittivities of the materials themselves
+  (relative to vacuum, dimensionless), not ratios ``eps / eps_medium``;
+  ``eps_medium`` may be real or complex (``Re > 0``, ``Im >= 0``), but the
+  cross-sections assume a lossless medium and a real wavenumber ``k``.
 * Lengths are in any one unit (callers pass nm); cross-sections come out in that
   unit squared; ``k = 2 pi n_medium / lambda`` [1/length] is the wavenumber in
   the medium.
@@ -131,7 +131,7 @@ def _axis_index(axis) -> int:
     return _AXES.index(check_choice("axis", axis, _AXES))
 
 
-def _static_ratio(num, den, eps, what: str):
+def _static_ratio(num, den, eps, what: str, name: str = "eps"):
     """``num / den`` for a static polarisability; raise at an exact (loss-free) pole."""
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         out = num / den
@@ -139,7 +139,7 @@ def _static_ratio(num, den, eps, what: str):
     if np.any(bad):
         e = np.broadcast_to(eps, out.shape)[bad].flat[0]
         raise NanoabsError(
-            f"eps = {_fmt_c(e)}: the static {what} polarisability is singular here "
+            f"{name} = {_fmt_c(e)}: the static {what} polarisability is singular here "
             "(loss-free material at the dipole resonance); add loss or use the MLWA-corrected polarisability"
         )
     return out
@@ -232,7 +232,7 @@ def spheroid_depolarization(aspect_ratio):
 
     References
     ----------
-    B&H sec. 5.3, closed forms following eq. 5.33 (prolate and oblate spheroids).
+    B&H, closed forms following eq. 5.33 (prolate and oblate spheroids).
     """
     r = check_positive("aspect_ratio", aspect_ratio)
     prolate = r >= 1.0
@@ -381,7 +381,7 @@ def confocal_shell_axes(core_axes, *, thickness=None, axis="x", t_conf=None):
 
     References
     ----------
-    B&H sec. 5.4 (confocal coated ellipsoid, outer surface from the confocal family).
+    B&H text at eq. 5.35 (confocal coated ellipsoid, outer surface from the confocal family).
     """
     core = _check_axes("core_axes", core_axes)
     if (thickness is None) == (t_conf is None):
@@ -419,7 +419,7 @@ def confocal_depolarization_factors(core_axes, shell_axes, *, rtol=1e-6):
 
     References
     ----------
-    B&H sec. 5.4 and eq. 5.33.
+    B&H eqs. 5.33 and 5.35.
     """
     core = _check_axes("core_axes", core_axes)
     shell = _check_axes("shell_axes", shell_axes)
@@ -573,7 +573,7 @@ def polarizability_coated_sphere(eps_core, eps_shell, eps_medium, core_radius, o
     B&H eq. 5.36.
     """
     num, den, e = _coated_sphere_nd(eps_core, eps_shell, eps_medium, core_radius, outer_radius)
-    return _static_ratio(num, den, e, "coated-sphere")
+    return _static_ratio(num, den, e, "coated-sphere", "eps_core")
 
 
 def polarizability_from_depolarization(eps, eps_medium, volume, depolarization):
@@ -666,7 +666,7 @@ def polarizability_coated_ellipsoid(eps_core, eps_shell, eps_medium, core_axes, 
     """
     i = _axis_index(axis)
     num, den, e = _coated_ellipsoid_nd(eps_core, eps_shell, eps_medium, core_axes, shell_axes, i)
-    return _static_ratio(num, den, e, "coated-ellipsoid")
+    return _static_ratio(num, den, e, "coated-ellipsoid", "eps_core")
 
 
 # --------------------------------------------------------------------------- #
@@ -888,7 +888,7 @@ def size_parameter(semi_axes, wavelength, *, n_medium=1.0):
 
     References
     ----------
-    B&H sec. 4.4 (size parameter ``x = k a``).
+    B&H ch. 4 (size parameter ``x = k a``).
     """
     axes = semi_axes if isinstance(semi_axes, tuple) else (semi_axes,)
     a_max = check_positive("semi_axes[0]", axes[0])
@@ -957,7 +957,7 @@ def cross_sections(alpha, k, *, corrected=False):
 
     References
     ----------
-    B&H sec. 5.2 (dipole cross-sections) and sec. 3.4 (optical theorem).
+    B&H sec. 5.2 (dipole cross-sections) and ch. 3 (optical theorem; from memory).
     """
     alpha = _check_eps("alpha", alpha)
     k = check_positive("k", k)
@@ -995,6 +995,6 @@ def orientation_average(sections_x, sections_y, sections_z):
 
     References
     ----------
-    B&H sec. 5.3 (randomly oriented ellipsoids; from memory); common practice.
+    B&H ch. 5 (ellipsoids; section number from memory: 5.3); common practice.
     """
     return tuple((x + y + z) / 3.0 for x, y, z in zip(sections_x, sections_y, sections_z))

@@ -27,7 +27,7 @@ wavenumber = st.floats(1e-3, 2e-2)  # [1/nm]: lambda/n between ~300 nm and 6 um
 
 
 def drude(energy_eV, *, eps_inf, wp_eV, gamma_eV):
-    """Drude permittivity eps_inf - wp^2/(w^2 + i g w), exp(-i w t) (B&H sec. 9.1)."""
+    """Drude permittivity eps_inf - wp^2/(w^2 + i g w), exp(-i w t) (B&H ch. 9)."""
     w = np.asarray(energy_eV, dtype=float)
     return eps_inf - wp_eV**2 / (w**2 + 1j * gamma_eV * w)
 
@@ -44,7 +44,7 @@ def mie_q_abs(eps, n_medium, x):
 # ---------------------------------------------------------------------------
 
 def test_sphere_depolarization_is_one_third():
-    # Source: B&H sec. 5.3, L = 1/3 for a sphere. Tolerance 1e-12 absolute.
+    # Source: B&H eq. 5.33, L = 1/3 for a sphere. Tolerance 1e-12 absolute.
     L = q.depolarization_factors(7.0, 7.0, 7.0)
     assert np.allclose(L, 1.0 / 3.0, rtol=0, atol=1e-12)
     assert q.spheroid_depolarization(1.0) == pytest.approx(1.0 / 3.0, abs=1e-15)
@@ -53,11 +53,11 @@ def test_sphere_depolarization_is_one_third():
 @settings(max_examples=200, deadline=None)
 @given(axis_len, axis_len, axis_len)
 def test_depolarization_factors_sum_to_one(a, b, c):
-    # Source: B&H sec. 5.3, L1 + L2 + L3 = 1 and 0 <= L_i <= 1. Tolerance 1e-12.
+    # Source: B&H, sum rule stated with eq. 5.33: L1 + L2 + L3 = 1, 0 <= L_i <= 1. Tolerance 1e-12.
     L = np.array(q.depolarization_factors(a, b, c))
     assert L.sum() == pytest.approx(1.0, abs=1e-12)
     assert np.all((L >= 0) & (L <= 1))
-    # the longest axis has the smallest factor (B&H sec. 5.3)
+    # the longest axis has the smallest factor (monotonic in a_i, from eq. 5.33)
     assert np.argmin(L) == np.argmax([a, b, c]) or np.ptp([a, b, c]) < 1e-9
 
 
@@ -281,7 +281,7 @@ def test_coated_sphere_is_spherical_limit_of_coated_ellipsoid():
 
 
 def test_confocal_shell_axes_keep_a2_squared_minus_a1_squared():
-    # Source: confocal family a2_i^2 = a1_i^2 + t (B&H sec. 5.4). Tolerance 1e-12.
+    # Source: confocal family a2_i^2 = a1_i^2 + t (B&H text at eq. 5.35). Tolerance 1e-12.
     core = (5.0, 2.0, 1.0)
     shell = q.confocal_shell_axes(core, thickness=1.0, axis="x")
     assert shell[0] == pytest.approx(6.0, rel=1e-15)
@@ -593,7 +593,7 @@ def test_static_cross_sections_by_hand():
 
 def test_orientation_average_matches_direction_quadrature():
     # Source: for a diagonal polarisability tensor A, field direction e:
-    # ext = k Im(e.A.e), sca = k^4 |A e|^2/(6 pi) (B&H sec. 5.3); averaged over e on
+    # ext = k Im(e.A.e), sca = k^4 |A e|^2/(6 pi) (B&H eq. 5.32, principal axes); averaged over e on
     # a 2-D Gauss-Legendre x trapezoid grid on the sphere (exact for quadratic forms).
     # Tolerance 1e-12.
     a, b, c, k = 12.0, 4.0, 6.0, 0.011
