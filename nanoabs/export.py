@@ -245,16 +245,16 @@ def _file_mode() -> int:
     return 0o666 & ~mask
 
 
-def _write_temp(target: Path, write) -> Path:
+def _write_temp(target: Path, write, *, binary: bool = False) -> Path:
     """Write through ``write(handle)`` into a temporary file beside ``target``."""
+    text = {} if binary else {"encoding": "utf-8", "newline": ""}
     tmp = tempfile.NamedTemporaryFile(
-        mode="w",
-        encoding="utf-8",
-        newline="",
+        mode="wb" if binary else "w",
         delete=False,
         dir=target.parent,
         prefix=f".{target.name}.",
         suffix=".tmp",
+        **text,
     )
     try:
         with tmp:
@@ -540,17 +540,10 @@ def write_file_atomic(path, write, *, force: bool = False, binary: bool = False)
         raise NanoabsError(f"output file {str(target)!r} is a directory: choose a file name")
     if target.exists() and not force:
         raise NanoabsError(f"output file {str(target)!r} exists: pass force=True (CLI: --force) to overwrite")
-    tmp = tempfile.NamedTemporaryFile(mode="wb" if binary else "w", delete=False, dir=target.parent,
-                                      prefix=f".{target.name}.", suffix=".tmp",
-                                      **({} if binary else {"encoding": "utf-8", "newline": ""}))
+    tmp = _write_temp(target, write, binary=binary)
     try:
-        with tmp:
-            write(tmp)
-            tmp.flush()
-            os.fsync(tmp.fileno())
-        os.chmod(tmp.name, _file_mode())
-        os.replace(tmp.name, target)
+        os.replace(tmp, target)
     except BaseException:
-        Path(tmp.name).unlink(missing_ok=True)
+        tmp.unlink(missing_ok=True)
         raise
     return target

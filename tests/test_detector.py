@@ -149,3 +149,32 @@ def test_cli_errors(extra, needle, tmp_path, monkeypatch, capsys):
     err = capsys.readouterr().err
     assert code in (2, 3) and needle in err and err.count("\n") == 1, err
     assert not (tmp_path / "o.csv").exists()
+
+
+@pytest.mark.parametrize("particle", [Sphere("Au", 40.0), nanoabs.LayeredSphere("SiO2", 40.0, [("Au", 8.0)])],
+                         ids=["sphere", "shell"])
+def test_absorption_profile_integrates_to_sigma_times_irradiance(particle):
+    # Poynting's theorem: the volume integral of the absorbed power density equals sigma_abs * I0
+    # (to 1e-6 relative, Gauss-Legendre quadrature per layer).
+    from nanoabs.detector import absorbed_power_density
+
+    wl = np.array([550.0, 700.0, 900.0])
+    s = spectrum(particle, wl, medium="water")
+    total = np.zeros(wl.size)
+    r_edges = [0.0] + [float(r) for _, r in particle.layers]
+    xg, wg = np.polynomial.legendre.leggauss(200)
+    for a, b in zip(r_edges[:-1], r_edges[1:]):
+        r = 0.5 * (b - a) * xg + 0.5 * (b + a)
+        p = absorbed_power_density(s, particle, r, 1e3)
+        total += 0.5 * (b - a) * np.sum(wg * p * 4 * np.pi * (r * 1e-9) ** 2, axis=1) * 1e-9
+    np.testing.assert_allclose(total, s.sigma_abs_m2 * 1e3, rtol=1e-6)
+
+
+def test_absorption_profile_uniform_in_small_sphere():
+    # Quasi-static limit: uniform internal field, so the profile is flat (relative variation < 1e-3).
+    from nanoabs.detector import absorbed_power_density
+
+    p = Sphere("Au", 1.0)
+    s = spectrum(p, [600.0], medium="water", surface_damping=False)
+    prof = absorbed_power_density(s, p, np.linspace(0.05, 1.0, 20))[0]
+    assert np.ptp(prof) / prof.mean() < 1e-3
