@@ -313,9 +313,10 @@ def main(argv=None):
     n_c = s_c.sigma_abs_m2.size
 
     # -- report -------------------------------------------------------------------------------
+    scaled = f" (x{scale:g} scaled)" if stride > 1 else ""
     rows = [
-        ("baseline: miepython " + base_form.replace("_", "-") + " loop", t_base, n_a),
-        ("  other form: " + ("per-point" if base_form == "array" else "array") + " loop",
+        ("baseline: miepython " + base_form.replace("_", "-") + " loop" + scaled, t_base, n_a),
+        ("  other form: " + ("per-point" if base_form == "array" else "array") + " loop" + scaled,
          forms["per_point" if base_form == "array" else "array"], n_a),
         ("(a) Au sphere, spectrum()", t_a, n_a),
         ("(a) Au sphere, mie_layered() only", t_a_solver, n_a),

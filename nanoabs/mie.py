@@ -253,6 +253,8 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
     Q = [None] + [_q0(z1[l], z2[l]) for l in range(1, L)]
     Pr = [None] + [_psi_ratio0(z1[l], z2[l]) for l in range(1, L)]
     r12 = [None] + [(x[l - 1] / x[l]) ** 2 for l in range(1, L)]
+    inv_z1 = [None] + [1.0 / z1[l] for l in range(1, L)]
+    inv_z2 = [None] + [1.0 / z2[l] for l in range(1, L)]
 
     out = {}
     if want_coeffs:
@@ -288,15 +290,17 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
         for l in range(1, L):
             za, zb = z1[l], z2[l]
             d1a, d1b = D1z1[l][n], D1z2[l][n]
+            nza, nzb = n * inv_z1[l], n * inv_z2[l]  # n/z without a complex division
             # Q_n from Q_{n-1}; uses D3_{n-1} (Yang 2003, eq. 19)
             Q[l] = Q[l] * r12[l] * ((zb * d1b + n) * (n - zb * D3z2[l])) / (
                 (za * d1a + n) * (n - za * D3z1[l])
             )
-            pz1[l] = pz1[l] * (n / za - D3z1[l]) / (d1a + n / za)
-            pz2[l] = pz2[l] * (n / zb - D3z2[l]) / (d1b + n / zb)
+            pz1[l] = pz1[l] * (nza - D3z1[l]) / (d1a + nza)
+            pz2[l] = pz2[l] * (nzb - D3z2[l]) / (d1b + nzb)
             D3z1[l] = d1a + 1j / pz1[l]
             D3z2[l] = d1b + 1j / pz2[l]
-            Pr[l] = Pr[l] * (d1b + n / zb) / (d1a + n / za)  # psi_n(z1)/psi_n(z2)
+            if want_profile:
+                Pr[l] = Pr[l] * (d1b + nzb) / (d1a + nza)  # psi_n(z1)/psi_n(z2)
             ml, mp = m[l], m[l - 1]
             # interface recursion for the TM (a) and TE (b) modes (Yang 2003, eqs. 12-15)
             G1a = ml * Ha - mp * d1a

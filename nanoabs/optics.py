@@ -289,8 +289,20 @@ def _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, axi
     k = 2 * np.pi * n_med / wl
     eps_m = n_med**2
     axes = ["x", "y", "z"] if axis == "random" else [axis]
-    out = []
+    if axis == "random":
+        # spheroids: two equal semi-axes give equal cross-sections; compute each distinct axis once
+        same = [np.array_equal(*np.broadcast_arrays(core_axes[i], core_axes[j])) and
+                (shell_axes is None or np.array_equal(*np.broadcast_arrays(shell_axes[i], shell_axes[j])))
+                for i, j in ((1, 2), (0, 1))]
+        if same[0]:
+            axes = ["x", "y", "y"]
+        elif same[1]:
+            axes = ["x", "x", "z"]
+    out, done = [], {}
     for ax in axes:
+        if ax in done:
+            out.append(done[ax])
+            continue
         if eps_shell is None:
             alpha = (qs.polarizability_ellipsoid_mlwa(eps_core, eps_m, *core_axes, k, axis=ax) if corrected
                      else qs.polarizability_ellipsoid(eps_core, eps_m, *core_axes, axis=ax))
@@ -299,7 +311,8 @@ def _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, axi
                                                              shell_axes, k, axis=ax) if corrected
                      else qs.polarizability_coated_ellipsoid(eps_core, eps_shell, eps_m, core_axes,
                                                              shell_axes, axis=ax))
-        out.append(qs.cross_sections(alpha, k, corrected=corrected))
+        done[ax] = qs.cross_sections(alpha, k, corrected=corrected)
+        out.append(done[ax])
     if axis == "random":
         return qs.orientation_average(*out)
     return out[0]

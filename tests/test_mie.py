@@ -227,7 +227,10 @@ def test_energy_conservation_property(layers, x_outer):
     qext_ot = 2 / x_outer**2 * np.sum((2 * k + 1) * (a + b).real)
     qsca_c = 2 / x_outer**2 * np.sum((2 * k + 1) * (abs(a) ** 2 + abs(b) ** 2))
     assert all(np.isfinite(v) for v in r)
-    assert abs(qext_ot - (r.qsca + r.qabs)) <= 1e-9 * qext_ot
+    # Re(a_n) of the reference sum is rounded at ~eps |a_n|, which dominates when |a_n| << 1
+    # (nearly index-matched or tiny lossless spheres, where Re a_n = |a_n|^2): allow that floor.
+    floor = 1e-15 * 2 / x_outer**2 * np.sum((2 * k + 1) * (abs(a) + abs(b)))
+    assert abs(qext_ot - (r.qsca + r.qabs)) <= 1e-9 * qext_ot + floor
     assert abs(qsca_c - r.qsca) <= 1e-12 * qext_ot
     assert qext_ot - qsca_c >= -1e-9 * qext_ot
     assert r.qabs >= 0
