@@ -14,7 +14,7 @@ from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid  # noqa: E402
 from .optics import Spectrum, spectrum  # noqa: E402
 from .detector import HotCarrierResult, hot_carrier_estimate  # noqa: E402
 from .export import read_export, write_export  # noqa: E402
-from . import illumination  # noqa: E402
+from . import design, illumination  # noqa: E402
 
 __all__ = [
     "__version__",
@@ -37,4 +37,5 @@ __all__ = [
     "read_export",
     "write_export",
     "illumination",
+    "design",
 ]

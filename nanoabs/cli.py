@@ -262,6 +262,27 @@ def _title(p):
     return ", ".join(parts)[:90]
 
 
+def _spectrum_source(text, total_irradiance=None):
+    """--spectrum am1.5g|am1.5d|am0|blackbody:T|flat:VALUE|FILE.csv -> Illumination."""
+    from . import illumination as il
+
+    low = text.lower()
+    if low in ("am1.5g", "am1.5d", "am0"):
+        return il.solar(low)
+    if low.startswith("blackbody:"):
+        try:
+            T = float(low.split(":", 1)[1])
+        except ValueError:
+            raise NanoabsError(f"--spectrum {text!r}: expected blackbody:TEMPERATURE_K") from None
+        return il.blackbody(T, total_irradiance_W_m2=total_irradiance)
+    if low.startswith("flat:"):
+        try:
+            return il.flat(float(low.split(":", 1)[1]))
+        except ValueError:
+            raise NanoabsError(f"--spectrum {text!r}: expected flat:W_PER_M2_PER_NM") from None
+    return il.from_csv(text)
+
+
 def _illumination_from_args(args):
     from . import illumination as il
 
@@ -275,23 +296,7 @@ def _illumination_from_args(args):
             raise NanoabsError("--laser-power needs --beam-radius (1/e^2 intensity radius) [nm]")
         src = il.laser(args.laser_power, args.beam_radius)
     elif args.spectrum is not None:
-        text = args.spectrum
-        low = text.lower()
-        if low in ("am1.5g", "am1.5d", "am0"):
-            src = il.solar(low)
-        elif low.startswith("blackbody:"):
-            try:
-                T = float(low.split(":", 1)[1])
-            except ValueError:
-                raise NanoabsError(f"--spectrum {text!r}: expected blackbody:TEMPERATURE_K") from None
-            src = il.blackbody(T, total_irradiance_W_m2=args.total_irradiance)
-        elif low.startswith("flat:"):
-            try:
-                src = il.flat(float(low.split(":", 1)[1]))
-            except ValueError:
-                raise NanoabsError(f"--spectrum {text!r}: expected flat:W_PER_M2_PER_NM") from None
-        else:
-            src = il.from_csv(text)
+        src = _spectrum_source(args.spectrum, args.total_irradiance)
     else:
         raise NanoabsError("give the illumination: --irradiance W/m^2, --laser-power W with --beam-radius nm, "
                            "or --spectrum am1.5g|am1.5d|am0|blackbody:T|flat:VALUE|FILE.csv")
@@ -400,10 +405,152 @@ def _register_particle_commands(sub):
     h.set_defaults(func=_cmd_hot_carriers)
 
 
+def _parse_values(text, name):
+    """'40:100:5' (start:stop:step, inclusive) or '20' or '20,30,40' -> array [nm]."""
+    t = str(text)
+    if t.count(":") == 2:
+        return parse_range(t, name)
+    try:
+        return np.array([float(v) for v in t.split(",")])
+    except ValueError:
+        raise NanoabsError(f"{name} = {text!r}: expected START:STOP:STEP or comma-separated numbers") from None
+
+
+def _cmd_sweep(args) -> int:
+    from . import design
+    from .export import check_writable
+
+    if args.output:
+        check_writable(args.output, force=args.force)
+    params = {}
+    for item in args.param or []:
+        key, sep, val = item.partition("=")
+        if not sep:
+            raise NanoabsError(f"--param {item!r}: expected NAME=VALUES, e.g. length_nm=40:100:5")
+        params[key.strip()] = _parse_values(val, f"--param {key.strip()}")
+    if not params:
+        raise NanoabsError("give at least one --param NAME=VALUES, e.g. --param radius_nm=10:80:5")
+    wl = parse_range(args.wl)
+    kw = dict(material=args.material, medium=_medium_arg(args.medium), method=args.method,
+              surface_damping=not args.no_surface_damping, progress=not args.quiet and sys.stderr.isatty(),
+              executor="processes" if args.processes else None)
+    if args.core:
+        kw["core"] = args.core
+    if args.polarization:
+        kw["polarization"] = args.polarization
+    res = design.sweep(args.shape, params, wl, out=args.output, force=args.force, **kw)
+    if args.output:
+        print(f"wrote {args.output}")
+    if hasattr(res, "columns"):
+        pcols = [c for c in res.columns if c.endswith("_nm") and c != "wavelength_nm" and res[c].nunique() > 1]
+        key = pcols[0] if pcols else "design_id"
+        grid = res.pivot_table(index=key, columns="wavelength_nm", values="sigma_abs_m2").sort_index()
+        peaks = grid.columns.values[np.argmax(grid.values, axis=1)]
+        for v, pk in zip(grid.index, peaks):
+            print(f"{key} = {v:g}: absorption peak {pk:g} nm")
+        if args.plot:
+            from .plotting import plot_map, save_figure
+
+            save_figure(plot_map(grid.columns.values, grid.index.values, grid.values * 1e18,
+                                 param_label=key.replace("_nm", " [nm]"),
+                                 value_label="absorption cross-section [nm²]"), args.plot, force=args.force)
+            print(f"wrote {args.plot}")
+    return 0
+
+
+def _cmd_search(args) -> int:
+    from . import design
+    from .export import check_writable
+    from .hotcarriers import schottky_barrier
+
+    if args.output:
+        check_writable(args.output, force=args.force)
+    if args.band and (args.center or args.width):
+        raise NanoabsError("give either --band LO:HI or --center and --width")
+    if args.band:
+        lo, hi = parse_range(args.band, "--band", need_step=False)
+        b = design.band(lo_nm=lo, hi_nm=hi)
+    else:
+        b = design.band(center_nm=args.center, width_nm=args.width)
+    barrier = None
+    if args.schottky:
+        barrier = float(schottky_barrier(args.schottky)[0])
+    elif args.barrier is not None:
+        barrier = args.barrier
+    if args.spectrum and args.irradiance is not None:
+        raise NanoabsError("give only one of --spectrum, --irradiance")
+    illum = None
+    if args.irradiance is not None:
+        from . import illumination as il
+
+        illum = il.monochromatic(args.irradiance)
+    elif args.spectrum:
+        illum = _spectrum_source(args.spectrum)
+    ranked = design.search(b, families=[f.strip() for f in args.families.split(",")],
+                           objective=args.objective, materials=[m.strip() for m in args.materials.split(",")],
+                           medium=_medium_arg(args.medium), illumination=illum, barrier_eV=barrier,
+                           max_size_nm=args.max_size, min_shell_nm=args.min_shell, top=args.top,
+                           progress=not args.quiet and sys.stderr.isatty())
+    fom = ranked.attrs.get("figure_of_merit", {})
+    print(f"band {b[0]:g}-{b[1]:g} nm; objective {args.objective} [{fom.get('unit', '')}]")
+    cols = [c for c in ("rank", "family", "material", "radius_nm", "core_radius_nm", "thickness_nm",
+                        "length_nm", "diameter_nm", "peak_wavelength_nm", "figure_of_merit",
+                        "absorbed_fraction") if c in ranked.columns]
+    with __import__("pandas").option_context("display.width", 160, "display.max_columns", 20):
+        print(ranked[cols].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
+    if args.output:
+        design.write(ranked, args.output, force=args.force)
+        print(f"wrote {args.output}")
+    return 0
+
+
+def _register_design_commands(sub):
+    w = sub.add_parser("sweep", help="spectra over a grid of sizes (tidy table, map)")
+    w.add_argument("--shape", required=True, choices=["sphere", "shell", "spheroid", "ellipsoid"])
+    w.add_argument("--param", action="append", help="NAME=VALUES, e.g. length_nm=40:100:5 or diameter_nm=20 "
+                   "(names: radius_nm, core_radius_nm, thickness_nm, length_nm, diameter_nm, aspect_ratio, "
+                   "a_nm, b_nm, c_nm, medium_index)")
+    w.add_argument("--material", default="Au", help="particle (or shell) material (default Au)")
+    w.add_argument("--core", help="shell: core material (default SiO2)")
+    w.add_argument("--medium", default="water")
+    w.add_argument("--polarization")
+    w.add_argument("--method", default="auto")
+    w.add_argument("--no-surface-damping", action="store_true")
+    w.add_argument("--wl", default="400:1000:2", help="START:STOP:STEP [nm]")
+    w.add_argument("--processes", action="store_true", help="run chunks on two local processes")
+    w.add_argument("--plot", help="save a wavelength x parameter map (.png/.svg)")
+    w.add_argument("-o", "--output", help="stream the table to this CSV (+ JSON); resumes if interrupted")
+    w.add_argument("--force", action="store_true")
+    w.add_argument("--quiet", action="store_true", help="no progress bar")
+    w.set_defaults(func=_cmd_sweep)
+
+    q = sub.add_parser("search", help="ranked particle designs for a target band")
+    q.add_argument("--band", help="band edges LO:HI [nm]")
+    q.add_argument("--center", type=float, help="band centre [nm] (with --width)")
+    q.add_argument("--width", type=float, help="band width [nm]")
+    q.add_argument("--families", default="sphere,shell,rod", help="comma list: sphere, shell, rod, disc")
+    q.add_argument("--objective", default="sigma_abs",
+                   help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection")
+    q.add_argument("--materials", default="Au", help="comma list of metals")
+    q.add_argument("--medium", default="water")
+    q.add_argument("--max-size", type=float, default=150.0, help="largest outer dimension [nm]")
+    q.add_argument("--min-shell", type=float, default=2.0, help="thinnest shell [nm]")
+    q.add_argument("--barrier", type=float, help="injection: Schottky barrier [eV]")
+    q.add_argument("--schottky", help="injection: tabulated pair, e.g. Au/Si")
+    q.add_argument("--spectrum", help="injection: am1.5g | am1.5d | am0 | blackbody:T | flat:V | FILE.csv")
+    q.add_argument("--irradiance", type=float, help="injection: monochromatic irradiance [W/m^2]")
+    q.add_argument("--top", type=int, default=10)
+    q.add_argument("-o", "--output", help="write the ranked table (CSV + JSON)")
+    q.add_argument("--force", action="store_true")
+    q.add_argument("--quiet", action="store_true")
+    q.set_defaults(func=_cmd_search)
+
+
 def _cmd_run(args) -> int:
     from .study import run_study
 
-    summary = run_study(args.study, args.output, force=args.force, progress=not args.quiet)
+    summary = run_study(args.study, args.output, force=args.force,
+                        progress=not args.quiet and sys.stderr.isatty())
     print(f"wrote report {summary.parent}/ (summary: {summary})")
     return 0
 
@@ -412,7 +559,8 @@ def _cmd_demo(args) -> int:
     from .study import demo_study_path, run_study
 
     print(f"running the demo study {demo_study_path().name} (an invented lab and device)")
-    summary = run_study(demo_study_path(), args.output, force=args.force, progress=not args.quiet)
+    summary = run_study(demo_study_path(), args.output, force=args.force,
+                        progress=not args.quiet and sys.stderr.isatty())
     print(f"wrote report {summary.parent}/ (summary: {summary})")
     return 0
 
@@ -453,6 +601,7 @@ def build_parser() -> argparse.ArgumentParser:
     m.set_defaults(func=_cmd_materials)
 
     _register_particle_commands(sub)
+    _register_design_commands(sub)
     _register_study_commands(sub)
 
     return p

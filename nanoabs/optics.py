@@ -215,7 +215,7 @@ def _eps_with_damping(mat, wl, length_nm, on, A, notes, label):
 
 def _plain(v):
     a = np.asarray(v, dtype=float)
-    return float(a) if a.ndim == 0 or a.size == 1 else a.ravel().tolist()
+    return float(a.reshape(-1)[0]) if a.size == 1 else a.ravel().tolist()
 
 
 # -- the solvers ---------------------------------------------------------------

@@ -100,11 +100,14 @@ def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=Tr
     mesh = ax.pcolormesh(wl, p, v, cmap="viridis", shading="nearest")
     fig.colorbar(mesh, ax=ax, label=value_label)
     if ridge:
-        ax.plot(wl[np.argmax(v, axis=1)], p, color="white", lw=1.2, ls="--", label="peak")
-        ax.legend(frameon=False, labelcolor="white", loc="upper left")
+        i = np.argmax(v, axis=1)
+        ridge_wl = np.where((i > 0) & (i < wl.size - 1), wl[i], np.nan)  # peaks cut by the grid: not drawn
+        ax.plot(ridge_wl, p, color="white", lw=1.2, ls="--", label="absorption peak")
     if band is not None:
-        for b in band:
-            ax.axvline(b, color="#ff7f0e", lw=1.0)
+        for j, b in enumerate(band):
+            ax.axvline(b, color="#ff7f0e", lw=1.0, label="target band" if j == 0 else None)
+    if ridge or band is not None:
+        ax.legend(frameon=False, labelcolor="white", loc="upper left")
     ax.set_xlabel("wavelength [nm]")
     ax.set_ylabel(param_label)
     if title:

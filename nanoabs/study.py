@@ -423,7 +423,7 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
                         top=int(sd.get("top", 10)), progress=progress)
         from .export import write_export
 
-        units = {c: _unit_of(c) for c in ranked.columns}
+        units = ranked.attrs.get("units") or {c: _unit_of(c) for c in ranked.columns}
         write_export(ranked.reset_index(drop=True), rep.path("ranked_designs.csv"),
                      metadata={"band_nm": b, "objective": sd.get("objective", "absorbed_fraction"),
                                "search": {k: v for k, v in sd.items()},
@@ -433,7 +433,7 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
         rep.add(rep.path("ranked_designs.json"))
         L += [f"## Ranked designs for {b[0]:g}–{b[1]:g} nm", "",
               f"Objective: {sd.get('objective', 'absorbed_fraction')}. Full table: `ranked_designs.csv`.", ""]
-        L += _markdown_table(ranked.head(int(sd.get("top", 10))))
+        L += _ranked_table(ranked.head(int(sd.get("top", 10))))
         L.append("")
 
     # 4. yield curve ---------------------------------------------------------
@@ -473,15 +473,24 @@ def _unit_of(col: str) -> str:
     return "1"
 
 
-def _markdown_table(df):
-    cols = list(df.columns)
-    out = ["| " + " | ".join(cols) + " |", "|" + "---|" * len(cols)]
-    for _, r in df.iterrows():
-        cells = []
-        for c in cols:
-            v = r[c]
-            cells.append(f"{v:.4g}" if isinstance(v, (float, np.floating)) else str(v))
-        out.append("| " + " | ".join(cells) + " |")
+def _ranked_table(df):
+    """Compact Markdown view of a ranked-design table: only the parameters each family uses."""
+    out = ["| rank | design | peak [nm] | FWHM [nm] | figure of merit | σ_abs/σ_ext | peak shift per +1 nm |",
+           "|---|---|---|---|---|---|---|"]
+    names = [("radius_nm", "r"), ("core_radius_nm", "core r"), ("thickness_nm", "shell"),
+             ("length_nm", "length"), ("diameter_nm", "diameter")]
+    for i, (_, r) in enumerate(df.iterrows(), 1):
+        geo = ", ".join(f"{lab} {r[c]:.1f} nm" for c, lab in names if c in r and r[c] == r[c])
+        core = f"{r['core_material']}/" if r.get("core_material") else ""
+        sens = ", ".join(f"{lab} {r['dpeak_d_' + c]:+.1f}" for c, lab in names
+                         if f"dpeak_d_{c}" in r and r[f"dpeak_d_{c}"] == r[f"dpeak_d_{c}"])
+        out.append(f"| {int(r.get('rank', i))} | {r['family']} {core}{r['material']}: {geo} | "
+                   f"{_f(r['peak_wavelength_nm'], '.0f')} | {_f(r['fwhm_nm'], '.0f')} | "
+                   f"{r['figure_of_merit']:.4g} | {r['absorbed_fraction']:.2f} | {sens} |")
+    fom = df.attrs.get("figure_of_merit", {})
+    if fom:
+        out += ["", f"Figure of merit: {fom.get('name', '')} [{fom.get('unit', '')}]. The peak shift is "
+                    "d(peak wavelength)/d(parameter) in nm per nm."]
     return out
 
 
