@@ -251,7 +251,7 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
     D3z1 = [None] + [np.full(P, 1j) for _ in range(1, L)]
     D3z2 = [None] + [np.full(P, 1j) for _ in range(1, L)]
     Q = [None] + [_q0(z1[l], z2[l]) for l in range(1, L)]
-    Pr = [None] + [_psi_ratio0(z1[l], z2[l]) for l in range(1, L)]
+    Pr = [None] + [_psi_ratio0(z1[l], z2[l]) if want_profile else None for l in range(1, L)]
     r12 = [None] + [(x[l - 1] / x[l]) ** 2 for l in range(1, L)]
     inv_z1 = [None] + [1.0 / z1[l] for l in range(1, L)]
     inv_z2 = [None] + [1.0 / z2[l] for l in range(1, L)]

@@ -311,7 +311,8 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
         L += [s["description"].strip(), ""]
     L += [f"- medium: {medium.label}", f"- wavelengths: {wl[0]:g}–{wl[-1]:g} nm ({wl.size} points)",
           f"- illumination: {illum.description}",
-          f"- Schottky barrier: {barrier[0]:g} eV ({barrier[1]})" if barrier[0] else "- Schottky barrier: —",
+          f"- Schottky barrier: {barrier[0]:g} eV ({barrier[1]}); photoemission cut-off hc/φ_B = "
+          f"{1239.84198 / barrier[0]:.0f} nm" if barrier[0] else "- Schottky barrier: —",
           ""]
 
     def figsave(fig, stem):
@@ -324,7 +325,7 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
         L += ["## Candidate particles", "",
               "| particle | method | peak [nm] | FWHM [nm] | peak σ_abs [m²] | σ_abs/σ_ext at peak | "
               "photocurrent per particle [A] | ΔT [K] |", "|---|---|---|---|---|---|---|---|"]
-        curves, warn_lines = [], []
+        curves, warn_lines, resp_curves = [], [], []
         for t, p in particles:
             spec = spectrum(p, wl, medium=medium, method=t.get("method", "auto"),
                             polarization=t.get("polarization", "long" if t["shape"] == "spheroid" else "x"),
@@ -356,6 +357,8 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
                      f"{_f(sm['fwhm_nm'], '.0f')} | {sm['peak_sigma_abs_m2']:.3g} | "
                      f"{sm['absorbed_fraction_at_peak']:.2f} | {cur:.3g} | {_f(dT, '.2g')} |")
             curves.append((t["name"], wl, spec.sigma_abs_m2))
+            if "responsivity_A_W" in res.frame:
+                resp_curves.append((t["name"], res.frame["responsivity_A_W"].to_numpy()))
             for w in res.metadata.get("warnings", []):
                 warn_lines.append(f"- {t['name']}: {w}")
         L.append("")
@@ -367,6 +370,10 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
             band = doc.get("search", {}).get("band_nm")
             figsave(plot_spectra(curves, ylabel="absorption cross-section [nm²]", scale=1e18,
                                  band=band, title="candidate particles"), "spectra")
+            if resp_curves:
+                figsave(plot_curves(wl, resp_curves, xlabel="wavelength [nm]", ylabel="array responsivity [A/W]",
+                                    title=f"{det.get('density_per_um2')} particles per µm² (sparse-array estimate)"),
+                        "responsivity")
 
     # 2. sweeps --------------------------------------------------------------
     for t in doc.get("sweep", []):
@@ -401,6 +408,19 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
         L += [f"## Sweep: {t['name']}", "",
               f"{param} from {vals.min():g} to {vals.max():g} nm ({vals.size} values); absorption peak moves "
               f"from {peaks[0]:.0f} nm to {peaks[-1]:.0f} nm. Data: `{stem}_sweep.csv`.", ""]
+        band = doc.get("search", {}).get("band_nm")
+        if band:
+            inb = (grid.columns.values >= band[0]) & (grid.columns.values <= band[1])
+            fom = grid.values[:, inb].mean(axis=1)
+            best = grid.index.values[int(np.argmax(fom))]
+            L.insert(len(L) - 1, f"Band-averaged σ_abs over {band[0]:g}–{band[1]:g} nm is largest at "
+                                 f"{param} = {best:g} nm ({fom.max():.3g} m²).")
+            L.insert(len(L) - 1, "")
+        if figures and band:
+            figsave(plot_curves(grid.index.values, [("band-averaged σ_abs", fom * 1e18)],
+                                xlabel=param.replace("_nm", " [nm]"), ylabel="band-averaged σ_abs [nm²]",
+                                title=f"{t['name']}: figure of merit in {band[0]:g}–{band[1]:g} nm"),
+                    f"{stem}_merit")
         if figures:
             figsave(plot_map(grid.columns.values, grid.index.values, grid.values * 1e18,
                              param_label=param.replace("_nm", " [nm]"),

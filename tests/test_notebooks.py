@@ -14,9 +14,16 @@ def test_at_least_three_notebooks():
 
 @pytest.mark.slow
 @pytest.mark.parametrize("path", NOTEBOOKS, ids=[p.stem for p in NOTEBOOKS])
-def test_notebook_runs(path):
+def test_notebook_runs(path, monkeypatch):
     nbformat = pytest.importorskip("nbformat")
     nbclient = pytest.importorskip("nbclient")
+    import os
+
+    # the kernel must import this checkout's nanoabs (installed, or this source tree)
+    root = str(NB_DIR.parent)
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join([root] + [os.path.abspath(p) for p in
+                                                              os.environ.get("PYTHONPATH", "").split(os.pathsep) if p]))
+    monkeypatch.setenv("MPLBACKEND", "Agg")
     nb = nbformat.read(path, as_version=4)
     client = nbclient.NotebookClient(nb, timeout=300, kernel_name="python3",
                                      resources={"metadata": {"path": str(NB_DIR)}})
