@@ -682,20 +682,8 @@ def _write_final(out: Path, workdir: Path, n_chunks: int, frame0, units, metadat
                                        f"{header.strip()!r}: remove {str(workdir)!r} and run again")
                 shutil.copyfileobj(part, fh)
 
-    temps, placed = [], []
-    try:
-        temps.append(export._write_temp(targets[0], write_csv))
-        temps.append(export._write_temp(targets[1], lambda fh: fh.write(export._json_text(doc, None))))
-        for tmp, target in zip(temps, targets):
-            os.replace(tmp, target)
-            placed.append(target)
-    except BaseException:
-        for leftover in temps:
-            leftover.unlink(missing_ok=True)
-        for target in placed:
-            target.unlink(missing_ok=True)
-        raise
-    return targets
+    return export.place_together([(targets[0], write_csv),
+                                  (targets[1], lambda fh: fh.write(export._json_text(doc, None)))])
 
 
 # =============================================================================

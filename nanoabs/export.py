@@ -319,31 +319,40 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
     }
     json_text = _json_text(doc, _json_data(frame, columns) if single else None)
 
+    writers = []
+    if not single:
+        # float32/float16 go out as the float64 repr of their exact value, so
+        # parsing as float64 and casting back is exact
+        wide = {c["name"]: "float64" for c in columns if c["dtype"] in ("float16", "float32")}
+        table = frame.astype(wide) if wide else frame
+        writers.append((targets[0], lambda fh: table.to_csv(fh, index=False, na_rep="nan",
+                                                            lineterminator="\n")))
+    writers.append((targets[-1], lambda fh: fh.write(json_text)))
+    return place_together(writers)
+
+
+def place_together(writers) -> tuple[Path, ...]:
+    """Write several files as one unit: all temporaries first, then rename; roll back on failure.
+
+    ``writers`` is a list of (target path, write(handle) function). If anything
+    fails, no temporary and no newly placed target is left (a CSV never lands
+    without its sidecar).
+    """
     temps: list[Path] = []
     placed: list[Path] = []
     try:
-        if not single:
-            # float32/float16 go out as the float64 repr of their exact value, so
-            # parsing as float64 and casting back is exact
-            wide = {c["name"]: "float64" for c in columns if c["dtype"] in ("float16", "float32")}
-            table = frame.astype(wide) if wide else frame
-            temps.append(
-                _write_temp(
-                    targets[0],
-                    lambda fh: table.to_csv(fh, index=False, na_rep="nan", lineterminator="\n"),
-                )
-            )
-        temps.append(_write_temp(targets[-1], lambda fh: fh.write(json_text)))
-        for tmp, target in zip(temps, targets):
+        for target, write in writers:
+            temps.append(_write_temp(Path(target), write))
+        for tmp, (target, _) in zip(temps, writers):
             os.replace(tmp, target)
-            placed.append(target)
+            placed.append(Path(target))
     except BaseException:
         for leftover in temps:
             leftover.unlink(missing_ok=True)
-        for target in placed:  # roll back: never leave a CSV without its sidecar
+        for target in placed:
             target.unlink(missing_ok=True)
         raise
-    return targets
+    return tuple(Path(t) for t, _ in writers)
 
 
 # --------------------------------------------------------------------------- reading

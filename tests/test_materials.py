@@ -4,7 +4,6 @@ import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
-import nanoabs
 from nanoabs import NanoabsError, material
 from nanoabs.hotcarriers import FREE_ELECTRON
 from nanoabs.materials import catalog, default_source, load_table

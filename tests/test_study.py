@@ -1,12 +1,9 @@
 """Study files and the demo report."""
 
-import json
 
-import pandas as pd
 import pytest
 
 import nanoabs
-from nanoabs import NanoabsError
 from nanoabs.cli import main
 from nanoabs.study import demo_study_path, load_study, run_study
 

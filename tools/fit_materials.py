@@ -18,7 +18,6 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-import numpy as np  # noqa: E402
 
 from nanoabs import __version__, fit_drude_lorentz, material  # noqa: E402
 
