@@ -146,8 +146,7 @@ def _material_arg(text, option):
 
     if text is None:
         raise NanoabsError(f"{option} is required for this shape")
-    name, _, source = str(text).partition(":")
-    return material(name, source or None)
+    return material(text)
 
 
 def _particle_from_args(args):
@@ -194,8 +193,7 @@ def _particle_from_args(args):
 def _medium_arg(text):
     from .materials import material
 
-    name, _, source = str(text).partition(":")
-    return material(name, source or None)
+    return material(text)
 
 
 def _spectrum_from_args(args):
@@ -216,8 +214,7 @@ def _print_warnings(meta):
 
 
 def _cmd_spectrum(args) -> int:
-    from .export import check_writable, write_export
-    from .optics import UNITS
+    from .export import check_writable
 
     if args.output:
         check_writable(args.output, force=args.force)
@@ -226,9 +223,7 @@ def _cmd_spectrum(args) -> int:
     summ = spec.summary()
     frame = spec.to_frame()
     if args.output:
-        meta = dict(spec.metadata)
-        meta["summary"] = summ
-        write_export(frame, args.output, metadata=meta, units=UNITS, force=args.force)
+        spec.write(args.output, force=args.force)
         print(f"wrote {args.output}")
     else:
         step = max(1, len(frame) // 20)

@@ -58,7 +58,6 @@ import hashlib
 import itertools
 import json
 import math
-import os
 import shutil
 import sys
 import time
@@ -195,10 +194,9 @@ def _collapse(warnings, limit=30):
 
 
 def _atomic_write_text(path: Path, text: str):
-    from .export import _write_temp
+    from .export import write_file_atomic
 
-    tmp = _write_temp(path, lambda fh: fh.write(text))
-    os.replace(tmp, path)
+    write_file_atomic(path, lambda fh: fh.write(text), force=True)
 
 
 # =============================================================================
@@ -337,8 +335,7 @@ def _designs(plan, ids):
 def _particle(shape, t, sel, mat, core):
     """The particle of designs ``sel``: sizes of shape (G, 1), or scalars for a single design.
 
-    (A single design is passed as scalars: ``nanoabs.optics._plain`` cannot turn a (1, 1)
-    size array into a float with numpy >= 2.)
+    (A single design is passed as scalars, so its metadata holds plain numbers.)
     """
     def col(k):
         return t[k][sel][:, None] if sel.size > 1 else float(t[k][sel][0])

@@ -77,6 +77,15 @@ def _metal_layers(particle):
     return out
 
 
+def _mie_inputs(spec, particle):
+    """(k [1/nm], m (L, W), x (L, W)) of a (layered) sphere from the permittivities its spectrum used."""
+    wl = spec.wavelength_nm
+    k = 2 * np.pi * spec.n_medium / wl
+    m = np.stack([np.broadcast_to(np.sqrt(e) / spec.n_medium, wl.shape) for e in spec.layer_eps])
+    x = np.stack([k * float(r) for _, r in particle.layers])
+    return k, m, x
+
+
 def _transport_sphere(particle, spec, ell_nm, contact_fraction, notes, n_rho=96):
     """Transport factor per wavelength from the Mie absorption profile in the metal layers."""
     from .mie import absorption_profile
@@ -89,11 +98,7 @@ def _transport_sphere(particle, spec, ell_nm, contact_fraction, notes, n_rho=96)
         notes.append("the outermost metal layer is coated by a non-metal: injection assumes the carriers "
                      "cross that coating (thin tunnel barrier or the coating is the barrier partner)")
     wl = spec.wavelength_nm
-    n_med = spec.n_medium
-    k = 2 * np.pi * n_med / wl  # [1/nm]
-    eps = [np.broadcast_to(e, wl.shape) for e in spec.layer_eps]
-    m = np.stack([np.sqrt(e) / n_med for e in eps])  # (L, W)
-    x = np.stack([k * float(r) for _, r in layers])
+    k, m, x = _mie_inputs(spec, particle)
     R_out = float(metals[-1][3])
     num = np.zeros(wl.shape)
     den = np.zeros(wl.shape)
@@ -138,9 +143,7 @@ def absorbed_power_density(spec, particle, r_nm, irradiance_W_m2=1.0):
                            "limit is uniform; the profile is defined here for spheres and layered spheres")
     wl = spec.wavelength_nm
     r = check_positive("radius r", np.atleast_1d(np.asarray(r_nm, dtype=float)), unit="nm")
-    k_nm = 2 * np.pi * spec.n_medium / wl
-    m = np.stack([np.broadcast_to(np.sqrt(e) / spec.n_medium, wl.shape) for e in spec.layer_eps])
-    x = np.stack([k_nm * float(rr) for _, rr in particle.layers])
+    k_nm, m, x = _mie_inputs(spec, particle)
     q = np.stack([absorption_profile(m[:, j], x[:, j], k_nm[j] * r) for j in range(wl.size)])
     I0 = np.broadcast_to(np.asarray(irradiance_W_m2, dtype=float), wl.shape)
     return I0[:, None] * (k_nm * 1e9)[:, None] * q
@@ -367,12 +370,7 @@ def _main_metal(particle):
 def _surface_fraction(particle, spec, depth_nm):
     from .mie import fraction_within_depth
 
-    wl = spec.wavelength_nm
-    k = 2 * np.pi * spec.n_medium / wl
-    layers = particle.layers
-    eps = [np.broadcast_to(e, wl.shape) for e in spec.layer_eps]
-    m = np.stack([np.sqrt(e) / spec.n_medium for e in eps])
-    x = np.stack([k * float(r) for _, r in layers])
+    k, m, x = _mie_inputs(spec, particle)
     return fraction_within_depth(m, x, k * float(depth_nm))
 
 

@@ -30,7 +30,6 @@ from typing import Sequence
 
 import numpy as np
 from scipy import constants as _c
-from scipy.optimize import least_squares
 
 from ._errors import NanoabsError, check_positive
 
@@ -322,6 +321,8 @@ def fit_drude_lorentz(wavelength_nm, eps, *, oscillators: int = 2, drude: bool =
     Model as Rakić et al., Appl. Opt. 37, 5271 (1998), eqs. (1)–(3); solver
     scipy.optimize.least_squares (trust-region reflective, bounded).
     """
+    from scipy.optimize import least_squares
+
     wl = np.asarray(wavelength_nm, dtype=float).ravel()
     eps = np.asarray(eps, dtype=complex).ravel()
     if wl.shape != eps.shape:

@@ -62,7 +62,7 @@ __all__ = [
 ]
 
 #: h c / e in eV nm (CODATA via scipy.constants; h, c, e are exact since SI 2019).
-HC_EV_NM: float = _c.h * _c.c / _c.e * 1e9
+from .drude_lorentz import HC_EV_NM  # noqa: E402  (h c [eV nm], CODATA via scipy.constants)
 
 SAFETY_CAUTION = """\
 Safety: the laser irradiances used to measure plasmonic photodetectors can injure eyes

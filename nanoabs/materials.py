@@ -26,7 +26,7 @@ import numpy as np
 from scipy.interpolate import PchipInterpolator
 
 from ._errors import DataError, NanoabsError, check_finite_array, suggest
-from .drude_lorentz import DrudeLorentz, surface_damping_eV
+from .drude_lorentz import HC_EV_NM, DrudeLorentz, surface_damping_correction, surface_damping_eV
 from .hotcarriers import FREE_ELECTRON
 
 __all__ = [
@@ -43,9 +43,7 @@ ALIASES = {
     "sapphire": "Al2O3", "silicon": "Si", "vacuum": "air",
 }
 
-# Free-electron parameters (Ashcroft & Mermin 1976, Tables 1.1 and 2.1) live in hotcarriers.
-FREE_ELECTRON_SOURCE = ("N. W. Ashcroft, N. D. Mermin, Solid State Physics (1976), "
-                        "Tables 1.1 and 2.1 (values from memory)")
+
 
 
 def _data_dir() -> Path:
@@ -245,17 +243,8 @@ class DampedMaterial:
     def outside(self, wavelength_nm):
         return self.bulk.outside(wavelength_nm)
 
-    def damping_correction(self, wavelength_nm):
-        """Δε(ω, L) added to the bulk permittivity [-]."""
-        return self.model.parts_at_energy(
-            1239.8419843320026 / np.asarray(wavelength_nm, dtype=float))["drude_surface"]
-
     def permittivity(self, wavelength_nm):
-        eps = np.asarray(self.bulk.permittivity(wavelength_nm)) + self.damping_correction(wavelength_nm)
-        # The Drude-Lorentz form stays passive for any L; against tabulated data the
-        # difference of two Drude terms could in principle push eps'' below 0 far in
-        # the infrared (omega < gamma(L)); clip there and say so in the metadata.
-        return (eps.real + 1j * np.maximum(eps.imag, 0.0))[()]
+        return damped_permittivity(self.bulk, wavelength_nm, self.extra_damping_eV)[0][()]
 
     def refractive_index(self, wavelength_nm):
         return np.sqrt(self.permittivity(wavelength_nm))
@@ -269,9 +258,32 @@ class DampedMaterial:
             "effective_length_nm": self.length_nm, "A": self.A,
             "fermi_velocity_m_s": self.fermi_velocity_m_s,
             "extra_damping_eV": self.extra_damping_eV,
-            "reference": "Kreibig & Vollmer (1995) Sec. 2.2.4; v_F: " + FREE_ELECTRON_SOURCE,
+            "reference": "Kreibig & Vollmer (1995) Sec. 2.2.4; v_F: " + FREE_ELECTRON[self.name].source
+            if self.name in FREE_ELECTRON else "Kreibig & Vollmer (1995) Sec. 2.2.4; v_F given by the user",
         }
         return d
+
+
+def damped_permittivity(mat, wavelength_nm, extra_damping_eV):
+    """ε of a metal whose Drude damping is raised by Δγ [eV] (Δγ may broadcast against λ).
+
+    ε(ω, L) = ε_bulk(ω) + Δε with Δε from
+    :func:`~nanoabs.drude_lorentz.surface_damping_correction` and the material's
+    fitted Drude term. The Drude–Lorentz form stays passive for any Δγ ≥ 0;
+    added to tabulated data the difference of two Drude terms could push ε″
+    below 0 far in the infrared (ω < γ + Δγ), so ε″ is clipped at 0 there.
+
+    Returns
+    -------
+    eps : complex array
+    clipped : bool
+        Whether any value was clipped (callers report it).
+    """
+    wl = np.asarray(wavelength_nm, dtype=float)
+    eps = np.asarray(mat.permittivity(wl), dtype=complex)
+    eps = eps + surface_damping_correction(mat.model, HC_EV_NM / wl, extra_damping_eV)
+    clipped = bool(np.any(eps.imag < 0))
+    return eps.real + 1j * np.maximum(eps.imag, 0.0), clipped
 
 
 def effective_length_nm(volume_nm3: float, surface_nm2: float) -> float:

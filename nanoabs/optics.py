@@ -28,8 +28,9 @@ import numpy as np
 
 from . import __version__
 from ._errors import NanoabsError, check_choice, check_finite_array
-from .drude_lorentz import HC_EV_NM, surface_damping_correction
-from .particles import Ellipsoid, LayeredSphere, Sphere, resolve_polarization
+from .drude_lorentz import surface_damping_eV
+from .materials import damped_permittivity
+from .particles import Ellipsoid, LayeredSphere, Sphere, _plain, resolve_polarization
 
 __all__ = ["Spectrum", "spectrum", "METHODS", "FRAME_COLUMNS", "UNITS"]
 
@@ -136,6 +137,14 @@ class Spectrum:
             "dipole_bound_ratio_at_peak": float(self.dipole_bound_ratio[i]),
         }
 
+    def write(self, path, *, force: bool = False):
+        """Export :meth:`to_frame` with :data:`UNITS`, the metadata and :meth:`summary` (CSV + JSON)."""
+        from .export import write_export
+
+        meta = dict(self.metadata)
+        meta["summary"] = self.summary()
+        return write_export(self.to_frame(), path, metadata=meta, units=UNITS, force=force)
+
     def to_frame(self):
         """pandas DataFrame with :data:`FRAME_COLUMNS` (one particle: one row per wavelength)."""
         import pandas as pd
@@ -186,36 +195,28 @@ def _fwhm(wl, y):
 
 def _eps_with_damping(mat, wl, length_nm, on, A, notes, label):
     """ε of ``mat`` on ``wl``, with the surface-damping correction for mean free path L [nm]."""
-    eps = np.asarray(mat.permittivity(wl), dtype=complex)
     if not (on and getattr(mat, "is_metal", False)):
-        return eps
+        return np.asarray(mat.permittivity(wl), dtype=complex)
     from .hotcarriers import FREE_ELECTRON
 
     model = getattr(mat, "model", None)
     if model is None or model.plasma_energy_eV <= 0 or mat.name not in FREE_ELECTRON:
         notes["warnings"].append(f"surface damping not applied to {label} ({mat.label}): no fitted "
                                  "Drude term or tabulated Fermi velocity")
-        return eps
+        return np.asarray(mat.permittivity(wl), dtype=complex)
     vf = FREE_ELECTRON[mat.name].fermi_velocity_m_s
-    from .drude_lorentz import surface_damping_eV
 
     L = np.asarray(length_nm, dtype=float)
     extra = surface_damping_eV(L, vf, A=A)
-    d = surface_damping_correction(model, HC_EV_NM / wl, extra)
-    out = eps + d
+    out, clipped = damped_permittivity(mat, wl, extra)
     notes["surface_damping"].append({
         "part": label, "material": mat.label, "effective_length_nm": _plain(L),
         "extra_damping_eV": _plain(extra), "A": A, "fermi_velocity_m_s": vf,
         "drude_from": "shipped Drude-Lorentz fit of the dataset",
     })
-    if np.any(out.imag < 0):
+    if clipped:
         notes["warnings"].append(f"surface-damped eps'' of {label} clipped at 0 at some wavelengths")
-    return out.real + 1j * np.maximum(out.imag, 0.0)
-
-
-def _plain(v):
-    a = np.asarray(v, dtype=float)
-    return float(a.reshape(-1)[0]) if a.size == 1 else a.ravel().tolist()
+    return out
 
 
 # -- the solvers ---------------------------------------------------------------

@@ -234,5 +234,6 @@ def resolve_polarization(particle, polarization: str) -> str:
 
 
 def _plain(v):
-    a = np.asarray(v)
-    return float(a) if a.ndim == 0 else a.astype(float).ravel().tolist()
+    """A size for metadata: a float for one value (any shape), else a flat list."""
+    a = np.asarray(v, dtype=float)
+    return float(a.reshape(-1)[0]) if a.size == 1 else a.ravel().tolist()

@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from ._errors import DataError, NanoabsError, suggest
+from .drude_lorentz import HC_EV_NM
 
 __all__ = ["load_study", "run_study", "demo_study_path", "SCHEMA"]
 
@@ -167,8 +168,7 @@ def _medium(doc):
         raise DataError("study keys medium.name and medium.index are exclusive: give one")
     if "index" in m:
         return material(float(m["index"]))
-    name, _, src = m.get("name", "water").partition(":")
-    return material(name, src or None)
+    return material(m.get("name", "water"))
 
 
 def _illumination(doc):
@@ -225,8 +225,7 @@ def _particle(t):
         v = t.get(key, default)
         if v is None:
             raise DataError(f"study key {t['name']!r}: {key} is required for shape {t['shape']!r}")
-        name, _, src = str(v).partition(":")
-        return material(name, src or None)
+        return material(str(v))
 
     def num(key):
         if key not in t:
@@ -276,7 +275,7 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
     """
     from .detector import hot_carrier_estimate
     from .hotcarriers import SAFETY_CAUTION
-    from .optics import UNITS, spectrum
+    from .optics import spectrum
     from .plotting import plot_curves, plot_map, plot_spectra, save_figure
 
     doc = path_or_doc if isinstance(path_or_doc, dict) else load_study(path_or_doc)
@@ -312,7 +311,7 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
     L += [f"- medium: {medium.label}", f"- wavelengths: {wl[0]:g}–{wl[-1]:g} nm ({wl.size} points)",
           f"- illumination: {illum.description}",
           f"- Schottky barrier: {barrier[0]:g} eV ({barrier[1]}); photoemission cut-off hc/φ_B = "
-          f"{1239.84198 / barrier[0]:.0f} nm" if barrier[0] else "- Schottky barrier: —",
+          f"{HC_EV_NM / barrier[0]:.0f} nm" if barrier[0] else "- Schottky barrier: —",
           ""]
 
     def figsave(fig, stem):
@@ -341,12 +340,7 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
             stem = _slug(t["name"])
             rep.add(res.write(rep.path(f"{stem}_hot_carriers.csv"), force=force)[0])
             rep.add(rep.path(f"{stem}_hot_carriers.json"))
-            from .export import write_export
-
-            meta = dict(spec.metadata)
-            meta["summary"] = spec.summary()
-            write_export(spec.to_frame(), rep.path(f"{stem}_spectrum.csv"), metadata=meta, units=UNITS,
-                         force=force)
+            spec.write(rep.path(f"{stem}_spectrum.csv"), force=force)
             rep.add(rep.path(f"{stem}_spectrum.csv"))
             rep.add(rep.path(f"{stem}_spectrum.json"))
             sm = spec.summary()
@@ -441,14 +435,10 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
                         illumination=illum, barrier_eV=barrier[0],
                         max_size_nm=sd.get("max_size_nm", 200.0), min_shell_nm=sd.get("min_shell_nm", 5.0),
                         top=int(sd.get("top", 10)), progress=progress)
-        from .export import write_export
+        from .design import write as write_table
 
-        units = ranked.attrs.get("units") or {c: _unit_of(c) for c in ranked.columns}
-        write_export(ranked.reset_index(drop=True), rep.path("ranked_designs.csv"),
-                     metadata={"band_nm": b, "objective": sd.get("objective", "absorbed_fraction"),
-                               "search": {k: v for k, v in sd.items()},
-                               "figure_of_merit": dict(ranked.attrs)},
-                     units=units, force=force)
+        ranked.attrs["metadata"] = {**(ranked.attrs.get("metadata") or {}), "study_search": dict(sd)}
+        write_table(ranked, rep.path("ranked_designs.csv"), force=force)
         rep.add(rep.path("ranked_designs.csv"))
         rep.add(rep.path("ranked_designs.json"))
         L += [f"## Ranked designs for {b[0]:g}–{b[1]:g} nm", "",
@@ -483,14 +473,6 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
 
 def _f(v, fmt):
     return "—" if v is None or (isinstance(v, float) and v != v) else format(v, fmt)
-
-
-def _unit_of(col: str) -> str:
-    for suf, unit in (("_nm", "nm"), ("_m2", "m^2"), ("_m_1", "m^-1"), ("_per_s", "s^-1"), ("_W", "W"),
-                      ("_A", "A"), ("_eV", "eV")):
-        if col.endswith(suf):
-            return unit
-    return "1"
 
 
 def _ranked_table(df):
