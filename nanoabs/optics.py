@@ -71,7 +71,17 @@ class Spectrum:
     metal_volume_m3: np.ndarray
     n_medium: np.ndarray
     metadata: dict = field(default_factory=dict)
-    layer_eps: list = field(default_factory=list, repr=False)  # ε used per layer (core first)
+    _layer_eps: object = field(default_factory=list, repr=False)  # list, or a callable returning it
+
+    @property
+    def layer_eps(self) -> list:
+        """Permittivity used for each layer (core first), broadcastable against the cross-sections.
+
+        Computed on first access when the solver did not need it as an array.
+        """
+        if callable(self._layer_eps):
+            self._layer_eps = self._layer_eps()
+        return self._layer_eps
 
     # -- derived quantities --------------------------------------------------
     @property
@@ -193,29 +203,42 @@ def _fwhm(wl, y):
 # -- permittivities ------------------------------------------------------------
 
 
-def _eps_with_damping(mat, wl, length_nm, on, A, notes, label):
-    """ε of ``mat`` on ``wl``, with the surface-damping correction for mean free path L [nm]."""
+def _damping_extra_eV(mat, length_nm, on, A, notes, label):
+    """Extra Drude damping Δγ [eV] of a metal part of mean free path L [nm], or None if not applied.
+
+    Records what was applied (or why not) in ``notes``.
+    """
     if not (on and getattr(mat, "is_metal", False)):
-        return np.asarray(mat.permittivity(wl), dtype=complex)
+        return None
     from .hotcarriers import FREE_ELECTRON
 
     model = getattr(mat, "model", None)
     if model is None or model.plasma_energy_eV <= 0 or mat.name not in FREE_ELECTRON:
         notes["warnings"].append(f"surface damping not applied to {label} ({mat.label}): no fitted "
                                  "Drude term or tabulated Fermi velocity")
-        return np.asarray(mat.permittivity(wl), dtype=complex)
+        return None
     vf = FREE_ELECTRON[mat.name].fermi_velocity_m_s
-
     L = np.asarray(length_nm, dtype=float)
     extra = surface_damping_eV(L, vf, A=A)
-    out, clipped = damped_permittivity(mat, wl, extra)
     notes["surface_damping"].append({
         "part": label, "material": mat.label, "effective_length_nm": _plain(L),
         "extra_damping_eV": _plain(extra), "A": A, "fermi_velocity_m_s": vf,
         "drude_from": "shipped Drude-Lorentz fit of the dataset",
     })
+    return extra
+
+
+_CLIP_NOTE = "surface-damped eps'' of {} clipped at 0 at some wavelengths"
+
+
+def _eps_with_damping(mat, wl, length_nm, on, A, notes, label):
+    """ε of ``mat`` on ``wl``, with the surface-damping correction for mean free path L [nm]."""
+    extra = _damping_extra_eV(mat, length_nm, on, A, notes, label)
+    if extra is None:
+        return np.asarray(mat.permittivity(wl), dtype=complex)
+    out, clipped = damped_permittivity(mat, wl, extra)
     if clipped:
-        notes["warnings"].append(f"surface-damped eps'' of {label} clipped at 0 at some wavelengths")
+        notes["warnings"].append(_CLIP_NOTE.format(label))
     return out
 
 
@@ -284,26 +307,36 @@ def _dipole_sphere(eps_layers, radii, n_med, wl, corrected):
     return qs.cross_sections(alpha, k, corrected=corrected)
 
 
-def _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, axis, corrected):
+def _field_axes(pol, core_axes, shell_axes):
+    """[(axis, weight)]: the distinct principal axes a field samples, with their weights.
+
+    A fixed polarisation samples one axis. Random orientation averages the three
+    principal cross-sections with weight 1/3 each (see
+    :func:`~nanoabs.quasistatic.orientation_average`); a spheroid's two equal
+    axes give equal cross-sections, so each distinct axis is computed once.
+    """
+    if pol != "random":
+        return [(pol, 1.0)]
+
+    def same(i, j):
+        return (np.array_equal(*np.broadcast_arrays(core_axes[i], core_axes[j])) and
+                (shell_axes is None or np.array_equal(*np.broadcast_arrays(shell_axes[i], shell_axes[j]))))
+
+    if same(1, 2):
+        return [("x", 1.0 / 3.0), ("y", 2.0 / 3.0)]
+    if same(0, 1):
+        return [("x", 2.0 / 3.0), ("z", 1.0 / 3.0)]
+    return [("x", 1.0 / 3.0), ("y", 1.0 / 3.0), ("z", 1.0 / 3.0)]
+
+
+def _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, pol, corrected):
+    """Cross-sections [nm²] of a (coated) ellipsoid in the dipole limit (numpy path)."""
     from . import quasistatic as qs
 
     k = 2 * np.pi * n_med / wl
     eps_m = n_med**2
-    axes = ["x", "y", "z"] if axis == "random" else [axis]
-    if axis == "random":
-        # spheroids: two equal semi-axes give equal cross-sections; compute each distinct axis once
-        same = [np.array_equal(*np.broadcast_arrays(core_axes[i], core_axes[j])) and
-                (shell_axes is None or np.array_equal(*np.broadcast_arrays(shell_axes[i], shell_axes[j])))
-                for i, j in ((1, 2), (0, 1))]
-        if same[0]:
-            axes = ["x", "y", "y"]
-        elif same[1]:
-            axes = ["x", "x", "z"]
-    out, done = [], {}
-    for ax in axes:
-        if ax in done:
-            out.append(done[ax])
-            continue
+    total = None
+    for ax, weight in _field_axes(pol, core_axes, shell_axes):
         if eps_shell is None:
             alpha = (qs.polarizability_ellipsoid_mlwa(eps_core, eps_m, *core_axes, k, axis=ax) if corrected
                      else qs.polarizability_ellipsoid(eps_core, eps_m, *core_axes, axis=ax))
@@ -312,11 +345,60 @@ def _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, axi
                                                              shell_axes, k, axis=ax) if corrected
                      else qs.polarizability_coated_ellipsoid(eps_core, eps_shell, eps_m, core_axes,
                                                              shell_axes, axis=ax))
-        done[ax] = qs.cross_sections(alpha, k, corrected=corrected)
-        out.append(done[ax])
-    if axis == "random":
-        return qs.orientation_average(*out)
-    return out[0]
+        sections = [weight * x for x in qs.cross_sections(alpha, k, corrected=corrected)]
+        total = sections if total is None else [t + x for t, x in zip(total, sections)]
+    return tuple(total)
+
+
+def _dipole_ellipsoid_compiled(mat, core_axes, core_L, wl, n_med, pol, surface_damping, damping_A,
+                               notes, label):
+    """MLWA cross-sections [m²] of a homogeneous ellipsoid family by the compiled kernel, or None.
+
+    Used when numba is available and the geometry does not vary with wavelength
+    (semi-axes scalars or of shape (..., 1)); returns ``(sa, ss, se, eps_thunk)``
+    with ``eps_thunk()`` giving the permittivity list the numpy path would have
+    produced (evaluated only when asked for).
+    """
+    from . import _compiled
+    from . import quasistatic as qs
+    from .drude_lorentz import HC_EV_NM
+
+    G = np.broadcast_shapes(*(np.shape(a) for a in core_axes))
+    if (G and G[-1] != 1) or not _compiled.available():
+        return None
+    axes = [np.broadcast_to(a, G).reshape(-1) for a in core_axes]
+    L_all = qs.depolarization_factors(*axes)
+    D_all = qs.dynamic_depolarization_factors(*axes, depolarization=L_all)
+    picks = [("xyz".index(ax), w) for ax, w in _field_axes(pol, core_axes, None)]
+    depol = np.stack([np.broadcast_to(L_all[i], axes[0].shape) for i, _ in picks])
+    dyn = np.stack([np.broadcast_to(D_all[i] / (4.0 * np.pi * axes[i]), axes[0].shape) for i, _ in picks])
+    weights = np.array([w for _, w in picks])
+    volume = 4.0 / 3.0 * np.pi * axes[0] * axes[1] * axes[2]
+    local = {"warnings": [], "surface_damping": []}  # merged into notes only if this path is taken
+    extra = _damping_extra_eV(mat, core_L, surface_damping, damping_A, local, label)
+    if extra is None:
+        drude, extra = (0.0, 0.0), np.zeros(volume.shape)
+    else:
+        drude = (mat.model.plasma_energy_eV**2, mat.model.damping_eV)
+        extra = np.broadcast_to(extra, G).reshape(-1)
+    try:
+        sa, ss, se, n_clip = _compiled.ellipsoid_mlwa_map(
+            mat.permittivity(wl), HC_EV_NM / wl, drude, extra, n_med**2, 2 * np.pi * n_med / wl,
+            depol, dyn, weights, volume, NM2_TO_M2)
+    except _compiled.Unavailable:
+        return None
+    if n_clip:
+        local["warnings"].append(_CLIP_NOTE.format(label))
+    for key in local:
+        notes[key] += local[key]
+    shape = G[:-1] + wl.shape if G else wl.shape
+    sa, ss, se = (x.reshape(shape) for x in (sa, ss, se))
+
+    def eps_thunk():
+        scratch = {"warnings": [], "surface_damping": []}
+        return [_eps_with_damping(mat, wl, core_L, surface_damping, damping_A, scratch, label)]
+
+    return sa, ss, se, eps_thunk
 
 
 def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
@@ -366,6 +448,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
         notes["warnings"].append(f"medium {med.label} absorbs weakly (k up to {worst:.2g}); its absorption "
                                  "is neglected (real part of its index used)")
     n_med = n_med_c.real
+    backend = "numpy"
 
     if isinstance(particle, (Sphere, LayeredSphere)):
         layers = particle.layers
@@ -391,9 +474,8 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
             corrected = method == "mlwa"
             sa, ss, se = _dipole_sphere(eps_layers, radii, n_med, wl, corrected)
             _check_dipole_validity(radii[-1], wl, n_med, method, notes)
-        area = np.pi * radii[-1] ** 2
-        geo = area * np.ones_like(wl)
-        eqv = geo
+        sa, ss, se = (np.asarray(x) * NM2_TO_M2 for x in (sa, ss, se))
+        geo = eqv = np.pi * radii[-1] ** 2
         metal_vol = sum(4.0 / 3.0 * np.pi * (r**3 - (radii[i - 1] ** 3 if i else 0.0))
                         for i, ((mat, _), r) in enumerate(zip(layers, radii)) if mat.is_metal)
         ref_area = "pi r_outer^2"
@@ -404,32 +486,44 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
         core_axes = tuple(np.asarray(a, dtype=float) for a in particle.semi_axes_nm)
         from .quasistatic import ellipsoid_surface_area
 
-        core_L = 4.0 * (4.0 / 3.0 * np.pi * (core_axes[0] * core_axes[1] * core_axes[2])) / ellipsoid_surface_area(*core_axes)
-        eps_core = _eps_with_damping(particle.material, wl, core_L, surface_damping, damping_A, notes,
-                                     "core" if particle.shell else particle.kind)
-        eps_shell = shell_axes = None
-        if particle.shell is not None:
-            shell_axes = tuple(np.asarray(a, dtype=float) for a in particle.shell_axes_nm())
-            eps_shell = _eps_with_damping(particle.shell[0], wl, particle.shell[1], surface_damping,
-                                          damping_A, notes, "shell")
-        used_eps = [eps_core] + ([eps_shell] if eps_shell is not None else [])
+        core_surface = ellipsoid_surface_area(*core_axes)
+        core_L = 4.0 * (4.0 / 3.0 * np.pi * (core_axes[0] * core_axes[1] * core_axes[2])) / core_surface
+        label = "core" if particle.shell else particle.kind
         if method == "auto":
             method = "mlwa"
         if method in ("mie", "miepython"):
             raise NanoabsError(f"method = {method!r} needs a sphere; ellipsoids allow 'quasistatic' or 'mlwa'")
-        sa, ss, se = _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, pol,
-                                       method == "mlwa")
+        fast = None
+        if method == "mlwa" and particle.shell is None:
+            fast = _dipole_ellipsoid_compiled(particle.material, core_axes, core_L, wl, n_med, pol,
+                                              surface_damping, damping_A, notes, label)
+        shell_axes = None
+        if fast is not None:
+            sa, ss, se, used_eps = fast
+            backend = "compiled (numba)"
+        else:
+            eps_core = _eps_with_damping(particle.material, wl, core_L, surface_damping, damping_A, notes,
+                                         label)
+            eps_shell = None
+            if particle.shell is not None:
+                shell_axes = tuple(np.asarray(a, dtype=float) for a in particle.shell_axes_nm())
+                eps_shell = _eps_with_damping(particle.shell[0], wl, particle.shell[1], surface_damping,
+                                              damping_A, notes, "shell")
+            used_eps = [eps_core] + ([eps_shell] if eps_shell is not None else [])
+            sa, ss, se = (np.asarray(x) * NM2_TO_M2 for x in
+                          _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, pol,
+                                            method == "mlwa"))
         outer = shell_axes or core_axes
         _check_dipole_validity(outer, wl, n_med, method, notes)
         vol = 4.0 / 3.0 * np.pi * (outer[0] * outer[1] * outer[2])
         if pol == "random":
-            geo = ellipsoid_surface_area(*outer) / 4.0 * np.ones_like(wl)
+            geo = (core_surface if shell_axes is None else ellipsoid_surface_area(*outer)) / 4.0
             ref_area = "surface area / 4 (random orientation, Cauchy's theorem)"
         else:
-            geo = particle.projected_area_nm2(pol) * np.ones_like(wl)
+            geo = particle.projected_area_nm2(pol)
             ref_area = ("projected area pi a b (light along z)" if pol in ("x", "y")
                         else "projected area pi b c (light along x)")
-        eqv = np.pi * (3 * vol / (4 * np.pi)) ** (2.0 / 3.0) * np.ones_like(wl)
+        eqv = np.pi * (3 * vol / (4 * np.pi)) ** (2.0 / 3.0)
         core_vol = 4.0 / 3.0 * np.pi * (core_axes[0] * core_axes[1] * core_axes[2])
         metal_vol = (core_vol if particle.material.is_metal else 0.0)
         if particle.shell is not None and particle.shell[0].is_metal:
@@ -437,11 +531,12 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
     else:
         raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere or Ellipsoid")
 
-    if np.any(~np.isfinite(sa)) or np.any(~np.isfinite(se)):
+    if not (np.isfinite(np.sum(sa)) and np.isfinite(np.sum(se))):  # sums: one pass, no temporaries
         notes["warnings"].append("non-finite cross-sections at some wavelengths (check inputs)")
     meta = {
         "particle": particle.describe(),
         "method": method,
+        "solver_backend": backend,
         "method_reference": _METHOD_REFS[method],
         "polarization": pol if pol else "any (sphere)",
         "efficiency_reference_area": ref_area,
@@ -452,8 +547,9 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
         "warnings": notes["warnings"],
         "package_version": __version__,
     }
-    return Spectrum(wl, np.asarray(sa) * NM2_TO_M2, np.asarray(ss) * NM2_TO_M2, np.asarray(se) * NM2_TO_M2,
-                    np.asarray(geo) * NM2_TO_M2, np.asarray(eqv) * NM2_TO_M2,
+    shape = np.shape(sa)  # reference areas: read-only broadcast views, not copies
+    return Spectrum(wl, sa, ss, se, np.broadcast_to(np.asarray(geo) * NM2_TO_M2, shape),
+                    np.broadcast_to(np.asarray(eqv) * NM2_TO_M2, shape),
                     np.asarray(metal_vol, dtype=float) * 1e-27, n_med, meta, used_eps)
 
 
@@ -480,10 +576,19 @@ def _materials_meta(particle):
 def _check_dipole_validity(axes, wl, n_med, method, notes):
     from .quasistatic import CORRECTED_VALIDITY, STRICT_VALIDITY, validity_ratio
 
-    ratio = np.asarray(validity_ratio(axes, wl, n_medium=n_med))
+    axes = axes if isinstance(axes, tuple) else (axes,)
+    a_max = np.asarray(axes[0], dtype=float)
+    for a in axes[1:]:
+        a_max = np.maximum(a_max, a)
+    # the largest particle at each wavelength decides (the last axis is the wavelength axis only
+    # when the geometry varies with wavelength)
+    if a_max.ndim and a_max.shape[-1] == wl.size:
+        a_max = a_max.reshape(-1, wl.size).max(axis=0)
+    ratio = np.asarray(validity_ratio(float(a_max.max()) if a_max.ndim and a_max.shape[-1] != wl.size
+                                      else a_max, wl, n_medium=n_med))
     limit = STRICT_VALIDITY if method == "quasistatic" else CORRECTED_VALIDITY
     if np.any(ratio > limit):
-        bad = wl[np.any(ratio.reshape(-1, wl.size) > limit, axis=0)] if ratio.size >= wl.size else wl
+        bad = wl[np.broadcast_to(ratio > limit, wl.shape)]
         what = ("largest dimension above a tenth of the wavelength in the medium" if method == "quasistatic"
                 else "k a_max above 0.5")
         notes["warnings"].append(

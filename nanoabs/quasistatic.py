@@ -256,13 +256,16 @@ def spheroid_depolarization(aspect_ratio):
     return out[()] if out.ndim == 0 else out
 
 
-def dynamic_depolarization_factors(a, b, c):
+def dynamic_depolarization_factors(a, b, c, *, depolarization=None):
     """Dynamic depolarisation factors ``D_i`` of a triaxial ellipsoid (MLWA term).
 
     Parameters
     ----------
     a, b, c : float or array_like
         Semi-axes along x, y, z [length].
+    depolarization : tuple of 3 array_like, optional
+        The static factors ``depolarization_factors(a, b, c)`` when already
+        computed (saves recomputing them).
 
     Returns
     -------
@@ -290,7 +293,7 @@ def dynamic_depolarization_factors(a, b, c):
     M. Meier and A. Wokaun, Opt. Lett. 8, 581 (1983) (radiation-corrected
     field of a sphere); A. Moroz, J. Opt. Soc. Am. B 26, 517 (2009) (spheroids).
     """
-    La, Lb, Lc = depolarization_factors(a, b, c)
+    La, Lb, Lc = depolarization_factors(a, b, c) if depolarization is None else depolarization
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
     c = np.asarray(c, dtype=float)
