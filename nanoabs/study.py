@@ -275,6 +275,7 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
     """
     from .detector import hot_carrier_estimate
     from .hotcarriers import SAFETY_CAUTION
+    from .materials import material
     from .optics import spectrum
     from .plotting import plot_curves, plot_map, plot_spectra, save_figure
 
@@ -446,19 +447,32 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
         L += _ranked_table(ranked.head(int(sd.get("top", 10))))
         L.append("")
 
-    # 4. yield curve ---------------------------------------------------------
+    # 4. yield curve: one pair of curves per metal of the study (each has its own E_F) -------
     if figures and barrier[0]:
-        from .hotcarriers import escape_cone_yield, fowler_yield, photon_energy_eV
-        from .hotcarriers import free_electron
+        from .detector import _main_metal
+        from .hotcarriers import FREE_ELECTRON, escape_cone_yield, fowler_yield, photon_energy_eV
 
-        metal = "Au"
-        ef = det.get("fermi_energy_eV", free_electron(metal).fermi_energy_eV)
+        names = [_main_metal(p).name for _, p in particles]
+        names += [material(m).name for m in (doc.get("search") or {}).get("materials", ["Au"])] \
+            if doc.get("search") else []
         E = photon_energy_eV(wl)
-        figsave(plot_curves(wl, [("escape-cone integral", escape_cone_yield(E, barrier[0], ef)),
-                                 ("Fowler small-excess form", fowler_yield(E, barrier[0], ef))],
-                            xlabel="wavelength [nm]", ylabel="emission probability per absorbed photon",
-                            title=f"internal photoemission over a {barrier[0]:g} eV barrier (E_F = {ef:g} eV)"),
-                "emission_probability")
+        if det.get("fermi_energy_eV") is not None:
+            fermi = [("", float(det["fermi_energy_eV"]))]
+        else:
+            fermi = [(n, FREE_ELECTRON[n].fermi_energy_eV) for n in dict.fromkeys(names) if n in FREE_ELECTRON]
+        curves = []
+        for name, ef in fermi:
+            tag = f"{name}, E_F = {ef:g} eV" if name else f"E_F = {ef:g} eV"
+            curves += [(f"escape-cone integral ({tag})", escape_cone_yield(E, barrier[0], ef)),
+                       (f"Fowler small-excess form ({tag})", fowler_yield(E, barrier[0], ef))]
+        if curves:
+            figsave(plot_curves(wl, curves, xlabel="wavelength [nm]",
+                                ylabel="emission probability per absorbed photon",
+                                title=f"internal photoemission over a {barrier[0]:g} eV barrier"),
+                    "emission_probability")
+        else:
+            L += ["Emission-probability figure not drawn: no metal of this study has tabulated "
+                  "free-electron data (give detector.fermi_energy_eV).", ""]
 
     L += ["## Cautions", "", " ".join(SAFETY_CAUTION.split()), "",
           "These are model estimates (sparse arrays, isolated-particle heating, escape-cone emission) for "

@@ -67,3 +67,64 @@ formats = ["svg"]
     df, meta = nanoabs.read_export(tmp_path / "r" / "au_20_hot_carriers.csv")
     # laser: peak irradiance of a Gaussian beam 2P/(pi w^2) at every wavelength
     assert df.irradiance_W_m2_nm.iloc[0] == pytest.approx(2 * 0.01 / (3.141592653589793 * (5e-4) ** 2))
+
+
+def test_emission_figure_uses_each_metals_fermi_energy(tmp_path, monkeypatch):
+    """The yield figure is drawn with the Fermi energy of the study's own metals.
+
+    E_F values: free-electron table in nanoabs.hotcarriers (Ashcroft & Mermin 1976, Table 2.1, from
+    memory);
+    the curves must equal escape_cone_yield / fowler_yield evaluated with them.
+    """
+    import numpy as np
+
+    import nanoabs.plotting as plotting
+    from nanoabs.hotcarriers import FREE_ELECTRON, escape_cone_yield, photon_energy_eV
+
+    captured = []
+    real = plotting.plot_curves
+
+    def spy(x, curves, **kw):
+        captured.append((np.asarray(x), curves, kw))
+        return real(x, curves, **kw)
+
+    monkeypatch.setattr(plotting, "plot_curves", spy)
+    p = tmp_path / "s.toml"
+    p.write_text("""
+[study]
+title = "silver and copper"
+[medium]
+index = 1.5
+[wavelengths]
+start_nm = 450
+stop_nm = 900
+step_nm = 10
+[illumination]
+kind = "flat"
+value_W_m2_nm = 1.0
+[detector]
+barrier_eV = 0.8
+[[particle]]
+name = "Ag 15"
+shape = "sphere"
+material = "Ag"
+radius_nm = 15
+[[particle]]
+name = "Cu rod"
+shape = "spheroid"
+material = "Cu"
+length_nm = 60
+diameter_nm = 20
+""")
+    run_study(p, tmp_path / "rep", progress=False)
+    assert (tmp_path / "rep" / "emission_probability.png").exists()
+    emission = [c for c in captured if "photoemission" in c[2].get("title", "")]
+    assert len(emission) == 1
+    wl, curves, _ = emission[0]
+    labels = [name for name, _ in curves]
+    for metal in ("Ag", "Cu"):
+        ef = FREE_ELECTRON[metal].fermi_energy_eV
+        (name, y), = [(n, y) for n, y in curves if n.startswith("escape-cone") and f"{metal}," in n]
+        assert f"E_F = {ef:g} eV" in name
+        np.testing.assert_allclose(y, escape_cone_yield(photon_energy_eV(wl), 0.8, ef), rtol=1e-12)
+    assert not any("Au" in n for n in labels)
