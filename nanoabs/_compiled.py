@@ -37,13 +37,15 @@ Surface damping replaces the Drude damping ``gamma`` by ``gamma + dgamma``:
 (Kreibig & Vollmer 1995, sec. 2.2.4), with ``eps''`` clipped at 0 as in
 :func:`nanoabs.materials.damped_permittivity`.
 
-Concurrency: the kernel runs on numba's own thread pool; calls from several
-Python threads are serialised by a lock (numba's default thread pool must not
-be entered twice at once).
+Concurrency: the kernel runs on numba's "workqueue" thread pool (unless
+``NUMBA_THREADING_LAYER`` says otherwise), which survives ``fork`` (design
+sweeps fork worker processes); calls from several Python threads are
+serialised by a lock, since that pool must not be entered twice at once.
 """
 
 from __future__ import annotations
 
+import os
 import threading
 
 import numpy as np
@@ -126,6 +128,10 @@ def _build():
         _STATE["error"] = f"{type(exc).__name__}: {exc}"
         return None
 
+    if "NUMBA_THREADING_LAYER" not in os.environ and numba.config.THREADING_LAYER == "default":
+        # numba's own thread pool: fork-safe (sweeps fork worker processes; a forked child of a
+        # process that used GNU OpenMP is terminated by numba); it is not thread-safe, hence _LOCK
+        numba.config.THREADING_LAYER = "workqueue"
     global prange
     prange = numba.prange  # resolved when the kernel is compiled
     try:

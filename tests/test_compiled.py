@@ -139,3 +139,31 @@ def test_unavailable_compiler_falls_back(monkeypatch):
     s = nanoabs.spectrum(spheroid("Au", 60.0, 20.0), np.linspace(500, 900, 11), medium="water")
     assert s.metadata["solver_backend"] == "numpy"
     assert np.all(s.sigma_abs_m2 > 0)
+
+
+def test_forked_sweep_after_compiled_call(tmp_path):
+    """A process-pool sweep (fork) after the kernel ran in the parent must not be killed.
+
+    numba terminates a forked child of a process that used GNU OpenMP; nanoabs selects
+    numba's fork-safe workqueue pool. Run in a fresh interpreter so the pool state is clean.
+    """
+    import os
+    import subprocess
+    import sys
+
+    code = (
+        "import numpy as np, nanoabs\n"
+        "wl = np.linspace(500, 1500, 50)\n"
+        "s = nanoabs.spectrum(nanoabs.spheroid('Au', np.linspace(40, 200, 20)[:, None], 20.0), wl)\n"
+        "assert s.metadata['solver_backend'] == 'compiled (numba)'\n"
+        "r = nanoabs.design.sweep('spheroid', {'length_nm': np.linspace(40, 200, 40), 'diameter_nm': [20.0]},"
+        " wl, executor='processes', chunk_size=10, progress=False)\n"
+        "print(len(r))\n"
+    )
+    env = {k: v for k, v in os.environ.items() if k != "NUMBA_THREADING_LAYER"}
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
+    p = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300,
+                       env=env, cwd=tmp_path)
+    assert p.returncode == 0, p.stderr[-2000:]
+    assert p.stdout.strip().splitlines()[-1] == str(40 * 50)
