@@ -83,6 +83,11 @@ class Spectrum:
             self._layer_eps = self._layer_eps()
         return self._layer_eps
 
+    def __getstate__(self):  # pickling (process pools, caches): evaluate the deferred ε first
+        state = dict(self.__dict__)
+        state["_layer_eps"] = self.layer_eps
+        return state
+
     # -- derived quantities --------------------------------------------------
     @property
     def q_abs(self):

@@ -167,3 +167,13 @@ def test_forked_sweep_after_compiled_call(tmp_path):
                        env=env, cwd=tmp_path)
     assert p.returncode == 0, p.stderr[-2000:]
     assert p.stdout.strip().splitlines()[-1] == str(40 * 50)
+
+
+def test_spectrum_with_deferred_eps_pickles():
+    import pickle
+
+    s = nanoabs.spectrum(spheroid("Au", np.array([[50.0], [80.0]]), 20.0), np.linspace(500, 900, 9))
+    assert s.metadata["solver_backend"] == "compiled (numba)"
+    t = pickle.loads(pickle.dumps(s))
+    np.testing.assert_array_equal(t.sigma_abs_m2, s.sigma_abs_m2)
+    np.testing.assert_array_equal(t.layer_eps[0], s.layer_eps[0])
