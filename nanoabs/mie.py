@@ -20,9 +20,11 @@ Algorithm
 ---------
 The multilayer recursion is that of Yang (2003): logarithmic derivatives
 D1_n = psi_n'/psi_n by downward recurrence, D3_n = xi_n'/xi_n through the
-stable product psi_n xi_n, and the ratio Q_n = [psi_n/xi_n](z1)/[psi_n/xi_n](z2)
-by upward recurrence, so that no Riccati-Bessel function itself (which can
-overflow for absorbing layers) is ever formed.  Everything outside the particle
+stable product psi_n xi_n (in the layers carried as i/(psi_n xi_n) = D3_n -
+D1_n), and the ratio Q_n = [psi_n/xi_n](z1)/[psi_n/xi_n](z2) by upward
+recurrence, so that no Riccati-Bessel function itself (which can overflow for
+absorbing layers) is ever formed.  Lossless layers (real m) run their
+recurrences in real arithmetic.  Everything outside the particle
 (a_n, b_n, absorption, boundary amplitudes) is likewise written with ratios and
 logarithmic derivatives.
 
@@ -57,7 +59,9 @@ __all__ = [
     "n_terms",
 ]
 
-# Working-set budget (complex128 elements) for the arrays held per chunk.
+# Working-set budget (complex128 elements) for the arrays held per chunk; a chunk of
+# points at order n_max holds about 4 L arrays of n_max + 1 orders (D1_n and, in the
+# layers, psi_n/psi_{n-1} at both arguments, see _recursion) plus temporaries.
 _CHUNK_ELEMENTS = 3_000_000
 # Extra start index of the downward D1 recurrence (see _d1_down).
 _D1_EXTRA = 16
@@ -177,7 +181,7 @@ def n_terms(x):
 # --------------------------------------------------------------------------
 
 
-def _d1_down(z, n_store):
+def _d1_down(z, n_store, *, ratio=False):
     """D1_n(z) = psi_n'(z)/psi_n(z) for n = 0..n_store, shape (n_store+1, *z.shape).
 
     Downward recurrence D_{n-1} = n/z - 1/(D_n + n/z) (Bohren & Huffman 1983,
@@ -187,19 +191,35 @@ def _d1_down(z, n_store):
     n - |z| >> |z|^(1/3) (transition region of psi_n); with 8 |z|^(1/3) the
     efficiencies agree with an independent 50-digit evaluation to ~1e-15 and
     with miepython to ~1e-11 up to |m x| = 4000.
+
+    A real ``z`` (a lossless layer) runs in real arithmetic and gives a real
+    result.  With ``ratio=True`` also returns R_n = psi_n(z)/psi_{n-1}(z) =
+    1/(D_n + n/z) (n = 1..n_store; R_0 is set to 0), which the recurrence forms
+    anyway, as ``(D1, R)``: the layer recursion then multiplies instead of
+    dividing.
     """
-    z = np.asarray(z, dtype=complex)
+    z = np.asarray(z)
+    z = z.astype(complex if np.iscomplexobj(z) else float, copy=False)
     az = float(np.max(np.abs(z))) if z.size else 0.0
     n_start = int(max(n_store, az) + 8.0 * np.cbrt(az)) + _D1_EXTRA
-    out = np.empty((n_store + 1,) + z.shape, dtype=complex)
-    d = np.zeros(z.shape, dtype=complex)
+    out = np.empty((n_store + 1,) + z.shape, dtype=z.dtype)
+    rat = np.zeros((n_store + 1,) + z.shape, dtype=z.dtype) if ratio else None
+    d = np.zeros(z.shape, dtype=z.dtype)
     inv_z = 1.0 / z
     for n in range(n_start, 0, -1):
         nz = n * inv_z
-        d = nz - 1.0 / (d + nz)  # this is D_{n-1}
+        r = 1.0 / (d + nz)  # psi_n/psi_{n-1}
+        if ratio and n <= n_store:
+            rat[n] = r
+        d = nz - r  # this is D_{n-1}
         if n - 1 <= n_store:
             out[n - 1] = d
-    return out
+    return (out, rat) if ratio else out
+
+
+def _real_if_lossless(a):
+    """``a.real`` if no element of ``a`` has an imaginary part, else ``a``."""
+    return a.real if np.iscomplexobj(a) and not np.any(a.imag) else a
 
 
 def _psixi0(z):
@@ -217,6 +237,38 @@ def _q0(z1, z2):
     return np.exp(2j * (z2 - z1)) * np.expm1(2j * z1) / np.expm1(2j * z2)
 
 
+def _expm1_2iz(z):
+    """exp(2iz) - 1 = -2 psi_0(z) xi_0(z) for Im z >= 0, from real functions.
+
+    With z = a + ib: exp(2iz) - 1 = expm1(-2b) cos 2a - 2 sin^2 a + i exp(-2b) sin 2a,
+    as accurate as the complex ``np.expm1`` (both real terms are <= 0 for small
+    |z|, so nothing cancels) and less than half its cost.  ``z`` may be real.
+    """
+    a = z.real
+    b = z.imag if np.iscomplexobj(z) else np.zeros_like(a)
+    s, c = np.sin(a), np.cos(a)
+    s2 = s * s
+    out = np.empty(np.shape(z), dtype=complex)
+    out.real = np.expm1(-2.0 * b) * (1.0 - 2.0 * s2) - 2.0 * s2
+    out.imag = 2.0 * np.exp(-2.0 * b) * (s * c)
+    return out
+
+
+def _layer_order0(z1, z2, want_psi_ratio=False):
+    """Order-0 values of one layer from one exp(2iz) - 1 per argument.
+
+    With e = exp(2iz) - 1 = -2 psi_0 xi_0 (`_psixi0`) returns w_0 = i/(psi_0 xi_0)
+    = -2i/e at z1 and z2, Q_0 = exp(2i (z2 - z1)) e(z1)/e(z2) (`_q0`; psi_0/xi_0
+    = psi_0 xi_0 / xi_0^2 with xi_0^2 = -exp(2iz)) and, if asked,
+    psi_0(z1)/psi_0(z2) = exp(-i (z1 - z2)) e(z1)/e(z2) (`_psi_ratio0`), else None.
+    """
+    e1 = _expm1_2iz(z1)
+    e2 = _expm1_2iz(z2)
+    r = e1 / e2
+    pr = np.exp(-1j * (z1 - z2)) * r if want_psi_ratio else None
+    return -2j / e1, -2j / e2, np.exp(2j * (z2 - z1)) * r, pr
+
+
 # --------------------------------------------------------------------------
 # the recursion (one chunk of flattened points)
 # --------------------------------------------------------------------------
@@ -229,32 +281,67 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
     point (orders above it are set to zero) and ``n_max >= max(nstop)`` the last
     order computed.  Returns a dict with the efficiency sums, optionally the
     coefficients ``a``, ``b`` (n_max, P) and the data for the internal fields.
-    See `mie_layered` (Notes) for the formulas.
+    See `mie_layered` (Notes) for the formulas.  In the layers l >= 2 (z1 =
+    m_l x_{l-1}, z2 = m_l x_l) they are evaluated as follows (Yang's equation
+    numbers from memory).
+
+    `_d1_down` gives D1_n and R_n = psi_n/psi_{n-1} = 1/A_n, A_n = D1_n + n/z.
+    Instead of psi_n xi_n the recursion carries w_n = i/(psi_n xi_n) = D3_n -
+    D1_n (Yang 2003, eqs. 18-20),
+
+        B_n = xi_n/xi_{n-1} = n/z - D3_{n-1} = R_n - w_{n-1},   w_n = w_{n-1} / (R_n B_n),
+
+    using n/z - D1_{n-1} = psi_n/psi_{n-1} (the recurrence behind the downward
+    D1 one; the same recurrence for xi gives B_n), from w_0 = -2i/(exp(2iz) - 1);
+    B_1 = 1/z - i is used as it stands, since R_1 and w_0 both grow like 1/sin z
+    and would cancel near its zeros (a lossless layer with m_l x_{l-1} ~ k pi).
+    Yang's Q_n update (eq. 19) is Q_{n-1} (x_{l-1}/x_l)^2 (z2/z1)^2 times
+    [A_n B_n](z2) / [A_n B_n](z1) (his factors z D1_n + n = z A_n, n - z D3_{n-1}
+    = z B_n), and (x_{l-1}/x_l)^2 (z2/z1)^2 = 1 within a layer, so
+
+        Q_n = Q_{n-1} [A_n B_n](z2) / [A_n B_n](z1) = Q_{n-1} B_n(z2) R_n(z1) / (B_n(z1) R_n(z2)),
+
+    which is just psi_n/xi_n = (psi_{n-1}/xi_{n-1}) / (A_n B_n) at both arguments.
+    The G1, G2 of Yang's eqs. 12-15 are used divided by m_{l-1} (TM, "a") and by
+    m_l (TE, "b"),
+
+        G1 = (m_l/m_{l-1}) H^a_{l-1} - D1_n(z1)  (TE: (m_{l-1}/m_l) H^b_{l-1} - D1_n(z1)),
+        G2 = G1 - w_n(z1),
+
+    which leaves H unchanged (it is homogeneous of degree 0 in G1, G2); with
+    D3_n(z2) = D1_n(z2) + w_n(z2) Yang's H update (eq. 14) becomes
+
+        H_l = D1_n(z2) - w_n(z2) Q_n G1 / (G2 - Q_n G1).
+
+    A lossless layer or core (real m) has real z and real D1_n, R_n.
     """
     L, P = m.shape
     xo = x[-1]
     xc = xo.astype(complex)
     inv_x = 1.0 / xo
-    z2 = m * x  # m_l x_l
-    z1 = np.concatenate([np.ones((1, P), complex), m[1:] * x[:-1]])  # m_l x_{l-1}; row 0 unused
     D1x = _d1_down(xc, n_max)
-    D1z2 = [_d1_down(z2[l], n_max) for l in range(L)]
-    D1z1 = [None] + [_d1_down(z1[l], n_max) for l in range(1, L)]
+    # core: H = D1_n(m_1 x_1) for both modes (Yang 2003, eq. 11)
+    D1z2 = [_d1_down(_real_if_lossless(m[0]) * x[0], n_max)]
+    D1z1, R1, R2, w1, w2, Q, Pr, mu, inv_mu, B1_1, B2_1 = ([None] for _ in range(11))
+    for l in range(1, L):
+        ml = _real_if_lossless(m[l])
+        z1, z2 = ml * x[l - 1], ml * x[l]
+        for D1, R, z in ((D1z1, R1, z1), (D1z2, R2, z2)):
+            d, r = _d1_down(z, n_max, ratio=True)
+            D1.append(d)
+            R.append(r)
+        for lst, v in zip((w1, w2, Q, Pr), _layer_order0(z1, z2, want_profile)):
+            lst.append(v)
+        mu.append(m[l] / m[l - 1])
+        inv_mu.append(m[l - 1] / m[l])
+        B1_1.append(1.0 / z1 - 1j)  # B_1 = xi_1/xi_0 = 1/z - D3_0, D3_0 = i
+        B2_1.append(1.0 / z2 - 1j)
 
     # order n = 0 values
     pzx = _psixi0(xc)
     D3x = np.full(P, 1j)
     Rx = 1j * np.sin(xo) * np.exp(-1j * xo)  # psi_0/xi_0 (real x)
     inv_xix = 1j * np.exp(-1j * xo)  # 1/xi_0 (real x)
-    pz1 = [None] + [_psixi0(z1[l]) for l in range(1, L)]
-    pz2 = [None] + [_psixi0(z2[l]) for l in range(1, L)]
-    D3z1 = [None] + [np.full(P, 1j) for _ in range(1, L)]
-    D3z2 = [None] + [np.full(P, 1j) for _ in range(1, L)]
-    Q = [None] + [_q0(z1[l], z2[l]) for l in range(1, L)]
-    Pr = [None] + [_psi_ratio0(z1[l], z2[l]) if want_profile else None for l in range(1, L)]
-    r12 = [None] + [(x[l - 1] / x[l]) ** 2 for l in range(1, L)]
-    inv_z1 = [None] + [1.0 / z1[l] for l in range(1, L)]
-    inv_z2 = [None] + [1.0 / z2[l] for l in range(1, L)]
 
     out = {}
     if want_coeffs:
@@ -288,36 +375,34 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
         Ha = D1z2[0][n]
         Hb = Ha
         for l in range(1, L):
-            za, zb = z1[l], z2[l]
             d1a, d1b = D1z1[l][n], D1z2[l][n]
-            nza, nzb = n * inv_z1[l], n * inv_z2[l]  # n/z without a complex division
-            # Q_n from Q_{n-1}; uses D3_{n-1} (Yang 2003, eq. 19)
-            Q[l] = Q[l] * r12[l] * ((zb * d1b + n) * (n - zb * D3z2[l])) / (
-                (za * d1a + n) * (n - za * D3z1[l])
-            )
-            pz1[l] = pz1[l] * (nza - D3z1[l]) / (d1a + nza)
-            pz2[l] = pz2[l] * (nzb - D3z2[l]) / (d1b + nzb)
-            D3z1[l] = d1a + 1j / pz1[l]
-            D3z2[l] = d1b + 1j / pz2[l]
+            r1, r2 = R1[l][n], R2[l][n]
+            # xi_n/xi_{n-1}; R_n - w_{n-1} would cancel near zeros of sin z at n = 1
+            B1 = r1 - w1[l] if n > 1 else B1_1[l]
+            B2 = r2 - w2[l] if n > 1 else B2_1[l]
+            Q[l] = Q[l] * ((B2 * r1) / (B1 * r2))
+            w1[l] = w1[l] / (B1 * r1)  # w_n = i/(psi_n xi_n)
+            w2[l] = w2[l] / (B2 * r2)
+            # interface recursion for the TM (a) and TE (b) modes (Yang 2003, eqs. 12-15),
+            # G1, G2 divided by m_{l-1} (TM) and by m_l (TE)
+            G1a = mu[l] * Ha - d1a
+            G1b = inv_mu[l] * Hb - d1a
+            G2a = G1a - w1[l]
+            G2b = G1b - w1[l]
+            QG1a = Q[l] * G1a
+            QG1b = Q[l] * G1b
+            dena = G2a - QG1a
+            denb = G2b - QG1b
+            Ha = d1b - w2[l] * QG1a / dena
+            Hb = d1b - w2[l] * QG1b / denb
             if want_profile:
-                Pr[l] = Pr[l] * (d1b + nzb) / (d1a + nza)  # psi_n(z1)/psi_n(z2)
-            ml, mp = m[l], m[l - 1]
-            # interface recursion for the TM (a) and TE (b) modes (Yang 2003, eqs. 12-15)
-            G1a = ml * Ha - mp * d1a
-            G2a = ml * Ha - mp * D3z1[l]
-            G1b = mp * Hb - ml * d1a
-            G2b = mp * Hb - ml * D3z1[l]
-            dena = G2a - Q[l] * G1a
-            denb = G2b - Q[l] * G1b
-            Ha = (G2a * d1b - Q[l] * G1a * D3z2[l]) / dena
-            Hb = (G2b * d1b - Q[l] * G1b * D3z2[l]) / denb
-            if want_profile:
+                Pr[l] = Pr[l] * (r1 / r2)  # psi_n(z1)/psi_n(z2)
                 G1a_s[l, n - 1], G2a_s[l, n - 1] = G1a, G2a
                 G1b_s[l, n - 1], G2b_s[l, n - 1] = G1b, G2b
                 Q_s[l, n - 1] = Q[l]
-                # F_l(z1)/F_l(z2) with G2 - G1 = m (D1 - D3)(z1) = -i m / (psi xi)(z1)
-                ra[l, n - 1] = Pr[l] * (-1j * mp / pz1[l]) / dena
-                rb[l, n - 1] = Pr[l] * (-1j * ml / pz1[l]) / denb
+                # F_l(z1)/F_l(z2) = Pr (G2 - G1) / (G2 - Q G1), G2 - G1 = -w_n(z1)
+                ra[l, n - 1] = -Pr[l] * w1[l] / dena
+                rb[l, n - 1] = -Pr[l] * w1[l] / denb
         ha = Ha / m[-1]
         hb = m[-1] * Hb
         da = ha - D3x
@@ -424,7 +509,11 @@ def mie_layered(m, x, *, n_max=None) -> MieEfficiencies:
     ``D3_n = D1_n + i/(psi_n xi_n)`` with ``psi_n xi_n`` by upward recurrence
     from ``psi_0 xi_0 = (1 - exp(2iz))/2`` and
     ``Q_n = Q_{n-1} (x_{l-1}/x_l)^2 (z2 D1_n(z2) + n)(n - z2 D3_{n-1}(z2)) /
-    [(z1 D1_n(z1) + n)(n - z1 D3_{n-1}(z1))]`` (Yang 2003, eqs. 17-21).
+    [(z1 D1_n(z1) + n)(n - z1 D3_{n-1}(z1))]`` (Yang 2003, eqs. 17-21).  Since
+    (x_{l-1}/x_l)^2 (z2/z1)^2 = 1 this is evaluated as
+    ``Q_n = Q_{n-1} [A_n B_n](z2) / [A_n B_n](z1)`` with the ratios
+    ``A_n = psi_{n-1}/psi_n = D1_n + n/z`` and ``B_n = xi_n/xi_{n-1} = n/z - D3_{n-1}``
+    (see `_recursion` for this and the other rearrangements used).
     With ``h_a = H^a_L/m_L`` and ``h_b = m_L H^b_L`` the coefficients are
     ``a_n = (psi_n/xi_n)(x) (h_a - D1_n(x))/(h_a - D3_n(x))`` (Yang 2003, eq. 16,
     divided through by psi_n xi_n; likewise b_n).
@@ -469,7 +558,7 @@ def mie_layered(m, x, *, n_max=None) -> MieEfficiencies:
     xo = xf[-1]
     nstop = n_terms(xo) if n_max is None else np.full(P, _check_n_max(n_max))
     res = {k: np.zeros(P) for k in ("qext", "qsca", "qabs", "qback", "g")}
-    for idx in _chunks(xo, nstop, 2 * L + 2):
+    for idx in _chunks(xo, nstop, 4 * L):
         ns = nstop[idx]
         with np.errstate(under="ignore"):
             r = _recursion(mf[:, idx], xf[:, idx], ns, int(ns.max()))
@@ -544,7 +633,7 @@ def mie_coefficients_layered(m, x, n_max):
     a = np.zeros((n_max, P), dtype=complex)
     b = np.zeros((n_max, P), dtype=complex)
     nstop = np.full(P, n_max)
-    for idx in _chunks(xf[-1], nstop, 2 * L + 4):
+    for idx in _chunks(xf[-1], nstop, 4 * L + 2):
         with np.errstate(under="ignore"):
             r = _recursion(mf[:, idx], xf[:, idx], nstop[idx], n_max, want_coeffs=True)
         a[:, idx] = r["a"]
@@ -637,7 +726,7 @@ def _profile_driver(m, x, rho_pts):
     R = rho_pts.shape[1]
     inten = np.empty((P, R))
     layer = np.empty((P, R), dtype=int)
-    for idx in _chunks(xf[-1], nstop, 2 * L + 12 + 3 * R):
+    for idx in _chunks(xf[-1], nstop, 4 * L + 10 + 3 * R):
         ns = nstop[idx]
         with np.errstate(under="ignore"):
             i, la = _intensity_chunk(mf[:, idx], xf[:, idx], rho_pts[idx], ns, int(ns.max()))
