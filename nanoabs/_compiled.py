@@ -81,6 +81,7 @@ def _mlwa_kernel(ar, ai, inv_e, e2, wp2, gamma0, extra, eps_m, k2, rad, k_sc, k4
     n_size, n_wl = sa.shape
     n_axes = lj.shape[0]
     clipped = 0
+    bad = 0
     for s in prange(n_size):
         g = gamma0 + extra[s]
         g2 = g * g
@@ -89,13 +90,16 @@ def _mlwa_kernel(ar, ai, inv_e, e2, wp2, gamma0, extra, eps_m, k2, rad, k_sc, k4
         l1, c1, w1 = (lj[1, s] * inv_v, cj[1, s], wj[1]) if n_axes > 1 else (0.0, 0.0, 0.0)
         l2, c2, w2 = (lj[2, s] * inv_v, cj[2, s], wj[2]) if n_axes > 2 else (0.0, 0.0, 0.0)
         n_clip = 0
+        n_bad = 0
         for w in range(n_wl):
             d = wp2 / (e2[w] + g2)  # Re of wp^2/(E^2 + i g E)
             wr = ar[w] - d  # Re(eps - eps_m)
             wi_raw = ai[w] + d * g * inv_e[w]  # Im(eps)
             n_clip += wi_raw < 0.0
             wi = max(wi_raw, 0.0)
-            f = eps_m[w] * inv_v / (wr * wr + wi * wi)
+            n2 = wr * wr + wi * wi
+            matched = n2 == 0.0  # eps = eps_m exactly: alpha = 0 (u and z infinite)
+            f = eps_m[w] * inv_v / (1.0 if matched else n2)
             ur = f * wr  # Re(u) / V
             ui = -f * wi  # Im(u) / V
             zi = ui - rad[w]
@@ -109,13 +113,16 @@ def _mlwa_kernel(ar, ai, inv_e, e2, wp2, gamma0, extra, eps_m, k2, rad, k_sc, k4
             if n_axes > 2:
                 zr = l2 + ur - c2 * kk2
                 acc += w2 / (zr * zr + zi2)
+            acc = 0.0 if matched else acc
             absn = -k_sc[w] * ui * acc
             sca = k4_sc[w] * acc
             sa[s, w] = absn
             ss[s, w] = sca
             se[s, w] = absn + sca
+            n_bad += not np.isfinite(absn + sca)
         clipped += n_clip
-    return clipped
+        bad += n_bad
+    return clipped, bad
 
 
 def _build():
@@ -185,6 +192,9 @@ def ellipsoid_mlwa_map(eps_bulk, energy_eV, drude, extra_eV, eps_medium, k, depo
         Cross-sections [nm^2 * scale].
     n_clipped : int
         Number of points where the damped ``eps''`` was clipped at 0.
+    n_nonfinite : int
+        Number of points with a NaN or infinite cross-section (e.g. a lossless
+        particle index-matched to the medium).
     """
     kernel = _build()
     if kernel is None:
@@ -205,7 +215,7 @@ def ellipsoid_mlwa_map(eps_bulk, energy_eV, drude, extra_eV, eps_medium, k, depo
     c = np.ascontiguousarray
     with _LOCK:
         try:
-            n_clip = kernel(*(c(x, dtype=f64) for x in per_wl), wp2, gamma0, c(extra), c(eps_m),
+            n_clip, n_bad = kernel(*(c(x, dtype=f64) for x in per_wl), wp2, gamma0, c(extra), c(eps_m),
                             c(k2), c(k2 * k / (6.0 * np.pi)), c(k * scale), c(k2 * k2 / (6.0 * np.pi) * scale),
                             c(depol, dtype=f64), c(dyn_over_4pi_a, dtype=f64), c(weights, dtype=f64),
                             c(volume, dtype=f64), sa, ss, se)
@@ -214,4 +224,4 @@ def ellipsoid_mlwa_map(eps_bulk, energy_eV, drude, extra_eV, eps_medium, k, depo
                 _STATE["kernel"], _STATE["error"] = None, f"{type(exc).__name__}: {exc}"
                 raise Unavailable(f"compiled path unavailable: {_STATE['error']}") from None
             raise
-    return sa, ss, se, int(n_clip)
+    return sa, ss, se, int(n_clip), int(n_bad)

@@ -138,13 +138,11 @@ class Material:
     _wl: np.ndarray | None = field(default=None, repr=False)
     _n: np.ndarray | None = field(default=None, repr=False)
     _constant: complex | None = field(default=None, repr=False)
+    _interp: tuple | None = field(default=None, repr=False, compare=False)  # shared (n, k) interpolants
 
     def __post_init__(self):
         if self._wl is not None:
-            x = np.log(self._wl)
-            with np.errstate(divide="ignore", over="ignore", invalid="ignore"):  # flat runs (k = 0)
-                self._n_interp = PchipInterpolator(x, self._n.real, extrapolate=False)
-                self._k_interp = PchipInterpolator(x, self._n.imag, extrapolate=False)
+            self._n_interp, self._k_interp = self._interp or _interpolants(self._wl, self._n)
 
     @property
     def label(self) -> str:
@@ -389,6 +387,20 @@ def _load_cached(key: str, source: str):
     return header, wl, n, note, model
 
 
+def _interpolants(wl, n):
+    """PCHIP interpolants of n and k on log(λ) (shape-preserving, no overshoot between points)."""
+    x = np.log(wl)
+    with np.errstate(divide="ignore", over="ignore", invalid="ignore"):  # flat runs (k = 0)
+        return (PchipInterpolator(x, n.real, extrapolate=False),
+                PchipInterpolator(x, n.imag, extrapolate=False))
+
+
+@lru_cache(maxsize=None)
+def _interpolants_cached(key: str, source: str):
+    _, wl, n, _, _ = _load_cached(key, source)
+    return _interpolants(wl, n)
+
+
 def _load(key: str, source: str, extrapolate: bool) -> Material:
     header, wl, n, note, model = _load_cached(key, source)
     info = dict(header)
@@ -398,7 +410,8 @@ def _load(key: str, source: str, extrapolate: bool) -> Material:
         return Material(key, source, header.get("kind", "medium"), info, (float(wl[0]), float(wl[-1])),
                         _constant=complex(n[0]))
     return Material(key, source, header.get("kind", "dielectric"), info,
-                    (float(wl[0]), float(wl[-1])), extrapolate, model, wl, n)
+                    (float(wl[0]), float(wl[-1])), extrapolate, model, wl, n,
+                    _interp=_interpolants_cached(key, source))
 
 
 def load_table(path, *, name: str | None = None, kind: str = "metal") -> Material:

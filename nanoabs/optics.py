@@ -360,9 +360,10 @@ def _dipole_ellipsoid_compiled(mat, core_axes, core_L, wl, n_med, pol, surface_d
     """MLWA cross-sections [m²] of a homogeneous ellipsoid family by the compiled kernel, or None.
 
     Used when numba is available and the geometry does not vary with wavelength
-    (semi-axes scalars or of shape (..., 1)); returns ``(sa, ss, se, eps_thunk)``
-    with ``eps_thunk()`` giving the permittivity list the numpy path would have
-    produced (evaluated only when asked for).
+    (semi-axes scalars or of shape (..., 1)); returns ``(sa, ss, se, eps_thunk,
+    nonfinite)`` with ``eps_thunk()`` giving the permittivity list the numpy path
+    would have produced (evaluated only when asked for) and ``nonfinite`` whether
+    any cross-section is NaN or infinite.
     """
     from . import _compiled
     from . import quasistatic as qs
@@ -387,7 +388,7 @@ def _dipole_ellipsoid_compiled(mat, core_axes, core_L, wl, n_med, pol, surface_d
         drude = (mat.model.plasma_energy_eV**2, mat.model.damping_eV)
         extra = np.broadcast_to(extra, G).reshape(-1)
     try:
-        sa, ss, se, n_clip = _compiled.ellipsoid_mlwa_map(
+        sa, ss, se, n_clip, n_bad = _compiled.ellipsoid_mlwa_map(
             mat.permittivity(wl), HC_EV_NM / wl, drude, extra, n_med**2, 2 * np.pi * n_med / wl,
             depol, dyn, weights, volume, NM2_TO_M2)
     except _compiled.Unavailable:
@@ -403,7 +404,7 @@ def _dipole_ellipsoid_compiled(mat, core_axes, core_L, wl, n_med, pol, surface_d
         scratch = {"warnings": [], "surface_damping": []}
         return [_eps_with_damping(mat, wl, core_L, surface_damping, damping_A, scratch, label)]
 
-    return sa, ss, se, eps_thunk
+    return sa, ss, se, eps_thunk, n_bad > 0
 
 
 def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
@@ -454,6 +455,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
                                  "is neglected (real part of its index used)")
     n_med = n_med_c.real
     backend = "numpy"
+    nonfinite = None  # a solver that already knows sets it
 
     if isinstance(particle, (Sphere, LayeredSphere)):
         layers = particle.layers
@@ -504,7 +506,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
                                               surface_damping, damping_A, notes, label)
         shell_axes = None
         if fast is not None:
-            sa, ss, se, used_eps = fast
+            sa, ss, se, used_eps, nonfinite = fast
             backend = "compiled (numba)"
         else:
             eps_core = _eps_with_damping(particle.material, wl, core_L, surface_damping, damping_A, notes,
@@ -536,7 +538,9 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
     else:
         raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere or Ellipsoid")
 
-    if not (np.isfinite(np.sum(sa)) and np.isfinite(np.sum(se))):  # sums: one pass, no temporaries
+    if nonfinite is None:
+        nonfinite = not (np.isfinite(np.sum(sa)) and np.isfinite(np.sum(se)))  # one pass, no temporaries
+    if nonfinite:
         notes["warnings"].append("non-finite cross-sections at some wavelengths (check inputs)")
     meta = {
         "particle": particle.describe(),

@@ -190,11 +190,20 @@ def depolarization_factors(a, b, c):
     a, b, c = a / s, b / s, c / s
     abc3 = a * b * c / 3.0
     a2, b2, c2 = a * a, b * b, c * c
-    return (
-        abc3 * special.elliprd(b2, c2, a2),
-        abc3 * special.elliprd(c2, a2, b2),
-        abc3 * special.elliprd(a2, b2, c2),
-    )
+
+    def factor(i):
+        return abc3 * special.elliprd(*((b2, c2, a2), (c2, a2, b2), (a2, b2, c2))[i])
+
+    # a spheroid's two equal axes share one factor: evaluate each distinct axis once
+    La = factor(0)
+    Lb = La if np.array_equal(*np.broadcast_arrays(a, b)) else factor(1)
+    if np.array_equal(*np.broadcast_arrays(c, b)):
+        Lc = Lb
+    elif np.array_equal(*np.broadcast_arrays(c, a)):
+        Lc = La
+    else:
+        Lc = factor(2)
+    return La, Lb, Lc
 
 
 def spheroid_depolarization(aspect_ratio):

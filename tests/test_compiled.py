@@ -54,7 +54,7 @@ def test_kernel_matches_numpy_formulas(axes_idx, weights):
     depol = np.stack([L[i] for i in axes_idx])
     dyn = np.stack([D[i] / (4 * np.pi * semi[i]) for i in axes_idx])
     vol = 4 / 3 * np.pi * a * b * c
-    sa, ss, se, n_clip = _compiled.ellipsoid_mlwa_map(
+    sa, ss, se, n_clip, n_bad = _compiled.ellipsoid_mlwa_map(
         eps_bulk, energy, (model.plasma_energy_eV**2, model.damping_eV), extra, n_med**2, k,
         depol, dyn, np.array(weights), vol, 1.0)
 
@@ -69,7 +69,7 @@ def test_kernel_matches_numpy_formulas(axes_idx, weights):
         ref = [r + w * x for r, x in zip(ref, qs.cross_sections(alpha, k, corrected=True))]
     for got, want in zip((sa, ss, se), ref):
         _close(got, want, rtol=1e-11)
-    assert np.all(sa >= 0)
+    assert np.all(sa >= 0) and n_bad == 0
 
 
 CASES = [
@@ -177,3 +177,14 @@ def test_spectrum_with_deferred_eps_pickles():
     t = pickle.loads(pickle.dumps(s))
     np.testing.assert_array_equal(t.sigma_abs_m2, s.sigma_abs_m2)
     np.testing.assert_array_equal(t.layer_eps[0], s.layer_eps[0])
+
+
+def test_index_matched_lossless_particle_gives_zero_in_both_paths(monkeypatch):
+    """A lossless ellipsoid with the medium's own index has no polarisability (B&H eq. 5.32: alpha = 0)."""
+    wl = np.linspace(500, 900, 5)
+    fast = nanoabs.spectrum(spheroid(1.5, np.array([[60.0]]), 20.0), wl, medium=1.5)
+    monkeypatch.setattr(_compiled, "ENABLED", False)
+    slow = nanoabs.spectrum(spheroid(1.5, np.array([[60.0]]), 20.0), wl, medium=1.5)
+    assert fast.metadata["solver_backend"] == "compiled (numba)"
+    for s in (fast, slow):
+        assert np.all(s.sigma_ext_m2 == 0) and not any("non-finite" in w for w in s.metadata["warnings"])
