@@ -5,7 +5,7 @@ Usage::
 
     python bench/run.py [--quick] [--repeats N] [--json out.json [--force]]
 
-Cases (all in one run, ``time.perf_counter``, best of N repeats; N = 3, or 1
+Cases (all in one run, ``time.perf_counter``, best of N repeats; N = 5, or 1
 with ``--quick``, or ``--repeats N``):
 
 baseline
@@ -244,7 +244,7 @@ def main(argv=None):
     ap.add_argument("--quick", action="store_true",
                     help="1 repeat; baseline on every 10th radius, scaled to the full grid")
     ap.add_argument("--repeats", type=int, metavar="N",
-                    help="repeats per case, best kept (default 3, or 1 with --quick)")
+                    help="repeats per case, best kept (default 5, or 1 with --quick)")
     ap.add_argument("--json", metavar="PATH", help="write the numbers to PATH (JSON)")
     ap.add_argument("--force", action="store_true", help="overwrite an existing --json file")
     args = ap.parse_args(argv)
@@ -253,7 +253,7 @@ def main(argv=None):
 
     if args.repeats is not None and args.repeats < 1:
         ap.error(f"--repeats {args.repeats}: must be an integer >= 1")
-    repeats = args.repeats or (1 if args.quick else 3)
+    repeats = args.repeats or (1 if args.quick else 5)
     stride = 10 if args.quick else 1
     t_start = time.perf_counter()
     facts = machine_facts()
