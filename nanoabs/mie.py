@@ -224,17 +224,17 @@ def _real_if_lossless(a):
 
 def _psixi0(z):
     """psi_0(z) xi_0(z) = (1 - exp(2iz))/2 (Yang 2003, eq. 20 (from memory))."""
-    return -0.5 * np.expm1(2j * z)
+    return -0.5 * _expm1_2iz(z)
 
 
 def _psi_ratio0(z1, z2):
     """psi_0(z1)/psi_0(z2) = sin z1 / sin z2, written without overflow for Im z >= 0."""
-    return np.exp(-1j * (z1 - z2)) * np.expm1(2j * z1) / np.expm1(2j * z2)
+    return np.exp(-1j * (z1 - z2)) * _expm1_2iz(z1) / _expm1_2iz(z2)
 
 
 def _q0(z1, z2):
     """Q_0 = [psi_0/xi_0](z1) / [psi_0/xi_0](z2) (Yang 2003, eq. 19 (from memory))."""
-    return np.exp(2j * (z2 - z1)) * np.expm1(2j * z1) / np.expm1(2j * z2)
+    return np.exp(2j * (z2 - z1)) * _expm1_2iz(z1) / _expm1_2iz(z2)
 
 
 def _expm1_2iz(z):
@@ -354,7 +354,6 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
         )
         G2a_s[0] = 1.0
         G2b_s[0] = 1.0
-    s_ext = np.zeros(P)
     s_sca = np.zeros(P)
     s_abs = np.zeros(P)
     s_g = np.zeros(P)
@@ -423,7 +422,6 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
             AT[L - 1, n - 1] = np.where(keep, -1j * inv_xix / da, 0)
             AS[L - 1, n - 1] = np.where(keep, -1j * m[-1] * inv_xix / db, 0)
         c = 2 * n + 1
-        s_ext += c * (an.real + bn.real)
         s_sca += c * (an.real**2 + an.imag**2 + bn.real**2 + bn.imag**2)
         s_abs += c * t_abs
         s_back += c * (-1) ** n * (an - bn)
@@ -431,7 +429,7 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
         s_g += (c / (n * (n + 1))) * (an * bn.conj()).real
         a_prev, b_prev = an, bn
 
-    out.update(s_ext=s_ext, s_sca=s_sca, s_abs=s_abs, s_g=s_g, s_back=s_back)
+    out.update(s_sca=s_sca, s_abs=s_abs, s_g=s_g, s_back=s_back)
     if want_profile:
         # boundary amplitudes carried inward: T continuous, S/m continuous at every interface
         for l in range(L - 1, 0, -1):

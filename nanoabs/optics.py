@@ -381,12 +381,12 @@ def _dipole_ellipsoid_compiled(mat, core_axes, core_L, wl, n_med, pol, surface_d
     weights = np.array([w for _, w in picks])
     volume = 4.0 / 3.0 * np.pi * axes[0] * axes[1] * axes[2]
     local = {"warnings": [], "surface_damping": []}  # merged into notes only if this path is taken
-    extra = _damping_extra_eV(mat, core_L, surface_damping, damping_A, local, label)
-    if extra is None:
+    extra_G = _damping_extra_eV(mat, core_L, surface_damping, damping_A, local, label)
+    if extra_G is None:
         drude, extra = (0.0, 0.0), np.zeros(volume.shape)
     else:
         drude = (mat.model.plasma_energy_eV**2, mat.model.damping_eV)
-        extra = np.broadcast_to(extra, G).reshape(-1)
+        extra = np.broadcast_to(extra_G, G).reshape(-1)
     try:
         sa, ss, se, n_clip, n_bad = _compiled.ellipsoid_mlwa_map(
             mat.permittivity(wl), HC_EV_NM / wl, drude, extra, n_med**2, 2 * np.pi * n_med / wl,
@@ -400,9 +400,10 @@ def _dipole_ellipsoid_compiled(mat, core_axes, core_L, wl, n_med, pol, surface_d
     shape = G[:-1] + wl.shape if G else wl.shape
     sa, ss, se = (x.reshape(shape) for x in (sa, ss, se))
 
-    def eps_thunk():
-        scratch = {"warnings": [], "surface_damping": []}
-        return [_eps_with_damping(mat, wl, core_L, surface_damping, damping_A, scratch, label)]
+    def eps_thunk():  # the permittivity the numpy path would have used (notes already made)
+        if extra_G is None:
+            return [np.asarray(mat.permittivity(wl), dtype=complex)]
+        return [damped_permittivity(mat, wl, extra_G)[0]]
 
     return sa, ss, se, eps_thunk, n_bad > 0
 
@@ -593,8 +594,9 @@ def _check_dipole_validity(axes, wl, n_med, method, notes):
     # when the geometry varies with wavelength)
     if a_max.ndim and a_max.shape[-1] == wl.size:
         a_max = a_max.reshape(-1, wl.size).max(axis=0)
-    ratio = np.asarray(validity_ratio(float(a_max.max()) if a_max.ndim and a_max.shape[-1] != wl.size
-                                      else a_max, wl, n_medium=n_med))
+    else:
+        a_max = a_max.max()
+    ratio = np.asarray(validity_ratio(a_max, wl, n_medium=n_med))
     limit = STRICT_VALIDITY if method == "quasistatic" else CORRECTED_VALIDITY
     if np.any(ratio > limit):
         bad = wl[np.broadcast_to(ratio > limit, wl.shape)]

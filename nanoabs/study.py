@@ -453,8 +453,8 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
         from .hotcarriers import FREE_ELECTRON, escape_cone_yield, fowler_yield, photon_energy_eV
 
         names = [_main_metal(p).name for _, p in particles]
-        names += [material(m).name for m in (doc.get("search") or {}).get("materials", ["Au"])] \
-            if doc.get("search") else []
+        if doc.get("search"):
+            names += [material(m).name for m in doc["search"].get("materials", ["Au"])]
         E = photon_energy_eV(wl)
         if det.get("fermi_energy_eV") is not None:
             fermi = [("", float(det["fermi_energy_eV"]))]
