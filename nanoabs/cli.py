@@ -9,10 +9,12 @@ from __future__ import annotations
 
 import argparse
 import sys
+import warnings
 
 import numpy as np
 
 from . import __version__
+from .validity import NanoabsWarning
 from ._errors import NanoabsError
 
 EXIT_INTERNAL = 1
@@ -602,16 +604,22 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _run(argv) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "func", None) is None:
+        parser.print_help()
+        return 0
+    return int(args.func(args) or 0)
+
+
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else list(argv)
     debug = "--debug" in argv
     try:
-        parser = build_parser()
-        args = parser.parse_args(argv)
-        if getattr(args, "func", None) is None:
-            parser.print_help()
-            return 0
-        return int(args.func(args) or 0)
+        with warnings.catch_warnings():  # the commands print the cautions themselves ("warning: ...")
+            warnings.simplefilter("ignore", NanoabsWarning)
+            return _run(argv)
     except NanoabsError as exc:
         print(f"nanoabs: error: {exc}", file=sys.stderr)
         return exc.exit_code

@@ -262,7 +262,7 @@ def _make_plan(shape, params, wavelength_nm, *, material, core, medium, polariza
     wl = check_finite_array("wavelength_nm", wavelength_nm, increasing=True)
     if np.any(wl <= 0):
         raise NanoabsError(f"wavelength_nm = {float(wl.min()):g} nm: must be > 0")
-    method = check_choice("method", method, METHODS)
+    method = check_choice("method", method, ["auto", *METHODS])
     if shape == "spheroid":
         polarization = check_choice("polarization", polarization, ["long", "short", "random", "x", "y", "z"])
     elif shape == "ellipsoid":
@@ -1396,7 +1396,7 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     for name, v, lim in (("top", top, 1000), ("n_starts", n_starts, 20)):
         if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or not 1 <= v <= lim:
             raise NanoabsError(f"{name} = {v!r}: allowed range is 1 to {lim} (integer)")
-    method = check_choice("method", method, METHODS)
+    method = check_choice("method", method, ["auto", *METHODS])
     if any(f in ("rod", "disc") for f in families):
         polarization = check_choice("polarization", polarization, ["long", "short", "random", "x", "y", "z"])
     settings = {"method": method, "polarization": polarization, "surface_damping": bool(surface_damping)}
