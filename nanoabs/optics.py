@@ -236,13 +236,23 @@ def _check_particle(particle):
         raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere or Ellipsoid")
 
 
-def _environment(medium):
+def _environment(medium, environment):
+    """The environment object: ``environment`` as given, or a homogeneous host of ``medium``."""
     from .materials import material
 
+    if environment is not None:
+        if medium is not None:
+            raise NanoabsError("medium and environment: give one or the other (the environment names the "
+                               "particle's host)")
+        if not hasattr(environment, "apply"):
+            raise NanoabsError(f"environment = {environment!r}: expected an environment object such as "
+                               "nanoabs.solvers.Homogeneous")
+        return environment
+    medium = "water" if medium is None else medium
     return Homogeneous(material(medium) if not hasattr(medium, "permittivity") else medium)
 
 
-def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
+def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: str = "auto",
              polarization: str = "random", surface_damping: bool = True,
              damping_A: float = 1.0) -> Spectrum:
     """Absorption, scattering and extinction spectra of one particle in a medium.
@@ -255,6 +265,9 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
     medium : str, float or Material, keyword-only
         Embedding medium (default water). Must be non-absorbing at the
         wavelengths used (cross-sections in an absorbing host are ill-defined).
+    environment : environment object, keyword-only
+        Where the particle sits and how it is lit (instead of ``medium``); the
+        default is a homogeneous host of ``medium``.
     method : str, keyword-only
         A name in :data:`nanoabs.solvers.METHODS` ("mie", "miepython",
         "quasistatic", "mlwa", ...) or "auto" (the rule of
@@ -281,7 +294,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
     if np.any(wl <= 0):
         raise NanoabsError(f"wavelength = {wl.min():g} nm: must be > 0")
     _check_particle(particle)
-    env = _environment(medium)
+    env = _environment(medium, environment)
     solver, reason = choose(method, particle, env)
     pol = resolve_polarization(particle, polarization)
     n_med, cautions = env.host_index(wl)
@@ -311,7 +324,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
         "efficiency_reference_area": ref_area,
         "q_abs_eqvol_reference_area": "pi r_v^2 of the equal-volume sphere",
         "environment": env.describe(),
-        "medium": env.medium.metadata(),
+        "medium": env.medium.metadata() if hasattr(env, "medium") else None,
         "materials": [m.metadata() for m in particle.layer_materials()],
         "surface_damping": notes["surface_damping"] if surface_damping else "off",
         "warnings": [c.message for c in cautions],
