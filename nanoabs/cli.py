@@ -234,9 +234,11 @@ def _cmd_spectrum(args) -> int:
             print(f"{r.wavelength_nm:13.1f} {r.sigma_abs_m2:13.4e} {r.sigma_sca_m2:13.4e} {r.q_abs:8.4f} "
                   f"{r.q_sca:8.4f}")
     fwhm = summ["fwhm_nm"]
-    print(f"method {spec.metadata['method']}; absorption peak {summ['peak_wavelength_nm']:.1f} nm, "
-          f"FWHM {'not resolved in the grid' if fwhm != fwhm else f'{fwhm:.1f} nm'}, "
-          f"sigma_abs {summ['peak_sigma_abs_m2']:.4g} m^2, Q_abs {summ['peak_q_abs']:.3g}, "
+    peak = (f"absorption peak {summ['peak_wavelength_nm']:.1f} nm" if summ["peak_status"] == "peak"
+            else f"no absorption peak in the window ({summ['peak_status']})")
+    width = f"FWHM {fwhm:.1f} nm" if fwhm == fwhm else f"FWHM not given ({summ['fwhm_status']})"
+    print(f"method {spec.metadata['method']}; {peak}, {width}, "
+          f"largest sigma_abs {summ['peak_sigma_abs_m2']:.4g} m^2, Q_abs {summ['peak_q_abs']:.3g}, "
           f"absorbed fraction {summ['absorbed_fraction_at_peak']:.3f}")
     if args.plot:
         from .plotting import plot_spectra, save_figure

@@ -128,27 +128,99 @@ class Spectrum:
         return self.sigma_abs_m2 / (3.0 * lam_m**2 / (8.0 * np.pi))
 
     def peak_wavelength_nm(self):
-        """Wavelength of maximum σ_abs on the grid, refined by a parabola through the top 3 points."""
+        """Wavelength of maximum σ_abs [nm], refined by a parabola through the top 3 points.
+
+        NaN when the maximum sits on the first or last grid point: that is not a peak
+        (the absorption rises beyond the window); :meth:`summary` says which end.
+        """
         return _peak(self.wavelength_nm, self.sigma_abs_m2)
 
     def fwhm_nm(self):
-        """Full width at half maximum of σ_abs [nm]; NaN when the half maximum is not reached inside
-        the grid on both sides of the peak (the peak is cut by the grid edge)."""
+        """Full width at half maximum of σ_abs [nm]; NaN when there is no peak inside the window or
+        the half maximum is not reached inside it on one side (:meth:`summary` says which)."""
         return _fwhm(self.wavelength_nm, self.sigma_abs_m2)
 
     def summary(self) -> dict:
-        """Scalar summary of a single-particle spectrum."""
+        """Scalar summary of a single-particle spectrum.
+
+        ``peak_status`` is "peak" or says that the absorption rises beyond one end of the
+        window (then ``peak_wavelength_nm`` is NaN); ``fwhm_status`` is "resolved" or says why
+        ``fwhm_nm`` is NaN. The ``*_at_peak`` values are taken at the largest σ_abs in the window.
+        """
         if np.ndim(self.sigma_abs_m2) != 1:
             raise NanoabsError("summary() is for one particle; index the family first")
         i = int(np.argmax(self.sigma_abs_m2))
         return {
             "peak_wavelength_nm": float(self.peak_wavelength_nm()),
+            "peak_status": _peak_status(self.wavelength_nm, self.sigma_abs_m2),
             "fwhm_nm": float(self.fwhm_nm()),
+            "fwhm_status": _fwhm_status(self.wavelength_nm, self.sigma_abs_m2),
             "peak_sigma_abs_m2": float(self.sigma_abs_m2[i]),
             "peak_q_abs": float(self.q_abs[i]),
             "absorbed_fraction_at_peak": float(self.absorbed_fraction[i]),
             "dipole_bound_ratio_at_peak": float(self.dipole_bound_ratio[i]),
         }
+
+    # -- looking at it ----------------------------------------------------------
+    def _headline(self) -> str:
+        m = self.metadata
+        part = m.get("particle", {})
+        env = m.get("environment", {})
+        host = (env.get("medium") or {}).get("material", env.get("kind", "?")) if isinstance(env, dict) else "?"
+        fam = "" if np.ndim(self.sigma_abs_m2) == 1 else f", family of shape {np.shape(self.sigma_abs_m2)[:-1]}"
+        return (f"{part.get('shape', 'particle')} of {part.get('material', part.get('core', '?'))} in {host}; "
+                f"method {m.get('method', '?')}; {self.wavelength_nm.size} wavelengths "
+                f"{self.wavelength_nm[0]:g}-{self.wavelength_nm[-1]:g} nm{fam}")
+
+    def __repr__(self) -> str:
+        lines = [f"Spectrum({self._headline()})"]
+        if np.ndim(self.sigma_abs_m2) == 1:
+            sm = self.summary()
+            peak = (f"peak {sm['peak_wavelength_nm']:.1f} nm" if sm["peak_status"] == "peak"
+                    else sm["peak_status"])
+            lines.append(f"  {peak}; largest sigma_abs {sm['peak_sigma_abs_m2']:.3g} m^2, "
+                         f"Q_abs {sm['peak_q_abs']:.3g}")
+        n = len(self.metadata.get("cautions", []))
+        if n:
+            lines.append(f"  {n} caution(s): see .metadata['cautions']")
+        return "\n".join(lines)
+
+    def _repr_html_(self) -> str:
+        import html
+
+        rows = "".join(f"<li>{html.escape(c['message'])}</li>" for c in self.metadata.get("cautions", []))
+        body = html.escape(repr(self)).replace("\n", "<br>")
+        return f"<div><b>nanoabs Spectrum</b><br>{body}" + (f"<ul>{rows}</ul>" if rows else "") + "</div>"
+
+    def plot(self, ax=None, quantity: str = "sigma_abs_m2", **line_kw):
+        """Plot one quantity against wavelength; returns the matplotlib Axes.
+
+        Parameters
+        ----------
+        ax : matplotlib Axes, optional
+            Where to draw (a new figure through pyplot when omitted, so notebooks show it).
+        quantity : str
+            A column of :data:`FRAME_COLUMNS` (default ``"sigma_abs_m2"``); cross-sections
+            are drawn in nm².
+        **line_kw
+            Passed to ``Axes.plot`` (``label``, ``color``, ...).
+        """
+        from .plotting import spectrum_axes
+
+        return spectrum_axes(self, quantity, ax=ax, **line_kw)
+
+    def to_xarray(self, dims=None):
+        """The spectrum (or family) as an :class:`xarray.Dataset` with CF-style ``units`` attributes.
+
+        Parameters
+        ----------
+        dims : sequence of str, optional
+            Names of the leading (family) dimensions; ``index_0, index_1, ...`` by default.
+            The last dimension is always ``wavelength_nm``.
+        """
+        from .dataset import spectrum_dataset
+
+        return spectrum_dataset(self, dims)
 
     def write(self, path, *, force: bool = False):
         """Export :meth:`to_frame` with :data:`UNITS`, the metadata and :meth:`summary` (CSV + JSON)."""
@@ -170,37 +242,84 @@ class Spectrum:
         return pd.DataFrame(data, columns=FRAME_COLUMNS)
 
 
+PEAK_STATUS = ("peak", "rises beyond the short end of the window", "rises beyond the long end of the window",
+               "no maximum")
+
+
+def _peak_status(wl, y) -> str:
+    """Where the maximum of ``y`` sits: a peak inside the window, or a rise beyond one of its ends.
+
+    A maximum on the first or last grid point is not a peak: the curve may keep rising
+    outside the window (common practice in reporting resonances).
+    """
+    y = np.asarray(y, dtype=float)
+    if y.size == 0 or not np.any(np.isfinite(y)) or np.nanmax(y) <= np.nanmin(y):
+        return PEAK_STATUS[3]
+    i = int(np.nanargmax(y))
+    if i == 0:
+        return PEAK_STATUS[1]
+    if i == y.size - 1:
+        return PEAK_STATUS[2]
+    return PEAK_STATUS[0]
+
+
 def _peak(wl, y):
-    y = np.asarray(y)
-    i = np.argmax(y, axis=-1)
-    if y.ndim == 1:
-        if 0 < i < len(wl) - 1:
-            x0, x1, x2 = wl[i - 1:i + 2]
-            y0, y1, y2 = y[i - 1:i + 2]
-            den = (x0 - x1) * (x0 - x2) * (x1 - x2)
-            A = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den
-            B = (x2**2 * (y0 - y1) + x1**2 * (y2 - y0) + x0**2 * (y1 - y2)) / den
-            if A < 0:
-                return float(np.clip(-B / (2 * A), x0, x2))
-        return float(wl[i])
-    return np.apply_along_axis(lambda r: _peak(wl, r), -1, y)
-
-
-def _fwhm(wl, y):
+    """Wavelength of the maximum, refined by a parabola through the top 3 points; NaN unless it is a
+    peak inside the window (see :func:`_peak_status`). Works along the last axis."""
     y = np.asarray(y)
     if y.ndim > 1:
-        return np.apply_along_axis(lambda r: _fwhm(wl, r), -1, y)
-    i = int(np.argmax(y))
+        return np.apply_along_axis(lambda r: _peak(wl, r), -1, y)
+    if _peak_status(wl, y) != PEAK_STATUS[0]:
+        return float("nan")
+    i = int(np.nanargmax(y))
+    x0, x1, x2 = wl[i - 1:i + 2]
+    y0, y1, y2 = y[i - 1:i + 2]
+    den = (x0 - x1) * (x0 - x2) * (x1 - x2)
+    A = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den
+    B = (x2**2 * (y0 - y1) + x1**2 * (y2 - y0) + x0**2 * (y1 - y2)) / den
+    return float(np.clip(-B / (2 * A), x0, x2)) if A < 0 else float(x1)
+
+
+def _half_max_crossings(wl, y):
+    """(short-side crossing, long-side crossing) of half the peak [nm], NaN where not reached."""
+    i = int(np.nanargmax(y))
     half = y[i] / 2.0
     left = np.flatnonzero(y[:i] < half)
     right = np.flatnonzero(y[i:] < half)
-    if left.size == 0 or right.size == 0 or half <= 0:
+    xl = xr = float("nan")
+    if left.size:
+        j = left[-1]
+        xl = float(np.interp(half, [y[j], y[j + 1]], [wl[j], wl[j + 1]]))
+    if right.size:
+        k = i + right[0]
+        xr = float(np.interp(half, [y[k], y[k - 1]], [wl[k], wl[k - 1]]))
+    return xl, xr
+
+
+def _fwhm_status(wl, y) -> str:
+    """Why a width is or is not given: "resolved", the peak status, or the side where the half
+    maximum is never reached inside the window."""
+    y = np.asarray(y, dtype=float)
+    status = _peak_status(wl, y)
+    if status != PEAK_STATUS[0]:
+        return status
+    xl, xr = _half_max_crossings(wl, y)
+    if xl == xl and xr == xr:
+        return "resolved"
+    side = ("both sides" if xl != xl and xr != xr else "the short-wavelength side" if xl != xl
+            else "the long-wavelength side")
+    return f"half maximum not reached on {side} inside the window"
+
+
+def _fwhm(wl, y):
+    """Full width at half maximum [nm]; NaN unless resolved (see :func:`_fwhm_status`)."""
+    y = np.asarray(y, dtype=float)
+    if y.ndim > 1:
+        return np.apply_along_axis(lambda r: _fwhm(wl, r), -1, y)
+    if _peak_status(wl, y) != PEAK_STATUS[0]:
         return float("nan")
-    j = left[-1]
-    xl = np.interp(half, [y[j], y[j + 1]], [wl[j], wl[j + 1]])
-    k = i + right[0]
-    xr = np.interp(half, [y[k], y[k - 1]], [wl[k], wl[k - 1]])
-    return float(xr - xl)
+    xl, xr = _half_max_crossings(wl, y)
+    return xr - xl
 
 
 # -- surface damping -----------------------------------------------------------
