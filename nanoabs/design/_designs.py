@@ -9,8 +9,9 @@ spheroid kind) group.
 
 from __future__ import annotations
 
-import json
 from collections.abc import Mapping
+
+import math
 
 import numpy as np
 
@@ -19,6 +20,8 @@ from ..optics import METHODS, spectrum
 from ..particles import MONOLAYER_NM, Ellipsoid, LayeredSphere, Sphere, spheroid
 from ._engine import unique
 
+#: Largest size [nm] (radius, thickness, length, diameter, semi-axis) a design may have: 100 um.
+MAX_SIZE_NM = 1e5
 #: Shape families of :func:`nanoabs.design.sweep` and :func:`nanoabs.design.ensemble_average`.
 SHAPES = ("sphere", "shell", "spheroid", "ellipsoid")
 
@@ -52,18 +55,6 @@ def _material_meta(value) -> dict:
     m = _resolve_material(value)
     meta = m.metadata() if callable(getattr(m, "metadata", None)) else {}
     return meta if isinstance(meta, dict) else {"description": str(meta)}
-
-
-def _token(value) -> str:
-    """Stable text identifying a material/medium for the argument hash."""
-    if isinstance(value, (str, int, float)) and not isinstance(value, bool):
-        return repr(value)
-    try:
-        meta = json.dumps(_material_meta(value), sort_keys=True, default=str)
-    except Exception:  # noqa: BLE001 - any user object: fall back on its repr
-        meta = ""
-    return f"{type(value).__name__}|{_material_label(value)}|{meta}|{getattr(value, 'model', None)!r}"
-
 
 
 def _allowed_names(shape):
@@ -100,6 +91,9 @@ def _canonical_params(shape, params, *, what="params"):
         if np.any(arr <= 0):
             raise NanoabsError(f"{what}[{key!r}] = {float(arr[arr <= 0][0]):g}: must be > 0"
                                f"{' nm' if name.endswith('_nm') else ''}")
+        if name.endswith("_nm") and np.any(arr > MAX_SIZE_NM):
+            raise NanoabsError(f"{what}[{key!r}] = {float(arr.max()):g} nm: allowed range is up to "
+                               f"{MAX_SIZE_NM:g} nm (larger particles are outside what these solvers are for)")
         if name == "thickness_nm" and np.any(arr < MONOLAYER_NM):
             raise NanoabsError(f"{what}[{key!r}] = {float(arr.min()):g} nm: allowed range is at least "
                                f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
@@ -142,7 +136,7 @@ def _make_plan(shape, params, wavelength_nm, *, material, core, medium, polariza
     lengths = [len(canon[n]) for n in names]
     plan = {
         "shape": shape, "names": names, "values": [canon[n] for n in names], "lengths": lengths,
-        "n_designs": int(np.prod(lengths, dtype=np.int64)), "wavelength_nm": wl,
+        "n_designs": math.prod(lengths), "wavelength_nm": wl,
         "material": material, "core": core, "medium": medium, "polarization": polarization,
         "method": method, "surface_damping": bool(surface_damping), "chunk_size": int(chunk_size),
     }

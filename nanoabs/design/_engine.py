@@ -9,6 +9,7 @@ resumes from them, and writes the final CSV + JSON sidecar atomically.
 
 from __future__ import annotations
 
+import hashlib
 import itertools
 import json
 import re
@@ -162,9 +163,19 @@ def part_paths(workdir: Path, i: int):
     return workdir / f"chunk_{i:06d}.csv", workdir / f"chunk_{i:06d}.json"
 
 
-def prepare_workdir(workdir: Path, digest: str, n_chunks, force, **manifest_extra):
-    """Create or reuse the work folder; the set of chunk indices already finished."""
+def prepare_workdir(workdir: Path, digest: str, n_chunks, force, chunk_rows, **manifest_extra):
+    """Create or reuse the work folder; the set of chunk indices already finished and valid.
+
+    ``digest`` identifies everything that determines the numbers (see the resume rule in
+    :func:`nanoabs.design.sweep`). A work folder of another identity is refused unless
+    ``force`` (then discarded). A part file is accepted only if its own sidecar records
+    the same identity, the row count ``chunk_rows(i)`` and the SHA-256 of the CSV bytes;
+    any other part (truncated, edited, of another run) is deleted and recomputed.
+    """
     manifest = workdir / "manifest.json"
+    if workdir.exists() and not workdir.is_dir():
+        raise NanoabsError(f"work directory {str(workdir)!r} exists and is a file: remove it or choose another "
+                           "out path")
     if workdir.exists():
         try:
             doc = json.loads(manifest.read_text(encoding="utf-8"))
@@ -176,20 +187,44 @@ def prepare_workdir(workdir: Path, digest: str, n_chunks, force, **manifest_extr
         if doc.get("hash") != digest:
             if not force:
                 raise NanoabsError(f"work directory {str(workdir)!r} holds chunks of a sweep with different "
-                                   "arguments: pass force=True to discard them, or choose another out path")
+                                   "arguments or input data (material tables, package version): pass "
+                                   "force=True (CLI: --force) to discard them, or choose another out path")
             shutil.rmtree(workdir)
     if not workdir.exists():
         workdir.mkdir()
         atomic_write_text(manifest, json.dumps({
-            "format": PARTS_FORMAT, "format_version": 1, "hash": digest, "n_chunks": n_chunks, **manifest_extra,
+            "format": PARTS_FORMAT, "format_version": 2, "hash": digest, "n_chunks": n_chunks, **manifest_extra,
             "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
             "package_version": __version__}, indent=2) + "\n")
-    return {i for i in range(n_chunks) if all(p.is_file() for p in part_paths(workdir, i))}
+    for tmp in workdir.glob(".*.tmp"):  # left by a killed writer; we hold the lock
+        tmp.unlink(missing_ok=True)
+    finished = set()
+    for i in range(n_chunks):
+        if _part_is_valid(workdir, i, digest, chunk_rows(i)):
+            finished.add(i)
+        else:
+            for path in part_paths(workdir, i):
+                path.unlink(missing_ok=True)
+    return finished
 
 
-def write_part(workdir: Path, i: int, text, info):
+def _part_is_valid(workdir, i, digest, rows):
     csv_path, info_path = part_paths(workdir, i)
-    atomic_write_text(info_path, json.dumps(info) + "\n")  # the CSV appearing marks the chunk finished
+    try:
+        info = json.loads(info_path.read_text(encoding="utf-8"))
+        data = csv_path.read_bytes()
+    except (OSError, ValueError):
+        return False
+    return (isinstance(info, dict) and info.get("identity") == digest and info.get("rows") == rows
+            and info.get("sha256") == hashlib.sha256(data).hexdigest())
+
+
+def write_part(workdir: Path, i: int, text, info, *, identity, rows):
+    """Chunk ``i`` as a part file plus its sidecar (identity, row count, SHA-256 of the CSV bytes)."""
+    csv_path, info_path = part_paths(workdir, i)
+    data = text.encode("utf-8")
+    doc = {**info, "identity": identity, "rows": int(rows), "sha256": hashlib.sha256(data).hexdigest()}
+    atomic_write_text(info_path, json.dumps(doc) + "\n")  # the CSV appearing marks the chunk finished
     atomic_write_text(csv_path, text)
 
 
@@ -244,12 +279,13 @@ def write_final(out: Path, workdir: Path, n_chunks: int, frame0, units, metadata
                                   (targets[1], lambda fh: fh.write(export._json_text(doc, None)))])
 
 
-def collect(fn, plan, n_chunks, *, executor=None, progress=True, label="", workdir=None, finished=(),
-            keep=True, read_kw=None):
+def collect(fn, plan, n_chunks, *, executor=None, progress=True, label="", workdir=None, identity=None,
+            finished=(), keep=True, read_kw=None):
     """Run the chunks not yet ``finished`` and gather every chunk's result in index order.
 
-    ``fn(plan, i)`` returns (frame, info dict, CSV text or None). With a ``workdir``
-    each new chunk is written there as a part file as it arrives, and ``finished``
+    ``fn(plan, i)`` returns (frame, info dict, CSV text or None); ``info["rows"]`` is the
+    chunk's row count when the frame is cut short. With a ``workdir`` each new chunk is
+    written there as a part file (recorded with ``identity``) as it arrives, and ``finished``
     chunks are read back from it (``read_kw``: see :func:`read_part`). Returns
     (frames, first rows, infos): the list of chunk frames (None unless ``keep``),
     a one-row frame with the columns and dtypes, and the list of chunk infos.
@@ -272,7 +308,8 @@ def collect(fn, plan, n_chunks, *, executor=None, progress=True, label="", workd
         with closing(run_chunks(executor, fn, plan, todo)) as results:
             for i, (frame, info, text) in results:
                 if workdir is not None:
-                    write_part(workdir, i, text if text is not None else csv_text(frame), info)
+                    write_part(workdir, i, text if text is not None else csv_text(frame), info,
+                               identity=identity, rows=info.get("rows", len(frame)))
                 take(i, frame, info)
                 bar.update()
     finally:

@@ -17,8 +17,10 @@ from .._errors import NanoabsError
 from ..optics import UNITS as _SPECTRUM_UNITS
 from . import _engine
 from ._designs import (_GEOMETRY, _design_columns, _designs, _evaluate, _make_plan, _material_label,
-                       _material_meta, _settings, _token)
+                       _material_meta, _resolve_material, _settings)
 
+#: Largest sweep (designs x wavelengths) run without an explicit ``max_points``.
+MAX_POINTS = 100_000_000
 #: Spectral columns of a sweep table, after the design columns.
 RESULT_COLUMNS = ["wavelength_nm", "sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2",
                   "q_abs", "q_sca", "q_ext", "absorbed_fraction"]
@@ -78,12 +80,13 @@ def _compute_chunk(plan, index):
     memory only its first row is returned.
     """
     ids = _chunk_ids(plan, index)
+    W = plan["wavelength_nm"].size
     res = _evaluate(plan["shape"], _designs(plan, ids), plan["wavelength_nm"], _settings(plan))
     frame = _tidy(plan, ids, res)
     text = _engine.csv_text(frame) if plan.get("stream") else None
     if not plan.get("keep", True):
         frame = frame.head(1)
-    return frame, {"warnings": res["warnings"], "methods": res["methods"]}, text
+    return frame, {"warnings": res["warnings"], "methods": res["methods"], "rows": int(ids.size * W)}, text
 
 
 def _units(plan):
@@ -93,13 +96,42 @@ def _units(plan):
     return {c: u[c] for c in _design_columns(plan) + RESULT_COLUMNS}
 
 
+def _content_token(value, wavelength_nm) -> str:
+    """SHA-256 of everything about a material that determines the numbers.
+
+    Its class and label, metadata (material, dataset, source, range), fitted model,
+    table content (wavelengths and n + ik as parsed, or the constant index) and its
+    permittivity on the sweep's wavelengths (which covers any user object).
+    """
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return repr(float(value))
+    m = _resolve_material(value)
+    h = hashlib.sha256(f"{type(m).__name__}|{_material_label(value)}".encode())
+    h.update(json.dumps(_material_meta(m), sort_keys=True, default=str).encode())
+    model = getattr(m, "model", None)
+    h.update((json.dumps(model.to_dict(), sort_keys=True, default=str) if callable(getattr(model, "to_dict", None))
+              else repr(model)).encode())
+    for name in ("_wl", "_n", "_constant"):
+        v = getattr(getattr(m, "bulk", m), name, None)
+        if v is not None:
+            h.update(np.ascontiguousarray(v).tobytes())
+    h.update(np.ascontiguousarray(np.asarray(m.permittivity(wavelength_nm), dtype=complex)).tobytes())
+    return h.hexdigest()
+
+
 def _plan_hash(plan):
+    """The identity of a sweep: arguments, content of every material used, solver settings, package version."""
+    wl = plan["wavelength_nm"]
+    swept = dict(zip(plan["names"], plan["values"]))
     doc = {
         "shape": plan["shape"], "names": plan["names"],
-        "values": [[_token(v) for v in vals] if n in ("material", "core_material")
+        "values": [[_content_token(v, wl) for v in vals] if n in ("material", "core_material")
                    else [repr(float(v)) for v in vals] for n, vals in zip(plan["names"], plan["values"])],
-        "wavelength_nm": [repr(float(v)) for v in plan["wavelength_nm"]],
-        "material": _token(plan["material"]), "core": _token(plan["core"]), "medium": _token(plan["medium"]),
+        "wavelength_nm": hashlib.sha256(np.ascontiguousarray(wl, dtype=float).tobytes()).hexdigest(),
+        "material": None if "material" in swept else _content_token(plan["material"], wl),
+        "core": (_content_token(plan["core"], wl) if plan["shape"] == "shell" and "core_material" not in swept
+                 else None),
+        "medium": None if "medium_index" in swept else _content_token(plan["medium"], wl),
         "polarization": plan["polarization"], "method": plan["method"],
         "surface_damping": plan["surface_damping"], "chunk_size": plan["chunk_size"],
         "package_version": __version__,
@@ -140,7 +172,7 @@ def _sweep_metadata(plan, n_chunks, warnings, methods, executor_name):
 
 def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="water",
           polarization="random", method="auto", surface_damping=True, executor=None, chunk_size=64,
-          progress=None, out=None, force=False, memory_budget_MB=256.0):
+          progress=None, out=None, force=False, memory_budget_MB=256.0, max_points=MAX_POINTS):
     """Spectra of the Cartesian product of design parameters, as one tidy table.
 
     Parameters
@@ -187,11 +219,19 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
         Stream to ``out`` (a ``.csv``; a JSON sidecar with units and metadata is
         written beside it as by :func:`nanoabs.export.write_export`). Finished
         chunks go atomically to one file each in the work directory
-        ``<out>.parts/`` as they arrive; a re-run with the same arguments
-        resumes from them (a manifest holds a hash of the arguments); an
-        interruption (KeyboardInterrupt or an error) keeps them. At the end the
-        parts are concatenated into ``out`` atomically and the work directory
-        is removed.
+        ``<out>.parts/`` as they arrive; an interruption (KeyboardInterrupt,
+        an error, a killed process) keeps them. At the end the parts are
+        concatenated into ``out`` atomically and the work directory is removed.
+        Resume rule: a re-run resumes only from parts of the same *identity*,
+        a SHA-256 over the arguments, the content of every material table
+        used (tabulated n + ik, fitted model, dataset and source, permittivity
+        on the grid; user tables included), the solver settings and the
+        package version. A work directory of another identity is refused
+        unless ``force``; a part whose own sidecar does not record the same
+        identity, its expected row count and the checksum of its bytes
+        (truncated, edited) is recomputed. While it runs, the sweep holds an
+        exclusive lock (``<out>.lock``); a second writer to the same ``out``
+        is refused.
     force : bool, keyword-only
         Overwrite an existing ``out`` and discard a work directory of a sweep
         with different arguments.
@@ -200,6 +240,10 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
         in memory and the path of the written CSV is returned instead (read it
         with ``pandas.read_csv(path, chunksize=...)`` or
         :func:`nanoabs.read_export`). Default 256.
+    max_points : int, keyword-only
+        Largest number of designs x wavelengths allowed (default
+        :data:`MAX_POINTS`, 1e8, about 10 GB of CSV); a larger sweep is refused
+        unless this is raised explicitly.
 
     Returns
     -------
@@ -225,39 +269,55 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
     >>> df = sweep("sphere", {"radius_nm": [10, 20, 40]}, np.linspace(400, 800, 201), progress=False)
     >>> peaks = df.groupby("radius_nm").apply(lambda g: g.wavelength_nm[g.sigma_abs_m2.idxmax()])
     """
-    import pandas as pd
-
     plan = _make_plan(shape, params, wavelength_nm, material=material, core=core, medium=medium,
                       polarization=polarization, method=method, surface_damping=surface_damping,
                       chunk_size=chunk_size)
     budget = float(memory_budget_MB)
     if not math.isfinite(budget) or budget <= 0:
         raise NanoabsError(f"memory_budget_MB = {memory_budget_MB!r}: must be a finite number > 0")
+    rows = plan["n_designs"] * plan["wavelength_nm"].size
+    if isinstance(max_points, bool) or not isinstance(max_points, (int, np.integer)) or max_points < 1:
+        raise NanoabsError(f"max_points = {max_points!r}: must be an integer >= 1")
+    if rows > max_points:
+        raise NanoabsError(f"sweep size = {plan['n_designs']} designs x {plan['wavelength_nm'].size} wavelengths = "
+                           f"{rows:.3g} points: allowed is at most max_points = {max_points:.3g} (CLI: "
+                           "--max-points); raise it explicitly for a larger sweep")
     _probe(plan)
+    if out is None:
+        return _run(plan, rows, budget, executor, progress, None, force)
+    from ..export import check_writable, clean_stale_temps, exclusive_lock
+
+    out = Path(out)
+    if out.suffix.lower() != ".csv":
+        raise NanoabsError(f"out = {str(out)!r}: a streamed sweep is written as CSV + JSON sidecar; "
+                           "give a path ending in .csv")
+    check_writable(out, force=force)
+    with exclusive_lock(out, "sweep output"):
+        clean_stale_temps(out)
+        check_writable(out, force=force)  # again, now that no one else writes it
+        return _run(plan, rows, budget, executor, progress, out, force)
+
+
+def _run(plan, rows, budget, executor, progress, out, force):
+    """Compute (or resume) every chunk of a validated plan; the frame, or ``out`` over budget."""
+    import pandas as pd
+
     n_chunks = -(-plan["n_designs"] // plan["chunk_size"])
     units = _units(plan)
     cols = _design_columns(plan) + RESULT_COLUMNS
-    rows = plan["n_designs"] * plan["wavelength_nm"].size
     n_text = sum(c in ("material", "core_material") for c in cols)
-    est_MB = rows * (8 * (len(cols) - n_text) + 40 * n_text) / 1e6
-    workdir = None
-    finished = set()
+    keep = out is None or rows * (8 * (len(cols) - n_text) + 40 * n_text) / 1e6 <= budget
+    workdir, finished, digest = None, set(), None
     if out is not None:
-        from ..export import check_writable
-
-        out = Path(out)
-        if out.suffix.lower() != ".csv":
-            raise NanoabsError(f"out = {str(out)!r}: a streamed sweep is written as CSV + JSON sidecar; "
-                               "give a path ending in .csv")
-        check_writable(out, force=force)
-        workdir = Path(str(out) + ".parts")
-        finished = _engine.prepare_workdir(workdir, _plan_hash(plan), n_chunks, force,
+        workdir, digest = Path(str(out) + ".parts"), _plan_hash(plan)
+        W = plan["wavelength_nm"].size
+        finished = _engine.prepare_workdir(workdir, digest, n_chunks, force,
+                                           lambda i: int(_chunk_ids(plan, i).size * W),
                                            n_designs=plan["n_designs"], chunk_size=plan["chunk_size"])
-    keep = out is None or est_MB <= budget
-    plan["stream"], plan["keep"] = workdir is not None, keep  # not part of the argument hash
+    plan["stream"], plan["keep"] = workdir is not None, keep  # not part of the identity
     frames, frame0, infos = _engine.collect(
         _compute_chunk, plan, n_chunks, executor=executor, progress=progress, label=f"sweep {plan['shape']}",
-        workdir=workdir, finished=finished, keep=keep,
+        workdir=workdir, identity=digest, finished=finished, keep=keep,
         read_kw={"text_columns": ("material", "core_material"), "int_columns": ("design_id",)})
     warnings = sorted({w for info in infos for w in info["warnings"]})
     methods = sorted({m for info in infos for m in info["methods"]})
