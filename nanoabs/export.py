@@ -538,6 +538,22 @@ def read_export(path) -> tuple[pd.DataFrame, dict]:
 
 # --------------------------------------------------------------------------- other files
 
+#: Largest user input file (illumination spectrum, material table) read [bytes]: 50 MB.
+MAX_INPUT_BYTES = 50_000_000
+
+
+def check_input_file(path, what: str, *, max_bytes: int = MAX_INPUT_BYTES) -> Path:
+    """Refuse a user input file larger than ``max_bytes`` before it is parsed (bounded memory)."""
+    p = Path(path)
+    try:
+        size = p.stat().st_size
+    except OSError:
+        return p  # the reader reports a missing or unreadable file in its own words
+    if size > max_bytes:
+        raise NanoabsError(f"{what} {str(p)!r} is {size / 1e6:.0f} MB: allowed is at most {max_bytes / 1e6:.0f} MB "
+                           "(thin the table, e.g. to a 1 nm grid)")
+    return p
+
 
 def write_file_atomic(path, write, *, force: bool = False, binary: bool = False) -> Path:
     """Write any output file atomically: ``write(handle)`` fills a temporary beside it, then rename.

@@ -283,7 +283,7 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         ``attrs["units"]`` every column's unit; ``attrs["metadata"]`` inputs,
         bounds and warnings.
     """
-    cfg = _search_inputs(band_nm, families=families, objective=objective, bounds=bounds, materials=materials,
+    cfg = search_inputs(band_nm, families=families, objective=objective, bounds=bounds, materials=materials,
                          core=core, medium=medium, illumination=illumination, barrier_eV=barrier_eV,
                          fermi_energy_eV=fermi_energy_eV, min_shell_nm=min_shell_nm, max_size_nm=max_size_nm,
                          polarization=polarization, method=method, surface_damping=surface_damping,
@@ -309,7 +309,7 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     return _ranked_frame(rows, cfg, warnings)
 
 
-def _search_inputs(band_nm, *, families, objective, bounds, materials, core, medium, illumination, barrier_eV,
+def search_inputs(band_nm, *, families, objective, bounds, materials, core, medium, illumination, barrier_eV,
                    fermi_energy_eV, min_shell_nm, max_size_nm, polarization, method, surface_damping,
                    wavelength_nm, n_starts, top):
     """The validated inputs of :func:`search` as one dict; raises before any spectrum is computed."""

@@ -269,20 +269,12 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
     >>> df = sweep("sphere", {"radius_nm": [10, 20, 40]}, np.linspace(400, 800, 201), progress=False)
     >>> peaks = df.groupby("radius_nm").apply(lambda g: g.wavelength_nm[g.sigma_abs_m2.idxmax()])
     """
-    plan = _make_plan(shape, params, wavelength_nm, material=material, core=core, medium=medium,
-                      polarization=polarization, method=method, surface_damping=surface_damping,
-                      chunk_size=chunk_size)
+    plan, rows = validated_plan(shape, params, wavelength_nm, material=material, core=core, medium=medium,
+                                polarization=polarization, method=method, surface_damping=surface_damping,
+                                chunk_size=chunk_size, max_points=max_points)
     budget = float(memory_budget_MB)
     if not math.isfinite(budget) or budget <= 0:
         raise NanoabsError(f"memory_budget_MB = {memory_budget_MB!r}: must be a finite number > 0")
-    rows = plan["n_designs"] * plan["wavelength_nm"].size
-    if isinstance(max_points, bool) or not isinstance(max_points, (int, np.integer)) or max_points < 1:
-        raise NanoabsError(f"max_points = {max_points!r}: must be an integer >= 1")
-    if rows > max_points:
-        raise NanoabsError(f"sweep size = {plan['n_designs']} designs x {plan['wavelength_nm'].size} wavelengths = "
-                           f"{rows:.3g} points: allowed is at most max_points = {max_points:.3g} (CLI: "
-                           "--max-points); raise it explicitly for a larger sweep")
-    _probe(plan)
     if out is None:
         return _run(plan, rows, budget, executor, progress, None, force)
     from ..export import check_writable, clean_stale_temps, exclusive_lock
@@ -296,6 +288,28 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
         clean_stale_temps(out)
         check_writable(out, force=force)  # again, now that no one else writes it
         return _run(plan, rows, budget, executor, progress, out, force)
+
+
+def validated_plan(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="water",
+                   polarization="random", method="auto", surface_damping=True, chunk_size=64,
+                   max_points=MAX_POINTS):
+    """The checked plan of a sweep and its number of rows; every input error is raised here.
+
+    Materials, wavelength ranges, methods and polarizations are probed on the first
+    design at the end wavelengths, so a caller can validate a sweep before writing anything.
+    """
+    plan = _make_plan(shape, params, wavelength_nm, material=material, core=core, medium=medium,
+                      polarization=polarization, method=method, surface_damping=surface_damping,
+                      chunk_size=chunk_size)
+    rows = plan["n_designs"] * plan["wavelength_nm"].size
+    if isinstance(max_points, bool) or not isinstance(max_points, (int, np.integer)) or max_points < 1:
+        raise NanoabsError(f"max_points = {max_points!r}: must be an integer >= 1")
+    if rows > max_points:
+        raise NanoabsError(f"sweep size = {plan['n_designs']} designs x {plan['wavelength_nm'].size} wavelengths = "
+                           f"{rows:.3g} points: allowed is at most max_points = {max_points:.3g} (CLI: "
+                           "--max-points); raise it explicitly for a larger sweep")
+    _probe(plan)
+    return plan, rows
 
 
 def _run(plan, rows, budget, executor, progress, out, force):
