@@ -23,7 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Caution", "NanoabsWarning", "emit", "size_check"]
+__all__ = ["Caution", "NanoabsWarning", "emit", "emit_messages", "size_check"]
 
 
 class NanoabsWarning(UserWarning):
@@ -59,6 +59,12 @@ def emit(cautions, *, stacklevel: int = 3) -> None:
     """Issue each caution once through :func:`warnings.warn` as a :class:`NanoabsWarning`."""
     for c in cautions:
         warnings.warn(c.message, NanoabsWarning, stacklevel=stacklevel)
+
+
+def emit_messages(messages, *, stacklevel: int = 3) -> None:
+    """Issue already-collected caution messages (e.g. the collapsed list of a sweep) as warnings."""
+    for m in messages:
+        warnings.warn(m, NanoabsWarning, stacklevel=stacklevel)
 
 
 def size_check(method: str, semi_axes_nm, wavelength_nm, n_medium, limit_ka: float,

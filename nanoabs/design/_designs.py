@@ -9,6 +9,8 @@ spheroid kind) group.
 
 from __future__ import annotations
 
+import warnings as _warnings
+
 from collections.abc import Mapping
 
 import math
@@ -17,6 +19,7 @@ import numpy as np
 
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, spectrum
+from ..validity import NanoabsWarning
 from ..particles import MONOLAYER_NM, Ellipsoid, LayeredSphere, Sphere, spheroid
 from ._engine import unique
 
@@ -232,9 +235,11 @@ def _evaluate(shape, t, wl, settings):
             if ("c", ci) not in cache:
                 cache[("c", ci)] = _resolve_material(t["core_material_options"][ci])
             core = cache[("c", ci)]
-        s = spectrum(_particle(shape, t, sel, mat, core), wl, medium=t["medium_options"][di],
-                     method=settings["method"], polarization=settings["polarization"],
-                     surface_damping=settings["surface_damping"])
+        with _warnings.catch_warnings():  # gathered here, issued once per sweep by its caller
+            _warnings.simplefilter("ignore", NanoabsWarning)
+            s = spectrum(_particle(shape, t, sel, mat, core), wl, medium=t["medium_options"][di],
+                         method=settings["method"], polarization=settings["polarization"],
+                         surface_damping=settings["surface_damping"])
         for k in ("sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2", "geometric_cross_section_m2",
                   "equal_volume_area_m2"):
             out[k][sel] = np.broadcast_to(getattr(s, k), (sel.size, W))

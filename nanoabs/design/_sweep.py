@@ -15,6 +15,7 @@ import numpy as np
 from .. import __version__
 from .._errors import NanoabsError
 from ..optics import UNITS as _SPECTRUM_UNITS
+from ..validity import emit_messages
 from . import _engine
 from ._designs import (_GEOMETRY, _design_columns, _designs, _evaluate, _make_plan, _material_label,
                        _material_meta, _resolve_material, _settings)
@@ -336,6 +337,7 @@ def _run(plan, rows, budget, executor, progress, out, force):
     warnings = sorted({w for info in infos for w in info["warnings"]})
     methods = sorted({m for info in infos for m in info["methods"]})
     meta = _sweep_metadata(plan, n_chunks, warnings, methods, _engine.executor_name(executor))
+    emit_messages(meta["warnings"])
     if keep:
         frame = pd.concat(frames, ignore_index=True) if n_chunks > 1 else frames[0].reset_index(drop=True)
         frame0 = frame.head(1)
