@@ -546,12 +546,14 @@ def _cmd_search(args) -> int:
     if args.output:
         check_writable(args.output, force=args.force)
     if args.band and (args.center or args.width):
-        raise NanoabsError("give either --band LO:HI or --center and --width")
+        raise NanoabsError("give either --band LO:HI (repeatable) or --center and --width")
     if args.band:
-        lo, hi = parse_range(args.band, "--band", need_step=False)
-        b = design.band(lo_nm=lo, hi_nm=hi)
+        b = []
+        for text in args.band:
+            lo, hi = parse_range(text, "--band", need_step=False)
+            b.append(design.band(lo_nm=lo, hi_nm=hi))
     else:
-        b = design.band(center_nm=args.center, width_nm=args.width)
+        b = [design.band(center_nm=args.center, width_nm=args.width)]
     barrier = None
     if args.schottky:
         barrier = float(schottky_barrier(args.schottky)[0])
@@ -570,12 +572,17 @@ def _cmd_search(args) -> int:
                            objective=args.objective, materials=[m.strip() for m in args.materials.split(",")],
                            medium=_medium_arg(args.medium), illumination=illum, barrier_eV=barrier,
                            max_size_nm=args.max_size, min_shell_nm=args.min_shell, top=args.top,
-                           progress=not args.quiet and sys.stderr.isatty())
+                           progress=not args.quiet and sys.stderr.isatty(), combine=args.combine,
+                           peak_in_band=not args.any_peak)
     fom = ranked.attrs.get("figure_of_merit", {})
-    print(f"band {b[0]:g}-{b[1]:g} nm; objective {args.objective} [{fom.get('unit', '')}]")
+    bands = ", ".join(f"{lo:g}-{hi:g}" for lo, hi in b)
+    print(f"band(s) {bands} nm; objective {args.objective} [{fom.get('unit', '')}]"
+          + (f", {args.combine} band" if len(b) > 1 else ""))
+    _print_warnings(ranked.attrs.get("metadata", {}))
     cols = [c for c in ("rank", "family", "material", "radius_nm", "core_radius_nm", "thickness_nm",
                         "length_nm", "diameter_nm", "peak_wavelength_nm", "figure_of_merit",
-                        "absorbed_fraction") if c in ranked.columns]
+                        "absorbed_fraction", "validity", "recheck_method", "recheck_peak_wavelength_nm")
+            if c in ranked.columns]
     with __import__("pandas").option_context("display.width", 160, "display.max_columns", 20):
         print(ranked[cols].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
     if args.output:
@@ -607,12 +614,15 @@ def _register_design_commands(sub):
     w.set_defaults(func=_cmd_sweep)
 
     q = sub.add_parser("search", help="ranked particle designs for a target band")
-    q.add_argument("--band", help="band edges LO:HI [nm]")
+    q.add_argument("--band", action="append", help="band edges LO:HI [nm]; repeat for several bands")
     q.add_argument("--center", type=float, help="band centre [nm] (with --width)")
     q.add_argument("--width", type=float, help="band width [nm]")
     q.add_argument("--families", default="sphere,shell,rod", help="comma list: sphere, shell, rod, disc")
     q.add_argument("--objective", default="sigma_abs",
-                   help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection")
+                   help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection | selectivity")
+    q.add_argument("--combine", default="worst", help="several bands: worst | mean (default worst)")
+    q.add_argument("--any-peak", action="store_true",
+                   help="also rank designs whose absorption peak lies outside the band(s)")
     q.add_argument("--materials", default="Au", help="comma list of metals")
     q.add_argument("--medium", default="water")
     q.add_argument("--max-size", type=float, default=150.0, help="largest outer dimension [nm]")

@@ -340,8 +340,9 @@ def test_search_injection_matches_the_hot_carrier_pipeline():
     # tabulated spectrum, which has sharp absorption bands); rtol 2e-3 (different trapezoid grids).
     lo, hi = 1000.0, 1200.0
     sun = nanoabs.illumination.solar("am1.5g")
+    # a gold sphere in water peaks near 530 nm, far from this band: peak_in_band=False keeps it ranked
     res = design.search((lo, hi), families=["sphere"], objective="injection", barrier_eV=0.8,
-                        illumination=sun, top=2, progress=False)
+                        illumination=sun, top=2, progress=False, peak_in_band=False)
     best = res.iloc[0]
     assert res.attrs["figure_of_merit"]["unit"] == "s^-1"
     p = Sphere("Au", best.radius_nm)
@@ -360,7 +361,7 @@ def test_search_injection_matches_the_hot_carrier_pipeline():
 def test_search_ranks_families_and_reports_columns(tmp_path):
     # Source: contract — ranked by figure of merit, best of every family present, units given.
     res = design.search(design.band(lo_nm=780.0, hi_nm=820.0), families=["sphere", "shell", "rod"],
-                        objective="q_abs", top=6, progress=False)
+                        objective="q_abs", top=6, progress=False, peak_in_band=False)
     assert list(res["rank"]) == list(range(1, len(res) + 1))
     assert np.all(np.diff(res.figure_of_merit.to_numpy()) <= 0)
     assert set(res.family) == {"sphere", "shell", "rod"}
@@ -435,3 +436,54 @@ def test_cli_sweep_and_search(tmp_path, monkeypatch, capsys):
     capsys.readouterr()
     assert main("search --band 700:800 --objective injection --quiet".split()) == 2
     assert "barrier" in capsys.readouterr().err
+
+
+# -- issue: the search answers the real question (peaks in the band, several bands, validity) --------
+
+
+def test_search_rows_peak_inside_the_band_and_carry_method_validity_and_recheck():
+    # Contract: with the default peak_in_band=True every ranked row's refined absorption peak lies
+    # in the band; each row names its coarse method, its validity and the recheck by the best solver.
+    lo, hi = 1250.0, 1550.0
+    res = design.search((lo, hi), families=["sphere", "shell", "rod"], medium="Si", top=6, progress=False)
+    assert len(res) > 0
+    assert ((res.peak_wavelength_nm >= lo) & (res.peak_wavelength_nm <= hi)).all()
+    assert (res.peak_in_band == "yes").all()
+    assert set(res.method) <= {"mie", "mlwa"} and res.validity.str.len().gt(0).all()
+    spheres = res[res.family.isin(["sphere", "shell"])]
+    # spheres and shells: coarse and recheck are the same exact method, so the recheck reproduces the row
+    np.testing.assert_allclose(spheres.recheck_figure_of_merit, spheres.figure_of_merit, rtol=1e-9)
+
+
+def test_search_two_bands_worst_band_is_the_minimum():
+    bands = [(1260.0, 1360.0), (1530.0, 1565.0)]
+    res = design.search(bands, families=["shell"], medium="Si", top=4, progress=False, peak_in_band=False,
+                        objective="selectivity")
+    per = res[["figure_of_merit_band_1", "figure_of_merit_band_2"]].to_numpy()
+    np.testing.assert_allclose(res.figure_of_merit, per.min(axis=1), rtol=1e-12)
+    assert res.attrs["metadata"]["bands_nm"] == [list(b) for b in bands]
+    mean = design.search(bands, families=["shell"], medium="Si", top=4, progress=False, peak_in_band=False,
+                         objective="selectivity", combine="mean")
+    per = mean[["figure_of_merit_band_1", "figure_of_merit_band_2"]].to_numpy()
+    np.testing.assert_allclose(mean.figure_of_merit, per.mean(axis=1), rtol=1e-12)
+
+
+@pytest.mark.parametrize("bad, needle", [
+    ([(1260.0, 1360.0), (1300.0, 1565.0)], "overlap"),
+    ([], "band_nm"),
+    ("1260:1360", "band_nm"),
+])
+def test_search_band_inputs_refused(bad, needle):
+    with pytest.raises(NanoabsError, match=needle):
+        design.search(bad, families=["sphere"], progress=False)
+
+
+def test_cli_search_contract_two_bands(tmp_path, capsys):
+    from nanoabs.cli import main
+
+    out = tmp_path / "ranked.csv"
+    code = main(["search", "--band", "1260:1360", "--band", "1530:1565", "--families", "sphere,shell,rod",
+                 "--medium", "Si", "--objective", "selectivity", "-o", str(out), "--top", "4", "--quiet"])
+    assert code == 0 and out.exists()
+    frame, meta = nanoabs.read_export(out)
+    assert {"figure_of_merit_band_1", "figure_of_merit_band_2", "validity", "method"} <= set(frame.columns)
