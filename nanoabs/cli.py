@@ -700,6 +700,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _run(argv) -> int:
+    from . import export
+
+    export.COMMAND_LINE = ["nanoabs", *argv]
     parser = build_parser()
     args = parser.parse_args(argv)
     if getattr(args, "func", None) is None:
