@@ -487,7 +487,7 @@ def _cmd_sweep(args) -> int:
     from .export import check_writable
 
     if args.output:
-        check_writable(args.output, force=args.force)
+        check_writable(args.output, force=args.force, netcdf=True)
     params = _sweep_params(args.param)
     wl = parse_range(args.wl)
     kw = dict(material=_table_or_material(args.material), medium=_medium_arg(args.medium), method=args.method,
@@ -499,7 +499,12 @@ def _cmd_sweep(args) -> int:
         kw["polarization"] = args.polarization
     if args.max_points is not None:
         kw["max_points"] = args.max_points
-    res = design.sweep(args.shape, params, wl, out=args.output, force=args.force, **kw)
+    netcdf = bool(args.output) and args.output.lower().endswith(".nc")
+    res = design.sweep(args.shape, params, wl, out=None if netcdf else args.output, force=args.force, **kw)
+    if netcdf:
+        from .dataset import sweep_dataset, write_netcdf
+
+        write_netcdf(sweep_dataset(res), args.output, force=args.force)
     if args.output:
         print(f"wrote {args.output}")
     if hasattr(res, "columns"):
@@ -516,16 +521,20 @@ def _report_sweep(res, args):
         label = key.replace("_nm", " [nm]")
     else:  # several parameters vary: one line (and one map row) per design
         key, label = "design_id", f"design_id ({' x '.join(swept)}; first varies slowest)"
+    from .optics import _peak, _peak_status
+
     grid = res.pivot_table(index=key, columns="wavelength_nm", values="sigma_abs_m2").sort_index()
-    peaks = grid.columns.values[np.argmax(grid.values, axis=1)]
+    wl = grid.columns.values
+    peaks = [f"absorption peak {p:.1f} nm" if p == p else _peak_status(wl, row)
+             for p, row in zip((_peak(wl, row) for row in grid.values), grid.values)]
     if key == "design_id" and swept:
         first = res.drop_duplicates("design_id").set_index("design_id")
         for v, pk in zip(grid.index, peaks):
             what = ", ".join(f"{n} = {_fmt_value(first.at[v, n])}" for n in swept)
-            print(f"design {v} ({what}): absorption peak {pk:g} nm")
+            print(f"design {v} ({what}): {pk}")
     else:
         for v, pk in zip(grid.index, peaks):
-            print(f"{key} = {v:g}: absorption peak {pk:g} nm")
+            print(f"{key} = {v:g}: {pk}")
     if args.plot:
         from .plotting import plot_map, save_figure
 
@@ -608,7 +617,8 @@ def _register_design_commands(sub):
     w.add_argument("--processes", action="store_true", help="run chunks on two local processes")
     w.add_argument("--max-points", type=int, help="allow a sweep of more than 1e8 designs x wavelengths")
     w.add_argument("--plot", help="save a wavelength x parameter map (.png/.svg)")
-    w.add_argument("-o", "--output", help="stream the table to this CSV (+ JSON); resumes if interrupted")
+    w.add_argument("-o", "--output", help="stream the table to this CSV (+ JSON; resumes if interrupted), or "
+                                          "write an N-D netCDF file (.nc, needs the xarray extra)")
     w.add_argument("--force", action="store_true")
     w.add_argument("--quiet", action="store_true", help="no progress bar")
     w.set_defaults(func=_cmd_sweep)

@@ -57,19 +57,21 @@ _TEXT_DTYPES = ("object", "str", "string")
 # --------------------------------------------------------------------------- paths
 
 
-def _targets(path: Path) -> tuple[Path, ...]:
+def _targets(path: Path, netcdf: bool = False) -> tuple[Path, ...]:
     suffix = path.suffix.lower()
+    if netcdf and suffix == ".nc":
+        return (path,)
     if suffix == ".csv":
         return (path, path.with_suffix(".json"))
     if suffix == ".json":
         return (path,)
     raise NanoabsError(
         f"export path = {str(path)!r} has suffix {path.suffix or '(none)'!r}; "
-        f"allowed suffixes: {', '.join(_SUFFIXES)}"
+        f"allowed suffixes: {', '.join(_SUFFIXES + (('.nc',) if netcdf else ()))}"
     )
 
 
-def check_writable(path, *, force: bool = False) -> tuple[Path, ...]:
+def check_writable(path, *, force: bool = False, netcdf: bool = False) -> tuple[Path, ...]:
     """Check that an export to ``path`` can be written, before any computation.
 
     Parameters
@@ -78,6 +80,8 @@ def check_writable(path, *, force: bool = False) -> tuple[Path, ...]:
         Target file; ``.csv`` (CSV + ``.json`` sidecar) or ``.json`` (single file).
     force : bool, optional
         Allow overwriting existing files.
+    netcdf : bool, optional
+        Also accept a ``.nc`` (netCDF) target.
 
     Returns
     -------
@@ -92,7 +96,7 @@ def check_writable(path, *, force: bool = False) -> tuple[Path, ...]:
         directory, or a target that exists while ``force`` is false.
     """
     path = Path(path)
-    targets = _targets(path)
+    targets = _targets(path, netcdf)
     parent = path.parent
     if not parent.is_dir():
         raise NanoabsError(
