@@ -25,6 +25,8 @@ def test_demo_report_has_all_files(tmp_path, capsys):
     text = (out / "summary.md").read_text()
     assert "Ranked designs" in text and "Cautions" in text and "laser" in text.lower()
     assert "fictional" in text
+    # the optical-constant datasets are cited (Johnson & Christy 1972 for the demo's gold)
+    assert "## Data sources" in text and "Johnson and R. W. Christy" in text
     # every CSV reads back through the export reader with its sidecar
     for csv in out.glob("*.csv"):
         df, meta = nanoabs.read_export(csv)
