@@ -146,6 +146,18 @@ def test_part_files_are_formatted_like_the_export():
     assert _engine.csv_text(f) == f.to_csv(index=False, na_rep="nan", lineterminator="\n")
 
 
+def _count_chunks(monkeypatch, real):
+    """Replace the chunk function by ``real`` plus a record of the chunk indices computed."""
+    calls = []
+
+    def counting(plan, index):
+        calls.append(index)
+        return real(plan, index)
+
+    monkeypatch.setattr(_sweep, "_compute_chunk", counting)
+    return calls
+
+
 def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
     # Source: the uninterrupted in-memory sweep (exact); counts of chunk computations.
     ref = _sphere_sweep(chunk_size=2)
@@ -167,13 +179,7 @@ def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
     assert sorted(p.name for p in parts.glob("chunk_*.csv")) == [f"chunk_{i:06d}.csv" for i in range(3)]
     assert not out.exists()
 
-    rerun = []
-
-    def counting(plan, index):
-        rerun.append(index)
-        return real(plan, index)
-
-    monkeypatch.setattr(_sweep, "_compute_chunk", counting)
+    rerun = _count_chunks(monkeypatch, real)
     got = _sphere_sweep(chunk_size=2, out=out)
     assert rerun == list(range(3, n_chunks))  # finished chunks are not recomputed
     assert_frame_equal(ref, got, check_exact=True)
@@ -318,13 +324,7 @@ def test_stale_or_damaged_parts_are_recomputed_and_temporaries_cleaned(tmp_path,
     (parts / "chunk_000003.json").write_text(json.dumps(info))
     for junk in (tmp_path / ".run.csv.x1.tmp", tmp_path / ".run.json.x2.tmp", parts / ".chunk_000009.csv.x.tmp"):
         junk.write_text("junk")
-    rerun = []
-
-    def counting(plan, index):
-        rerun.append(index)
-        return real(plan, index)
-
-    monkeypatch.setattr(_sweep, "_compute_chunk", counting)
+    rerun = _count_chunks(monkeypatch, real)
     got = _sphere_sweep(chunk_size=2, out=out)
     assert rerun == [0, 1, 2, 3, 5, 6]
     assert_frame_equal(ref, got, check_exact=True)
