@@ -207,8 +207,10 @@ def test_second_run_into_a_locked_folder_is_refused(tmp_path):
     with exclusive_lock(tmp_path / "rep"):
         with pytest.raises(nanoabs.NanoabsError, match="being written by another"):
             run_study(p, tmp_path / "rep", progress=False)
+    (tmp_path / ".rep.x1.partial").mkdir()  # left by a killed run
     run_study(p, tmp_path / "rep", progress=False)
     assert (tmp_path / "rep" / "summary.md").exists()
+    assert sorted(x.name for x in tmp_path.iterdir()) == ["rep", "s.toml"]
 
 
 def test_large_study_sweep_is_reduced_from_the_streamed_file(tmp_path, monkeypatch):
