@@ -229,16 +229,17 @@ def slow(plan, index):  # 0.2 s per chunk, so that the test can act while the sw
 _sweep._compute_chunk = slow
 table, out = sys.argv[1], sys.argv[2]
 design.sweep("sphere", {"radius_nm": np.linspace(5.0, 80.0, 60)}, np.linspace(400.0, 900.0, 101),
-             material=nanoabs.load_table(table), chunk_size=1, progress=False, out=out)
+             material=nanoabs.load_table(table), chunk_size=1, progress=False, out=out,
+             executor=sys.argv[3] if len(sys.argv) > 3 else None)
 """
 
 
-def _start_slow_sweep(tmp_path, table, out):
+def _start_slow_sweep(tmp_path, table, out, *executor):
     import subprocess
     import sys
     import time
 
-    proc = subprocess.Popen([sys.executable, "-c", _SLOW_SWEEP, str(table), str(out)],
+    proc = subprocess.Popen([sys.executable, "-c", _SLOW_SWEEP, str(table), str(out), *executor],
                             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     parts = Path(str(out) + ".parts")
     for _ in range(1200):  # wait (at most ~2 min) until a few chunks are on disk
@@ -297,6 +298,34 @@ def test_second_writer_is_refused_and_a_killed_writers_lock_does_not_block(tmp_p
     got = _slow_sweep_here(table, out)
     assert got.attrs["metadata"]["resumed_chunks"] >= 3
     assert not Path(str(out) + ".lock").exists()
+
+
+def _alive(pid):
+    try:
+        with open(f"/proc/{pid}/stat") as fh:
+            return fh.read().split(")")[-1].split()[0] != "Z"  # a zombie has exited
+    except FileNotFoundError:
+        return False
+
+
+@pytest.mark.skipif(not Path("/proc/self/task").is_dir(), reason="reads the process tree from /proc")
+def test_killed_sweep_leaves_no_pool_workers(tmp_path):
+    # Source: contract. The two workers of executor="processes" exit on their own when the
+    # sweep process that owns them is killed (SIGKILL, so no shutdown runs).
+    import time
+
+    table, out = _user_table(tmp_path / "gold.csv"), tmp_path / "s.csv"
+    proc = _start_slow_sweep(tmp_path, table, out, "processes")
+    try:
+        kids = [int(k) for k in Path(f"/proc/{proc.pid}/task/{proc.pid}/children").read_text().split()]
+    finally:
+        _kill(proc)
+    assert len(kids) == 2
+    for _ in range(100):
+        if not any(_alive(k) for k in kids):
+            break
+        time.sleep(0.1)
+    assert not any(_alive(k) for k in kids)
 
 
 def test_stale_or_damaged_parts_are_recomputed_and_temporaries_cleaned(tmp_path, monkeypatch):

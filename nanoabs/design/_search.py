@@ -40,23 +40,24 @@ def band(center_nm=None, width_nm=None, lo_nm=None, hi_nm=None):
     if by_centre == by_edges:
         raise NanoabsError("band: give either center_nm and width_nm, or lo_nm and hi_nm")
     if by_centre:
-        if center_nm is None or width_nm is None:
-            raise NanoabsError("band: give both center_nm and width_nm")
-        c = float(check_finite_array("center_nm", center_nm)[0])
-        w = float(check_finite_array("width_nm", width_nm)[0])
+        c, w = _two_numbers(center_nm=center_nm, width_nm=width_nm)
         if w <= 0:
             raise NanoabsError(f"width_nm = {w:g} nm: must be > 0")
         lo, hi = c - w / 2, c + w / 2
     else:
-        if lo_nm is None or hi_nm is None:
-            raise NanoabsError("band: give both lo_nm and hi_nm")
-        lo = float(check_finite_array("lo_nm", lo_nm)[0])
-        hi = float(check_finite_array("hi_nm", hi_nm)[0])
+        lo, hi = _two_numbers(lo_nm=lo_nm, hi_nm=hi_nm)
     if lo <= 0:
         raise NanoabsError(f"band lower edge = {lo:g} nm: must be > 0")
     if hi <= lo:
         raise NanoabsError(f"band upper edge = {hi:g} nm: must be above the lower edge {lo:g} nm")
     return lo, hi
+
+
+def _two_numbers(**given):
+    """The two keyword values as finite floats; both must be given."""
+    if any(v is None for v in given.values()):
+        raise NanoabsError(f"band: give both {' and '.join(given)}")
+    return tuple(float(check_finite_array(k, v)[0]) for k, v in given.items())
 
 
 _FAMILY_SHAPE = {"sphere": "sphere", "shell": "shell", "rod": "spheroid", "disc": "spheroid"}
