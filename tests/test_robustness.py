@@ -332,3 +332,56 @@ def test_fuzz_csv_spectrum_reader(header, rows, trailer, tmp_path):
     lo, hi = src.range_nm
     v = src.spectral_irradiance(np.linspace(lo, hi, 5))
     assert np.all(np.isfinite(v)) and np.all(v >= 0)
+
+
+# -- fuzz: the sweep CLI and the design constructors ------------------------------
+
+_param_values = st.sampled_from(["10", "10,20", "5:25:10", "1e30", "nan", "inf", "-1", "0", "", "x", "1:2",
+                                 "3:1:1", "1e-300", "Au", "Au,Ag", "Au,Xx", "1.33,1.5", "20:20.2:0.1"])
+_param_names = st.sampled_from(["radius_nm", "core_radius_nm", "thickness_nm", "length_nm", "diameter_nm",
+                                "aspect_ratio", "a_nm", "b_nm", "c_nm", "medium_index", "material", "core",
+                                "shell", "radius", ""])
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(shape=st.sampled_from(["sphere", "shell", "spheroid", "ellipsoid", "cube"]),
+       params=st.lists(st.tuples(_param_names, _param_values), max_size=4),
+       extra=st.lists(st.sampled_from(["--polarization", "long", "--method", "mie", "--max-points", "3",
+                                       "--no-surface-damping", "--material", "Ag", "--core", "x.csv"]),
+                      max_size=3))
+def test_fuzz_sweep_cli(shape, params, extra, tmp_path, capsys):
+    # Either a result (exit 0) or the tool's own one-line error (exit 2 or 3); never an internal error.
+    argv = ["sweep", "--shape", shape, "--wl", "500:540:20", "--quiet"] + extra
+    for name, value in params:
+        argv += ["--param", f"{name}={value}"]
+    code = main(argv)
+    err = capsys.readouterr().err
+    assert code in (0, 2, 3), err
+    if code:
+        assert err.count("\n") == 1 and "internal error" not in err, err
+
+
+_junk = st.one_of(st.none(), st.booleans(), st.integers(-3, 3), st.floats(allow_nan=True, allow_infinity=True),
+                  st.text(max_size=4), st.lists(st.floats(-5, 80), max_size=3), st.dictionaries(st.text(max_size=2),
+                                                                                                 st.integers(),
+                                                                                                 max_size=2),
+                  st.just(np.ones((2, 2))), st.just([[10.0, 20.0]]), st.just(["Au", 3]))
+
+
+@settings(max_examples=80, deadline=None)
+@given(shape=st.sampled_from(["sphere", "shell", "spheroid", "ellipsoid"]),
+       names=st.lists(_param_names, min_size=1, max_size=3), values=st.lists(_junk, min_size=3, max_size=3),
+       kw=st.sampled_from([{}, {"surface_damping": "no"}, {"material": None}, {"medium": [1.33]},
+                           {"chunk_size": 2.5}, {"polarization": None}, {"method": 3}, {"core": {}}]))
+def test_fuzz_design_constructors(shape, names, values, kw):
+    # design.sweep / ensemble_average with junk: a frame or a NanoabsError, never another exception.
+    params = dict(zip(names, values))
+    for call in (lambda: nanoabs.design.sweep(shape, params, [500.0, 540.0], progress=False, **kw),
+                 lambda: nanoabs.design.ensemble_average(shape, params, {}, [500.0, 540.0],
+                                                         **{k: v for k, v in kw.items() if k != "chunk_size"})):
+        try:
+            res = call()
+        except NanoabsError as exc:
+            assert "\n" not in str(exc)
+            continue
+        assert np.all(np.isfinite(res.sigma_abs_m2 if hasattr(res, "sigma_abs_m2") else res["sigma_abs_m2"]))

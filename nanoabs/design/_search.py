@@ -11,7 +11,7 @@ from .. import __version__
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
-from ._designs import _evaluate, _material_label, _material_meta, _resolve_material
+from ._designs import _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
 from ._engine import collapse, progress_bar, unique
 from ._sweep import _TEXT_UNIT
 
@@ -320,13 +320,13 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
     objective = check_choice("objective", objective, OBJECTIVES)
     if isinstance(families, str):
         families = [families]
+    if not isinstance(families, (list, tuple)):
+        raise NanoabsError(f"families = {families!r}: give a list of {', '.join(FAMILIES)}")
     families = [check_choice("family", f, FAMILIES) for f in families]
     if not families:
         raise NanoabsError("families is empty: give at least one of " + ", ".join(FAMILIES))
     families = unique(families)
-    if isinstance(materials, str) or hasattr(materials, "permittivity"):
-        materials = [materials]
-    materials = list(materials)
+    materials = _material_list("materials", materials)
     if not materials:
         raise NanoabsError("materials is empty: give at least one metal")
     mats = [_resolve_material(m) for m in materials]
@@ -361,7 +361,7 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
             "mats": mats, "core": core, "core_m": core_m, "medium": medium, "med": med, "min_shell": min_shell,
             "max_size": max_size, "n_starts": n_starts, "window": window, "band_wl": band_wl, "inj": inj,
             "inj_meta": inj_meta, "fam_bounds": _family_bounds(bounds, families, min_shell, max_size),
-            "settings": {"method": method, "polarization": polarization, "surface_damping": bool(surface_damping)}}
+            "settings": {"method": method, "polarization": polarization, "surface_damping": check_flag("surface_damping", surface_damping)}}
 
 
 def _injection_inputs(lo, hi, band_wl, mats, illumination, barrier_eV, fermi_energy_eV):
