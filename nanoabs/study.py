@@ -473,7 +473,7 @@ def _write_report(job, rep, progress):
     L += ["## Cautions", "", " ".join(SAFETY_CAUTION.split()), "",
           "These are model estimates (sparse arrays, isolated-particle heating, escape-cone emission) for "
           "comparing designs; they do not replace measurement or a safety review.", "",
-          "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files + ["summary.md"]))]
+          "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files))]
     text = "\n".join(L) + "\n"
     write_file_atomic(rep.path("summary.md"), lambda fh: fh.write(text), force=True)
 
