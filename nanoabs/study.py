@@ -11,6 +11,7 @@ Markdown summary into an output folder. The schema is documented in the README
 
 from __future__ import annotations
 
+import glob
 import math
 import os
 import shutil
@@ -422,9 +423,11 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
     job = _prepare(doc)
     with exclusive_lock(out, "report folder"):
         out = _output_dir(out_dir, force)  # again, now that no one else writes it
+        name, parent = out.resolve().name, out.resolve().parent
+        for stale in parent.glob(f".{glob.escape(name)}.*.partial"):  # left by a killed run
+            shutil.rmtree(stale, ignore_errors=True)
         try:
-            tmp = Path(tempfile.mkdtemp(prefix=f".{out.resolve().name}.", suffix=".partial",
-                                        dir=out.resolve().parent))
+            tmp = Path(tempfile.mkdtemp(prefix=f".{name}.", suffix=".partial", dir=parent))
         except OSError as exc:
             raise NanoabsError(f"output folder {str(out)!r}: cannot write beside it ({exc.__class__.__name__})") \
                 from None
@@ -471,7 +474,7 @@ def _write_report(job, rep, progress):
     L += ["## Cautions", "", " ".join(SAFETY_CAUTION.split()), "",
           "These are model estimates (sparse arrays, isolated-particle heating, escape-cone emission) for "
           "comparing designs; they do not replace measurement or a safety review.", "",
-          "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files + ["summary.md"]))]
+          "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files))]
     text = "\n".join(L) + "\n"
     write_file_atomic(rep.path("summary.md"), lambda fh: fh.write(text), force=True)
 

@@ -11,7 +11,7 @@ from .. import __version__
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
-from ._designs import _evaluate, _material_label, _material_meta, _resolve_material
+from ._designs import _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
 from ._engine import collapse, progress_bar, unique
 from ._sweep import _TEXT_UNIT
 
@@ -42,23 +42,24 @@ def band(center_nm=None, width_nm=None, lo_nm=None, hi_nm=None):
     if by_centre == by_edges:
         raise NanoabsError("band: give either center_nm and width_nm, or lo_nm and hi_nm")
     if by_centre:
-        if center_nm is None or width_nm is None:
-            raise NanoabsError("band: give both center_nm and width_nm")
-        c = float(check_finite_array("center_nm", center_nm)[0])
-        w = float(check_finite_array("width_nm", width_nm)[0])
+        c, w = _two_numbers(center_nm=center_nm, width_nm=width_nm)
         if w <= 0:
             raise NanoabsError(f"width_nm = {w:g} nm: must be > 0")
         lo, hi = c - w / 2, c + w / 2
     else:
-        if lo_nm is None or hi_nm is None:
-            raise NanoabsError("band: give both lo_nm and hi_nm")
-        lo = float(check_finite_array("lo_nm", lo_nm)[0])
-        hi = float(check_finite_array("hi_nm", hi_nm)[0])
+        lo, hi = _two_numbers(lo_nm=lo_nm, hi_nm=hi_nm)
     if lo <= 0:
         raise NanoabsError(f"band lower edge = {lo:g} nm: must be > 0")
     if hi <= lo:
         raise NanoabsError(f"band upper edge = {hi:g} nm: must be above the lower edge {lo:g} nm")
     return lo, hi
+
+
+def _two_numbers(**given):
+    """The two keyword values as finite floats; both must be given."""
+    if any(v is None for v in given.values()):
+        raise NanoabsError(f"band: give both {' and '.join(given)}")
+    return tuple(float(check_finite_array(k, v)[0]) for k, v in given.items())
 
 
 _FAMILY_SHAPE = {"sphere": "sphere", "shell": "shell", "rod": "spheroid", "disc": "spheroid"}
@@ -420,13 +421,13 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
         raise NanoabsError(f"peak_in_band = {peak_in_band!r}: must be True or False")
     if isinstance(families, str):
         families = [families]
+    if not isinstance(families, (list, tuple)):
+        raise NanoabsError(f"families = {families!r}: give a list of {', '.join(FAMILIES)}")
     families = [check_choice("family", f, FAMILIES) for f in families]
     if not families:
         raise NanoabsError("families is empty: give at least one of " + ", ".join(FAMILIES))
     families = unique(families)
-    if isinstance(materials, str) or hasattr(materials, "permittivity"):
-        materials = [materials]
-    materials = list(materials)
+    materials = _material_list("materials", materials)
     if not materials:
         raise NanoabsError("materials is empty: give at least one metal")
     mats = [_resolve_material(m) for m in materials]
@@ -466,7 +467,7 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
             "max_size": max_size, "n_starts": n_starts, "window": window,
             "band_wl": np.concatenate([b[2] for b in band_grids]),
             "inj_meta": inj_meta, "fam_bounds": _family_bounds(bounds, families, min_shell, max_size),
-            "settings": {"method": method, "polarization": polarization, "surface_damping": bool(surface_damping)}}
+            "settings": {"method": method, "polarization": polarization, "surface_damping": check_flag("surface_damping", surface_damping)}}
 
 
 def _injection_inputs(lo, hi, band_wl, mats, illumination, barrier_eV, fermi_energy_eV):
