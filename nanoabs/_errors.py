@@ -53,39 +53,42 @@ def _fmt(value) -> str:
     return text if len(text) <= 60 else text[:57] + "..."
 
 
-def check_positive(name: str, value, *, unit: str = "") -> np.ndarray:
-    """Return ``value`` as a float array; raise unless every element is finite and > 0."""
-    arr = _as_float(name, value)
+def check_positive(name: str, value, *, unit: str = "", scalar: bool = False):
+    """Return ``value`` as a float array (a float with ``scalar=True``, which refuses arrays);
+    raise unless every element is finite and > 0."""
+    arr = _as_float(name, value, scalar)
     bad = ~np.isfinite(arr) | (arr <= 0)
     if np.any(bad):
         v = arr[bad].flat[0] if arr.ndim else arr
         raise NanoabsError(
             f"{name} = {_fmt(float(v))}{' ' + unit if unit else ''}: must be a finite number > 0"
         )
-    return arr
+    return float(arr) if scalar else arr
 
 
-def check_nonnegative(name: str, value, *, unit: str = "") -> np.ndarray:
-    """Return ``value`` as a float array; raise unless every element is finite and >= 0."""
-    arr = _as_float(name, value)
+def check_nonnegative(name: str, value, *, unit: str = "", scalar: bool = False):
+    """Return ``value`` as a float array (a float with ``scalar=True``, which refuses arrays);
+    raise unless every element is finite and >= 0."""
+    arr = _as_float(name, value, scalar)
     bad = ~np.isfinite(arr) | (arr < 0)
     if np.any(bad):
         v = arr[bad].flat[0] if arr.ndim else arr
         raise NanoabsError(
             f"{name} = {_fmt(float(v))}{' ' + unit if unit else ''}: must be a finite number >= 0"
         )
-    return arr
+    return float(arr) if scalar else arr
 
 
-def check_range(name: str, value, lo: float, hi: float, *, unit: str = "") -> np.ndarray:
-    """Return ``value`` as a float array; raise unless lo <= value <= hi everywhere."""
-    arr = _as_float(name, value)
+def check_range(name: str, value, lo: float, hi: float, *, unit: str = "", scalar: bool = False):
+    """Return ``value`` as a float array (a float with ``scalar=True``, which refuses arrays);
+    raise unless lo <= value <= hi everywhere."""
+    arr = _as_float(name, value, scalar)
     bad = ~np.isfinite(arr) | (arr < lo) | (arr > hi)
     if np.any(bad):
         v = arr[bad].flat[0] if arr.ndim else arr
         u = f" {unit}" if unit else ""
         raise NanoabsError(f"{name} = {_fmt(float(v))}{u}: allowed range is {lo:g} to {hi:g}{u}")
-    return arr
+    return float(arr) if scalar else arr
 
 
 def check_finite_array(name: str, value, *, increasing: bool = False) -> np.ndarray:
@@ -122,9 +125,10 @@ def check_choice(name: str, value, choices: Iterable[str]) -> str:
     )
 
 
-def _as_float(name: str, value) -> np.ndarray:
+def _as_float(name: str, value, scalar: bool = False) -> np.ndarray:
     """``value`` as a float array; strict: booleans, strings, complex and non-numeric objects
-    are refused (``True`` is not a radius, ``"10"`` is not a number in the Python API)."""
+    are refused (``True`` is not a radius, ``"10"`` is not a number in the Python API);
+    with ``scalar`` anything but a single number is refused too."""
     if not isinstance(value, (str, bytes, bool, np.bool_, dict, set)) and value is not None:
         try:
             arr = np.asarray(value)
@@ -135,6 +139,9 @@ def _as_float(name: str, value) -> np.ndarray:
                 for v in arr.flat):
             arr = arr.astype(float)
         if arr is not None and arr.dtype.kind in "iuf":
+            if scalar and arr.ndim:
+                raise NanoabsError(f"{name} = {_fmt(value)}: must be a single number, not an array "
+                                   f"of shape {arr.shape}")
             return arr.astype(float, copy=False)
     kind = "a boolean" if isinstance(value, (bool, np.bool_)) or (
         isinstance(value, np.ndarray) and value.dtype.kind == "b") else type(value).__name__

@@ -75,7 +75,7 @@ def read_user_text(path, what: str) -> str:
     try:
         return raw.decode("utf-8-sig")
     except UnicodeDecodeError:
-        raise DataError(f"{what} {p}: not UTF-8 text") from None
+        raise DataError(f"{what} {p}: cannot be read (not UTF-8 text)") from None
 
 
 
