@@ -295,7 +295,7 @@ def gaussian_beam_peak_irradiance(power_W, beam_radius_nm):
     """
     p = check_nonnegative("power_W", power_W, unit="W")
     w_m = check_positive("beam_radius_nm", beam_radius_nm, unit="nm") * 1e-9
-    with np.errstate(over="ignore", invalid="ignore"):
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
         out = 2.0 * p / (np.pi * w_m**2)
     if not np.all(np.isfinite(out)):
         raise NanoabsError(f"laser: power {_fmt(p)} W on a 1/e^2 radius of {_fmt(w_m * 1e9)} nm "

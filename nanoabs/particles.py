@@ -55,6 +55,8 @@ def _mat(value):
 def _size(name: str, value) -> np.ndarray:
     """A size [nm]: real, finite, in (0, MAX_SIZE_NM], scalar or a family with a last axis of 1."""
     arr = check_positive(name, value, unit="nm")
+    if arr.size == 0:
+        raise NanoabsError(f"{name}: an empty array; give a size in nm or a family of shape (P, 1)")
     if arr.ndim == 1 and arr.size > 1:
         raise NanoabsError(
             f"{name}: a 1-D array of {arr.size} sizes is ambiguous (against {arr.size} wavelengths it "
