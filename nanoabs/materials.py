@@ -25,7 +25,7 @@ from pathlib import Path
 import numpy as np
 from scipy.interpolate import PchipInterpolator
 
-from ._errors import DataError, NanoabsError, _fmt, check_finite_array, suggest
+from ._errors import DataError, NanoabsError, _fmt, check_finite_array, check_positive, suggest
 from .drude_lorentz import HC_EV_NM, DrudeLorentz, surface_damping_correction, surface_damping_eV
 from .hotcarriers import FREE_ELECTRON
 
@@ -195,10 +195,7 @@ class Material:
 
     def refractive_index(self, wavelength_nm):
         """Complex refractive index n + ik (k ≥ 0) at vacuum wavelengths [nm]."""
-        wl = np.asarray(wavelength_nm, dtype=float)
-        if np.any(~np.isfinite(wl)) or np.any(wl <= 0):
-            bad = wl[~np.isfinite(wl) | (wl <= 0)].flat[0]
-            raise NanoabsError(f"wavelength = {bad:g} nm: must be a finite number > 0")
+        wl = check_positive("wavelength", wavelength_nm, unit="nm")
         if self._constant is not None:
             return np.full(wl.shape, self._constant, dtype=complex)[()]
         out = self.outside(wl)

@@ -42,7 +42,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from nanoabs._errors import NanoabsError, check_choice, check_nonnegative, check_positive
+from nanoabs._errors import NanoabsError, _fmt, check_choice, check_nonnegative, check_positive, check_range
 
 __all__ = [
     "STRICT_VALIDITY",
@@ -105,11 +105,17 @@ def _fmt_c(z) -> str:
 
 
 def _check_eps(name: str, value) -> np.ndarray:
-    """Return ``value`` as a complex array; raise on NaN/inf or non-numbers."""
+    """Return ``value`` as a complex array; raise on NaN/inf or non-numbers (booleans and
+    strings included: ``True`` or ``"-2"`` is not a permittivity)."""
     try:
-        arr = np.asarray(value, dtype=complex)
+        arr = None if value is None else np.asarray(value)
+        if arr is not None and arr.dtype.kind == "O":
+            arr = arr.astype(complex)
     except (TypeError, ValueError):
-        raise NanoabsError(f"{name} = {value!r}: must be a (complex) number") from None
+        arr = None
+    if arr is None or arr.dtype.kind not in "iufc":
+        raise NanoabsError(f"{name} = {_fmt(value)}: must be a (complex) number or an array of them") from None
+    arr = arr.astype(complex, copy=False)
     bad = ~np.isfinite(arr)
     if np.any(bad):
         raise NanoabsError(f"{name} = {_fmt_c(arr[bad].flat[0])}: must be finite")
@@ -631,10 +637,7 @@ def polarizability_from_depolarization(eps, eps_medium, volume, depolarization):
     B&H eq. 5.32.
     """
     v = check_positive("volume", volume)
-    L = np.asarray(depolarization, dtype=float)
-    bad = ~np.isfinite(L) | (L < 0) | (L > 1)
-    if np.any(bad):
-        raise NanoabsError(f"depolarization = {float(L[bad].flat[0]) if L.ndim else float(L):g}: allowed range is 0 to 1")
+    L = check_range("depolarization", depolarization, 0.0, 1.0)
     num, den, e, scale = _depol_nd(eps, eps_medium, v, L)
     return _static_ratio(num, den, e, "ellipsoid", scale=scale)
 
