@@ -43,7 +43,7 @@ import numpy as np
 from scipy import constants as _c
 from scipy.integrate import trapezoid
 
-from ._errors import (DataError, NanoabsError, _fmt, check_finite_array, check_nonnegative, check_positive,
+from ._errors import (DataError, NanoabsError, _as_float, _fmt, check_finite_array, check_nonnegative, check_positive,
                       check_range, suggest)
 
 __all__ = [
@@ -575,7 +575,9 @@ def from_csv(path) -> Illumination:
     one-line :class:`DataError` naming the file, line, column and value. Evaluation
     outside the table's wavelength range raises a NanoabsError.
     """
-    p = Path(path)
+    from .materials import user_path
+
+    p = user_path(path, "spectrum file")
     wl_t, e_t = _read_spectrum_csv(p)
     return Illumination(
         "csv",
@@ -628,7 +630,7 @@ def band_integral(wavelength_nm, values):
     wl = check_finite_array("wavelength_nm", wavelength_nm, increasing=True)
     if wl.size < 2:
         raise NanoabsError(f"wavelength_nm has {wl.size} value(s): a band integral needs at least 2")
-    v = np.asarray(values, dtype=float)
+    v = _as_float("values", values)
     if v.ndim == 0 or v.shape[-1] != wl.size:
         raise NanoabsError(
             f"values: last axis has length {v.shape[-1] if v.ndim else 0}, expected {wl.size} "

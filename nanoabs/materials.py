@@ -17,6 +17,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import os
 from dataclasses import dataclass, field
 from functools import lru_cache
 from importlib import resources
@@ -25,7 +26,7 @@ from pathlib import Path
 import numpy as np
 from scipy.interpolate import PchipInterpolator
 
-from ._errors import DataError, NanoabsError, _fmt, check_finite_array, check_positive, suggest
+from ._errors import DataError, NanoabsError, _fmt, check_choice, check_finite_array, check_positive, suggest
 from .drude_lorentz import HC_EV_NM, DrudeLorentz, surface_damping_correction, surface_damping_eV
 from .hotcarriers import FREE_ELECTRON
 
@@ -48,13 +49,20 @@ ALIASES = {
 MAX_USER_FILE_BYTES = 20_000_000
 
 
+def user_path(path, what: str) -> Path:
+    """``path`` as a Path; a one-line NanoabsError for anything that is not a path (None, numbers)."""
+    if isinstance(path, (str, os.PathLike)) and str(path) != "":
+        return Path(path)
+    raise NanoabsError(f"{what} = {_fmt(path)}: must be a file path (str or pathlib.Path)")
+
+
 def read_user_text(path, what: str) -> str:
     """Text of a user data file: size-bounded, UTF-8 with or without a byte-order mark.
 
     Raises a one-line :class:`DataError` naming the file (never quoting its contents) when it
     is missing, a folder, larger than ``MAX_USER_FILE_BYTES``, unreadable or not UTF-8.
     """
-    p = Path(path)
+    p = user_path(path, what)
     try:
         size = p.stat().st_size
         if p.is_dir():
@@ -468,7 +476,10 @@ def load_table(path, *, name: str | None = None, kind: str = "metal") -> Materia
     A UTF-8 byte-order mark is accepted; files larger than ``MAX_USER_FILE_BYTES`` (20 MB)
     are refused before they are read, and error messages never quote the file's contents.
     """
-    p = Path(path)
+    p = user_path(path, "material table")
+    if name is not None and not isinstance(name, str):
+        raise NanoabsError(f"name = {_fmt(name)}: must be a string")
+    kind = check_choice("kind", kind, ["metal", "dielectric", "medium"])
     header, wl, n, note = _parse_table(p, read_user_text(p, "material table"))
     info = dict(header)
     info.setdefault("dataset", f"user table {p.name}")

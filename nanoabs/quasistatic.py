@@ -42,7 +42,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from nanoabs._errors import NanoabsError, _fmt, check_choice, check_nonnegative, check_positive, check_range
+from nanoabs._errors import (NanoabsError, _fmt, check_choice, check_flag, check_nonnegative, check_positive,
+                             check_range)
 
 __all__ = [
     "STRICT_VALIDITY",
@@ -154,7 +155,9 @@ def _static_ratio(num, den, eps, what: str, name: str = "eps", *, scale):
     """
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         out = num / den
-        bad = ~np.isfinite(out) | (np.abs(den) <= POLE_RTOL * scale)
+        pole = np.abs(den) <= POLE_RTOL * scale
+    _check_finite_alpha(out, pole)
+    bad = pole | ~np.isfinite(out)
     if np.any(bad):
         e = np.broadcast_to(eps, bad.shape)[bad].flat[0]
         raise NanoabsError(
@@ -171,7 +174,18 @@ def _corrected_ratio(num, den, correction):
     Written without ``1/alpha`` so that it stays finite both at the static pole
     (``den = 0``, where it equals ``-1/correction``) and where ``alpha = 0``.
     """
-    return num / (den - num * correction)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        out = num / (den - num * correction)
+    _check_finite_alpha(out, False)
+    return out
+
+
+def _check_finite_alpha(alpha, pole):
+    """Raise if ``alpha`` overflowed away from a pole (sizes or permittivities out of scale)."""
+    over = ~np.isfinite(alpha) & ~np.asarray(pole)
+    if np.any(over):
+        raise NanoabsError("polarisability: the result overflows (not finite) for some inputs; "
+                           "check the units of sizes [length] and permittivities (dimensionless)")
 
 
 # --------------------------------------------------------------------------- #
@@ -995,6 +1009,7 @@ def cross_sections(alpha, k, *, corrected=False):
     """
     alpha = _check_eps("alpha", alpha)
     k = check_positive("k", k)
+    corrected = check_flag("corrected", corrected)
     sca = k**4 * np.abs(alpha) ** 2 / (6.0 * np.pi)
     im = k * alpha.imag
     absn = im if not corrected else im - sca

@@ -166,6 +166,9 @@ API_CASES = [
      "allowed range"),
     ("depolarization True", lambda t: q.polarizability_from_depolarization(-5 + 1j, 1.77, 100.0, True),
      "boolean"),
+    ("static overflow", lambda t: q.polarizability_sphere(-5 + 1j, 1.77, 1e200), "overflows"),
+    ("MLWA overflow", lambda t: q.polarizability_sphere_mlwa(-5 + 1j, 1.77, 1e200, 0.01), "overflows"),
+    ("corrected 'no'", lambda t: q.cross_sections(1 + 1j, 0.01, corrected="no"), "True or False"),
     # table edges
     ("wavelength a string", lambda t: material("Au").permittivity("500"), "real number"),
     ("just past the table end", lambda t: material("Au").permittivity(material("Au").range_nm[1] * (1 + 1e-9)),
@@ -204,6 +207,11 @@ API_CASES = [
     ("spectrum file bad header", lambda t: il.from_csv(_secret_file(t, "s.csv", "SECRET,x\n1,2\n")), "missing column"),
     ("spectrum file bad cell", lambda t: il.from_csv(_secret_file(
         t, "c.csv", "wavelength_nm,irradiance_W_m2_nm\n400,1\n500,SECRET\n")), "not a number"),
+    ("spectrum path None", lambda t: il.from_csv(None), "file path"),
+    ("material table path a number", lambda t: load_table(3), "file path"),
+    ("material table kind", lambda t: load_table(t / "x.csv", kind="banana"), "kind"),
+    ("band integral of text", lambda t: il.band_integral([500.0, 600.0], ["a", "b"]), "real number"),
+    ("band integral with NaN", lambda t: il.band_integral([500.0, 600.0], [1.0, np.nan]), "NaN"),
     # wavelength parsing
     ("wl list decreasing", lambda t: parse_range("1550,1310"), "increasing"),
     ("wl list with zero", lambda t: parse_range("0,1310"), "> 0"),
