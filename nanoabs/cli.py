@@ -28,28 +28,66 @@ class _Parser(argparse.ArgumentParser):
         raise NanoabsError(f"{self.prog}: {message}")
 
 
+#: Most wavelengths (or values) one argument may expand to: bounds memory and work.
+MAX_POINTS = 200_000
+
+
 def parse_range(text: str, name: str = "--wl", *, need_step: bool = True):
-    """Parse 'START:STOP:STEP' (or 'START:STOP' when need_step is False) in nm."""
-    parts = str(text).split(":")
+    """Parse 'START:STOP:STEP' in nm (inclusive of STOP when it lies on the grid to within
+    1e-9 of a step), a list 'V1,V2,...' (strictly increasing, e.g. '1310,1550'), or, with
+    need_step False, 'START:STOP' (returned as a pair)."""
+    t = str(text).strip()
+    if need_step and ":" not in t:
+        vals = _parse_list(t, name, increasing=True)
+        if np.any(vals <= 0):
+            raise NanoabsError(f"{name} = {_short(t)}: every value must be > 0 nm")
+        return vals
+    parts = t.split(":")
     want = 3 if need_step else 2
     if len(parts) != want:
-        form = "START:STOP:STEP" if need_step else "START:STOP"
-        raise NanoabsError(f"{name} = {text!r}: expected {form} in nm, e.g. "
+        form = "START:STOP:STEP or a list V1,V2,..." if need_step else "START:STOP"
+        raise NanoabsError(f"{name} = {_short(t)}: expected {form} in nm, e.g. "
                            f"{'400:900:1' if need_step else '400:1000'}")
+    vals = _parse_list(",".join(parts), name, increasing=False, shown=t)
+    if vals[0] <= 0 or vals[1] <= vals[0]:
+        raise NanoabsError(f"{name} = {_short(t)}: need 0 < START < STOP")
+    if not need_step:
+        return float(vals[0]), float(vals[1])
+    start, stop, step = (float(v) for v in vals)
+    span = (stop - start) / step if step > 0 else -1.0
+    if span > MAX_POINTS:
+        raise NanoabsError(f"{name} = {_short(t)}: {span + 1:.3g} points; at most {MAX_POINTS} allowed")
+    # a span a rounding error short of a whole number of steps still includes STOP
+    n = int(np.floor(span + 1e-9)) + 1 if span > 0 else 0
+    if n < 2:
+        raise NanoabsError(f"{name} = {_short(t)}: STEP must be > 0 and no larger than STOP - START")
+    out = start + step * np.arange(n)
+    if abs(out[-1] - stop) <= 1e-9 * step:
+        out[-1] = stop  # exactly STOP, not STOP minus a rounding error
+    return out
+
+
+def _short(text) -> str:
+    t = str(text)
+    return repr(t if len(t) <= 40 else t[:37] + "...")
+
+
+def _parse_list(text: str, name: str, *, increasing: bool, shown: str | None = None) -> np.ndarray:
+    """'V1,V2,...' -> finite float array (at most MAX_POINTS values); ``shown`` is the text
+    quoted in messages (default ``text``)."""
+    items = str(text).split(",")
+    text = text if shown is None else shown
+    if len(items) > MAX_POINTS:
+        raise NanoabsError(f"{name}: {len(items)} values; at most {MAX_POINTS} allowed")
     try:
-        vals = [float(p) for p in parts]
+        vals = np.array([float(v) for v in items])
     except ValueError:
-        raise NanoabsError(f"{name} = {text!r}: every field must be a number") from None
-    if not all(np.isfinite(vals)) or vals[0] <= 0 or vals[1] <= vals[0]:
-        raise NanoabsError(f"{name} = {text!r}: need 0 < START < STOP")
-    if need_step:
-        if vals[2] <= 0 or vals[2] > vals[1] - vals[0]:
-            raise NanoabsError(f"{name} = {text!r}: STEP must be > 0 and no larger than STOP - START")
-        n = int(np.floor((vals[1] - vals[0]) / vals[2] + 1e-9)) + 1
-        if n > 200_000:
-            raise NanoabsError(f"{name} = {text!r}: {n} points; at most 200000 allowed")
-        return vals[0] + vals[2] * np.arange(n)
-    return vals[0], vals[1]
+        raise NanoabsError(f"{name} = {_short(text)}: every field must be a number") from None
+    if not np.all(np.isfinite(vals)):
+        raise NanoabsError(f"{name} = {_short(text)}: values must be finite")
+    if increasing and np.any(np.diff(vals) <= 0):
+        raise NanoabsError(f"{name} = {_short(text)}: values must be strictly increasing")
+    return vals
 
 
 # -- materials -----------------------------------------------------------------
@@ -448,10 +486,7 @@ def _parse_values(text, name):
     t = str(text)
     if t.count(":") == 2:
         return parse_range(t, name)
-    try:
-        return np.array([float(v) for v in t.split(",")])
-    except ValueError:
-        raise NanoabsError(f"{name} = {text!r}: expected START:STOP:STEP or comma-separated numbers") from None
+    return _parse_list(t, name, increasing=False)
 
 
 def _sweep_params(items):
