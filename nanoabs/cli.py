@@ -191,6 +191,15 @@ def _material_arg(text, option):
 
 
 def _particle_from_args(args):
+    with warnings.catch_warnings(record=True) as caught:  # plausibility warnings of the constructors
+        warnings.simplefilter("always", NanoabsWarning)
+        particle = _build_particle(args)
+    for w in caught:
+        print(f"warning: {w.message}", file=sys.stderr)
+    return particle
+
+
+def _build_particle(args):
     from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid
 
     shape = args.shape
@@ -409,7 +418,8 @@ def _add_particle_options(p):
     g.add_argument("--semi-axes", help="ellipsoid: A,B,C semi-axes along x,y,z [nm]")
     g.add_argument("--polarization", help="spheroid: long|short|random; ellipsoid: x|y|z|random")
     g.add_argument("--medium", default="water", help="medium name or refractive index (default water)")
-    g.add_argument("--wl", default="400:1000:2", help="wavelengths START:STOP:STEP [nm] (default 400:1000:2)")
+    g.add_argument("--wl", default="400:1000:2",
+                   help="wavelengths START:STOP:STEP or a list V1,V2,... [nm] (default 400:1000:2)")
     g.add_argument("--method", default="auto", help="auto|mie|miepython|quasistatic|mlwa")
     g.add_argument("--no-surface-damping", action="store_true", help="turn the size correction off")
     g.add_argument("--damping-a", type=float, default=1.0, help="surface-scattering parameter A (default 1)")
@@ -648,7 +658,7 @@ def _register_design_commands(sub):
     w.add_argument("--polarization")
     w.add_argument("--method", default="auto")
     w.add_argument("--no-surface-damping", action="store_true")
-    w.add_argument("--wl", default="400:1000:2", help="START:STOP:STEP [nm]")
+    w.add_argument("--wl", default="400:1000:2", help="START:STOP:STEP or a list V1,V2,... [nm]")
     w.add_argument("--processes", action="store_true", help="run chunks on two local processes")
     w.add_argument("--max-points", type=int, help="allow a sweep of more than 1e8 designs x wavelengths")
     w.add_argument("--plot", help="save a wavelength x parameter map (.png/.svg)")

@@ -451,18 +451,10 @@ def test_fuzz_cli_spectrum(shape, opts, wl, tmp_path, capsys):
         assert not out.exists()
     else:
         df = pd.read_csv(out, comment="#")
-        # two known exceptions, tested on their own below (strict xfail): the per-metal-volume
-        # column of a particle without metal, the absorbed fraction of an invisible particle
-        num = df.drop(columns=list(KNOWN_NAN_COLUMNS)).select_dtypes("number").to_numpy()
+        num = df.select_dtypes("number").to_numpy()
         assert num.size and np.all(np.isfinite(num)), "NaN or inf in an export"
 
 
-KNOWN_NAN_COLUMNS = ("sigma_abs_per_metal_volume_m_1", "absorbed_fraction")
-
-
-@pytest.mark.xfail(strict=True, reason="optics.Spectrum writes NaN per metal volume for a metal-free "
-                   "particle and NaN absorbed fraction when sigma_ext = 0; fix proposed in "
-                   "notes/hardening.md (optics.py is not this branch's)")
 @pytest.mark.parametrize("medium", ["water", "1.5"])
 def test_export_of_metal_free_particle_has_no_nan(medium, tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
