@@ -389,7 +389,7 @@ def fit_drude_lorentz(wavelength_nm, eps, *, oscillators: int = 2, drude: bool =
                       seed: int = 0, min_oscillator_eV: float | None = None) -> FitResult:
     """Fit a passive Drude–Lorentz model to tabulated permittivity by bounded least squares.
 
-    The residual is the complex relative error (ε_model − ε_data)/|ε_data|
+    The residual is the complex relative error ``(ε_model − ε_data)/|ε_data|``
     (real and imaginary parts) at every tabulated point in ``range_nm``. All
     parameters are bounded below by 0 (Drude damping by 1 meV; oscillator energies
     by ``min_oscillator_eV``), which
@@ -421,7 +421,7 @@ def fit_drude_lorentz(wavelength_nm, eps, *, oscillators: int = 2, drude: bool =
     Returns
     -------
     FitResult
-        ``model``, ``rms_relative_error`` = sqrt(mean |Δε|²/|ε|²) over the fitted points,
+        ``model``, ``rms_relative_error`` = ``sqrt(mean |Δε|²/|ε|²)`` over the fitted points,
         ``range_nm``, ``n_points``, ``success`` and scipy's ``message``.
 
     References
