@@ -63,7 +63,7 @@ html_static_path: list = []
 
 # TODO(lead): the docstrings of these modules write formulas as plain text (|a_n|^2, shape
 # (L, *grid)), which reStructuredText reads as substitutions and emphasis. Until they use
-# ``literals`` (see notes/docs.md), their stray | and * are escaped before rendering; delete
+# ``literals`` (see notes/docs.md), their | and *name are escaped before rendering; delete
 # a module from this tuple once its docstrings are fixed (the build then proves it).
 PLAIN_TEXT_FORMULA_MODULES = ("nanoabs.mie", "nanoabs.hotcarriers")
 _LITERAL = re.compile(r"(``.*?``)")
@@ -71,13 +71,11 @@ _LITERAL = re.compile(r"(``.*?``)")
 
 def _escape_piece(text: str) -> str:
     text = text.replace("|", r"\|")
-    if text.count("*") % 2:  # an unmatched * would open emphasis
-        text = re.sub(r"\*(?=\S)", r"\\*", text)
-    return text
+    return re.sub(r"(?<!\*)\*(?=\w+[,)])", r"\\*", text)  # "(L, *grid)", not "*Title words*"
 
 
 def _escape_plain_text_formulas(app, what, name, obj, options, lines):
-    """Escape | and unmatched * outside literals and literal blocks (see the TODO above)."""
+    """Escape | and star-args (*grid) outside literals and literal blocks (see the TODO above)."""
     if not name.startswith(PLAIN_TEXT_FORMULA_MODULES):
         return
     block_indent = None
