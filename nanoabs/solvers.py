@@ -311,7 +311,8 @@ def choose(method: str, particle, environment) -> tuple:
     Raises
     ------
     NanoabsError
-        If the named method cannot treat the particle or environment, or none can.
+        If the method is unknown, cannot treat the particle or the environment, or no
+        method can ("auto").
     """
     names = ["auto", *METHODS]
     method = check_choice("method", method, names)
