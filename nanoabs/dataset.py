@@ -37,8 +37,15 @@ def spectrum_dataset(spec, dims=None):
     Parameters
     ----------
     spec : Spectrum
+        The spectrum; cross-sections [m²] of shape (..., W) on ``wavelength_nm`` [nm].
     dims : sequence of str, optional
         Names of the leading family dimensions (default ``index_0``, ``index_1``, ...).
+
+    Returns
+    -------
+    xarray.Dataset
+        One variable per spectrum column with a CF ``units`` attribute (``m2``, ``1``,
+        ``m-1``), coordinate ``wavelength_nm`` [nm], provenance in the attributes.
     """
     from .optics import FRAME_COLUMNS
 
@@ -97,7 +104,22 @@ def _cf(unit: str) -> str:
 
 
 def write_netcdf(ds, path, *, force: bool = False):
-    """Write a Dataset to a netCDF-4 file atomically (never overwrites unless ``force``)."""
+    """Write a Dataset to a netCDF-4 file atomically (never overwrites unless ``force``).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The data, e.g. from :func:`spectrum_dataset`.
+    path : str or os.PathLike
+        Output file (``.nc``).
+    force : bool, keyword-only
+        Replace an existing file.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
     from .export import write_file_atomic
 
     _xarray()
@@ -107,7 +129,17 @@ def write_netcdf(ds, path, *, force: bool = False):
 
 
 def read_netcdf(path):
-    """Read a netCDF file written by :func:`write_netcdf` (fully loaded, file closed)."""
+    """Read a netCDF file written by :func:`write_netcdf` (fully loaded, file closed).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The netCDF file.
+
+    Returns
+    -------
+    xarray.Dataset
+    """
     xr = _xarray()
     with xr.open_dataset(path, engine=_engine()) as ds:
         return ds.load()
