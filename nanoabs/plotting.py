@@ -159,10 +159,13 @@ def plot_detector(result, ax=None):
     ax.set_xlabel("wavelength [nm]")
     ax.set_ylabel("responsivity [mA/W]", color="C0")
     lam_c = result.totals.get("cutoff_wavelength_nm")
-    if lam_c is not None and wl.min() <= lam_c <= wl.max() * 1.5:
+    if lam_c is not None and wl.min() <= lam_c <= wl.max():
         ax.axvline(lam_c, color="0.4", ls="--", lw=1)
         ax.annotate(f"cut-off {lam_c:.0f} nm", (lam_c, 0.95), xycoords=("data", "axes fraction"),
                     ha="right", va="top", rotation=90, fontsize=8, color="0.3")
+    elif lam_c is not None:
+        ax.annotate(f"cut-off {lam_c:.0f} nm (outside the plot)", (0.02, 0.95), xycoords="axes fraction",
+                    ha="left", va="top", fontsize=8, color="0.3")
     if "specific_detectivity_Jones" in f:
         d = f["specific_detectivity_Jones"].to_numpy()
         tw = ax.twinx()
