@@ -32,6 +32,7 @@ import numpy as np
 from scipy import constants as _c
 
 from . import __version__
+from . import carriers as cr
 from . import hotcarriers as hc
 from ._errors import NanoabsError, check_nonnegative, check_positive
 from .drude_lorentz import HC_EV_NM
@@ -190,8 +191,6 @@ def _metal_axes(particle, notes):
 
 def _escape_weights(particle, spec, E, c, ell_E, geometry, cf, notes):
     """Escape weight W(E) per wavelength without and with attenuation: arrays (L or 1, m)."""
-    from . import carriers as cr
-
     flat = 0.5 * (1.0 - c)
     if isinstance(particle, Ellipsoid):
         axes = [float(a) for a in _metal_axes(particle, notes)]
@@ -215,8 +214,6 @@ def _escape_weights(particle, spec, E, c, ell_E, geometry, cf, notes):
 
 def _injection(spec, particle, metal, E_ph, parts, P, opts, notes):
     """Injected carriers per absorbed photon: total (no attenuation, with it) and per channel."""
-    from . import carriers as cr
-
     wl, phi, ef, carrier = spec.wavelength_nm, opts["phi"], opts["ef"], opts["carrier"]
     L = wl.size
     fr = {k: np.full(L, 1.0 / 3.0) for k in cr.CHANNELS} if parts is None else {
@@ -269,17 +266,24 @@ def _barrier_opts(contact, barrier_eV, carrier, bias_V, doping_cm3, temperature_
     return phi, c.carrier, meta, c
 
 
-def _cutoff_warnings(wl, E_ph, P, phi, warnings):
+def _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings):
+    """Cut-off wavelength hc/phi [nm]; warnings for rows beyond it and for a peak or band end near it."""
     lam_c = float(HC_EV_NM / phi)
     beyond = wl > lam_c
     if np.any(beyond):
         warnings.append(f"{int(beyond.sum())} wavelength(s) beyond the cut-off {lam_c:.0f} nm (hc/phi_B, "
                         f"phi_B = {phi:.3g} eV): no carrier can cross, injection is zero there")
     margin = max(0.1, 0.1 * phi)  # our choice: within 0.1 eV or 10 % of the barrier
+    near = f"within {margin:.2g} eV of the barrier {phi:.3g} eV (cut-off {lam_c:.0f} nm)"
     i_pk = int(np.argmax(P))
     if phi < E_ph[i_pk] < phi + margin:
-        warnings.append(f"the absorption peak at {wl[i_pk]:g} nm ({E_ph[i_pk]:.3g} eV) lies within {margin:.2g} eV "
-                        f"of the barrier {phi:.3g} eV: the yield there is small and very sensitive to the barrier")
+        warnings.append(f"the absorption peak at {wl[i_pk]:g} nm ({E_ph[i_pk]:.3g} eV) lies {near}: the yield "
+                        "there is small and very sensitive to the barrier")
+    lit = (E_lam > 0) & ~beyond
+    if np.any(lit) and E_ph[lit].min() < phi + margin:
+        j = int(np.argmin(np.where(lit, E_ph, np.inf)))
+        warnings.append(f"the long-wavelength end of the band, {wl[j]:g} nm ({E_ph[j]:.3g} eV), lies {near}: "
+                        "the response there is small and very sensitive to the barrier")
     return lam_c
 
 
@@ -311,6 +315,23 @@ def _device(frame_data, c, opts, area_um2, load_ohm, mono, totals, warnings):
                        "peak_specific_detectivity_wavelength_nm": float(frame_data["wavelength_nm"][j]),
                        "noise_equivalent_power_at_peak_W_Hz05": float(nep[j])})
     return ["noise_equivalent_power_W_Hz05", "specific_detectivity_Jones"]
+
+
+def _options(metal, fermi_energy_eV, attenuation_length_nm, momentum_factor, contact_fraction):
+    """Checked emission options with the sources of the defaults."""
+    ef, ef_src = ((float(check_positive("fermi energy", fermi_energy_eV, unit="eV")), "user value")
+                  if fermi_energy_eV is not None else cr.fermi_energy(metal.name))
+    if attenuation_length_nm is None:
+        ell, ell_src = hc.attenuation_length_nm(metal.name)
+        ell_src = f"{ell_src}; l(E) = l_1 min(1, (1 eV/E)^2) (nanoabs.carriers.mean_free_path_nm)"
+    else:
+        ell, ell_src = float(check_positive("attenuation length", attenuation_length_nm, unit="nm")), "user value"
+    cf = float(check_positive("contact fraction", contact_fraction))
+    if cf > 1:
+        raise NanoabsError(f"contact fraction = {cf:g}: allowed range is 0 to 1")
+    return {"ef": float(ef), "ef_src": ef_src, "ell": float(ell), "ell_src": ell_src,
+            "ell_fixed": attenuation_length_nm is not None, "cf": cf,
+            "mf": float(check_nonnegative("momentum factor", momentum_factor))}
 
 
 def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, contact=None, carrier=None,
@@ -366,8 +387,6 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     """
     import pandas as pd
 
-    from . import carriers as cr
-
     if not isinstance(particle, (Sphere, LayeredSphere, Ellipsoid)):
         raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere or Ellipsoid")
     for name, value, allowed in (("geometry", geometry, ("particle", "flat")),
@@ -379,29 +398,18 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     phi, carrier, schottky, c = _barrier_opts(contact, barrier_eV, carrier, bias_V, doping_cm3, temperature_K)
     E_ph = hc.photon_energy_eV(wl)
     metal = _main_metal(particle)
-    ef, ef_src = ((float(check_positive("fermi energy", fermi_energy_eV, unit="eV")), "user value")
-                  if fermi_energy_eV is not None else cr.fermi_energy(metal.name))
-    if attenuation_length_nm is None:
-        ell, ell_src = hc.attenuation_length_nm(metal.name)
-        ell_src = f"{ell_src}; l(E) = l_1 min(1, (1 eV/E)^2) (nanoabs.carriers.mean_free_path_nm)"
-    else:
-        ell, ell_src = float(check_positive("attenuation length", attenuation_length_nm, unit="nm")), "user value"
-    mf = float(check_nonnegative("momentum factor", momentum_factor))
-    cf = float(check_positive("contact fraction", contact_fraction))
-    if cf > 1:
-        raise NanoabsError(f"contact fraction = {cf:g}: allowed range is 0 to 1")
+    opts = _options(metal, fermi_energy_eV, attenuation_length_nm, momentum_factor, contact_fraction)
+    opts.update({"phi": phi, "carrier": carrier, "yield_model": yield_model, "geometry": geometry,
+                 "generation": generation, "temperature_K": float(temperature_K), "bias_V": float(bias_V)})
     warnings = list(spec.metadata.get("warnings", []))
     notes = []
-    opts = {"phi": phi, "ef": ef, "carrier": carrier, "yield_model": yield_model, "ell": float(ell),
-            "ell_fixed": attenuation_length_nm is not None, "geometry": geometry, "cf": cf, "mf": mf,
-            "generation": generation, "temperature_K": float(temperature_K), "bias_V": float(bias_V)}
 
     E_lam = np.asarray(illumination.spectral_irradiance(wl), dtype=float)
     mono = bool(getattr(illumination, "is_monochromatic", False))
     P = hc.absorbed_power(spec.sigma_abs_m2, E_lam)
     gamma = hc.photon_rate(P, wl)
     parts = _partition(spec, metal, wl, P, notes)
-    lam_c = _cutoff_warnings(wl, E_ph, P, phi, warnings)
+    lam_c = _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings)
     eta, T, per = _injection(spec, particle, metal, E_ph, parts, P, opts, notes)
     rate = gamma * eta * T
     current = _c.e * rate
@@ -449,10 +457,11 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
         i_pk = int(np.argmax(P))
         totals[f"fraction_absorbed_within_{depth_nm:g}_nm_of_surface_at_peak"] = float(surface_fraction[i_pk])
 
-    schottky.update({"fermi_energy_eV": ef, "fermi_energy_source": ef_src, "attenuation_length_nm": ell,
-                     "attenuation_length_source": ell_src, "attenuation_energy_dependent": not opts["ell_fixed"],
-                     "yield_model": yield_model, "geometry": geometry, "generation": generation,
-                     "momentum_factor": mf, "contact_fraction": cf, "cutoff_wavelength_nm": lam_c})
+    schottky.update({"fermi_energy_eV": opts["ef"], "fermi_energy_source": opts["ef_src"],
+                     "attenuation_length_nm": opts["ell"], "attenuation_length_source": opts["ell_src"],
+                     "attenuation_energy_dependent": not opts["ell_fixed"], "yield_model": yield_model,
+                     "geometry": geometry, "generation": generation, "momentum_factor": opts["mf"],
+                     "contact_fraction": opts["cf"], "cutoff_wavelength_nm": lam_c})
     meta = dict(spec.metadata)
     meta.update({
         "illumination": illumination.metadata(), "schottky": schottky, "cutoff_wavelength_nm": lam_c,

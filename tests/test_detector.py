@@ -289,3 +289,17 @@ def test_p_type_contact_names_holes_and_plot(tmp_path):
     assert ax.get_xlabel() == "wavelength [nm]" and len(ax.figure.axes) == 2
     with pytest.raises(NanoabsError, match="contact"):
         hot_carrier_estimate(s, p, il.monochromatic(10.0), barrier_eV=0.3, density_per_um2=20, area_um2=1e4)
+
+
+def test_cutoff_warnings_beyond_and_near():
+    # Issue 13: beyond hc/phi_B the result is zero with a warning; a band ending near the cut-off is flagged too
+    # (our threshold: within max(0.1 eV, 10 % of phi) of the barrier).
+    p = Sphere("Au", 20)
+    s = spectrum(p, np.arange(1200, 1541, 20.0), medium="Si")
+    r = hot_carrier_estimate(s, p, il.monochromatic(10.0), barrier_eV=0.8)  # cut-off 1550 nm
+    assert r.totals["cutoff_wavelength_nm"] == pytest.approx(1239.84198 / 0.8, rel=1e-8)  # hc, CODATA 2018
+    assert any("long-wavelength end" in w for w in r.metadata["warnings"])
+    assert not any("beyond the cut-off" in w for w in r.metadata["warnings"])
+    r2 = hot_carrier_estimate(s, p, il.monochromatic(10.0), barrier_eV=1.0)  # cut-off 1240 nm
+    assert any("beyond the cut-off" in w for w in r2.metadata["warnings"])
+    assert np.all(r2.frame.injected_electron_rate_per_s[s.wavelength_nm > 1239.84198] == 0)
