@@ -171,6 +171,9 @@ def test_cli_forms_and_round_trip(form, tmp_path, monkeypatch, capsys):
     ("--barrier 0.8 --spectrum blackbody:hot", "blackbody"),
     ("--barrier 0.8 --spectrum missing.csv", "missing.csv"),
     ("--barrier 0.8 --irradiance 1e4 --density -1", "density"),
+    ("--barrier 0.8 --irradiance 1e4 --density 5 --area 100", "--schottky"),
+    ("--schottky Au/p-Si --irradiance 1e4 --area 100", "density"),
+    ("--barrier 0.3 --carrier positron --irradiance 1e4", "carrier"),
 ])
 def test_cli_errors(extra, needle, tmp_path, monkeypatch, capsys):
     monkeypatch.chdir(tmp_path)
