@@ -7,7 +7,10 @@ Generation (per absorbed photon of energy h nu, one electron-hole pair):
   R. H. Fowler, Phys. Rev. 38, 45 (1931));
 * interband absorption of the noble metals: a d-band hole at least E_d below E_F and an sp
   electron of at most h nu - E_d above it, both flat over their ranges; for Al the
-  parallel-band transition leaves nearly flat distributions, taken as the intraband form.
+  parallel-band transition (about 1.5 eV; H. Ehrenreich, H. R. Philipp and B. Segall,
+  Phys. Rev. 132, 1918 (1963), from memory) leaves nearly flat distributions (Brown et al.
+  2016), taken as the intraband form, as are those of the transition metals (Pt, Pd, Ni, Ti,
+  Cr, W), whose d bands cross E_F.
 
 This is a documented simplification of the calculated distributions of A. Manjavacas et al.,
 ACS Nano 8, 7630 (2014); R. Sundararaman et al., Nat. Commun. 5, 5788 (2014) and
@@ -34,7 +37,7 @@ import numpy as np
 from ._errors import NanoabsError, check_positive, check_range
 from .hotcarriers import FREE_ELECTRON, Sourced
 
-__all__ = ["BAND_EDGE_EV", "PARALLEL_BAND_EV", "VALENCE_DEPTH_EV", "CHANNELS", "fermi_energy",
+__all__ = ["BAND_EDGE_EV", "VALENCE_DEPTH_EV", "CHANNELS", "fermi_energy",
            "excess_energy_bounds", "carrier_distributions", "cone_cosine", "mean_free_path_nm",
            "energy_grid", "sphere_escape", "ellipsoid_escape", "channel_yield"]
 
@@ -47,10 +50,6 @@ _EDGE = ("d-band edge below E_F (from memory): Au ~2 eV (interband onset 1.8-2.4
 
 #: Depth of the top of the d band below E_F [eV] (interband threshold) of the noble metals.
 BAND_EDGE_EV = {"Au": Sourced(2.0, _EDGE), "Ag": Sourced(3.9, _EDGE), "Cu": Sourced(2.1, _EDGE)}
-
-#: Parallel-band interband threshold of Al [eV]; its carriers are taken as flat (Brown et al. 2016).
-PARALLEL_BAND_EV = {"Al": Sourced(1.5, "H. Ehrenreich, H. R. Philipp and B. Segall, Phys. Rev. 132, "
-                                       "1918 (1963) (from memory)")}
 
 _VAL = ("estimate (from memory): depth of the occupied sp valence band below E_F from band-structure "
         "calculations, +-2 eV; used only as E_F in the escape cone, where it enters as sqrt(E_F + E)")
