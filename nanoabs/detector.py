@@ -217,10 +217,11 @@ def _injection(spec, particle, metal, E_ph, parts, P, opts, notes):
     """Injected carriers per absorbed photon: total (no attenuation, with it) and per channel."""
     wl, phi, ef, carrier = spec.wavelength_nm, opts["phi"], opts["ef"], opts["carrier"]
     L = wl.size
-    fr = {k: np.full(L, 1.0 / 3.0) for k in cr.CHANNELS} if parts is None else {
-        k: np.divide(parts[k], P, out=np.zeros(L), where=P > 0) for k in cr.CHANNELS}
-    if parts is not None:  # P = 0 rows: any split; take the intraband one
-        fr["intraband_bulk"] = np.where(P > 0, fr["intraband_bulk"], 1.0)
+    # without a partition (no Drude-Lorentz model) all power goes to the flat intraband form;
+    # rows with P = 0 take that split too (any split gives 0 there)
+    fr = {k: np.zeros(L) if parts is None else np.divide(parts[k], P, out=np.zeros(L), where=P > 0)
+          for k in cr.CHANNELS}
+    fr["intraband_bulk"] = np.where((P > 0) & (parts is not None), fr["intraband_bulk"], 1.0)
     zero = {k: np.zeros(L) for k in cr.CHANNELS}
     if phi >= E_ph.max():
         return np.zeros(L), np.ones(L), zero

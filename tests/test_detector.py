@@ -306,3 +306,17 @@ def test_cutoff_warnings_beyond_and_near():
     r2 = hot_carrier_estimate(s, p, il.monochromatic(10.0), barrier_eV=1.0)  # cut-off 1240 nm
     assert any("beyond the cut-off" in w for w in r2.metadata["warnings"])
     assert np.all(r2.frame.injected_electron_rate_per_s[s.wavelength_nm > 1239.84198] == 0)
+
+
+def test_metal_without_fit_gets_flat_carriers():
+    # Without a Drude-Lorentz model there is no mechanism partition: all absorbed power gets the flat
+    # (intraband) distributions, so band-edge and flat generation agree (1e-12) and the channel columns are NaN.
+    from nanoabs import material
+
+    p = Sphere(material("Au", "rakic-1998-ld"), 20)
+    s = spectrum(p, np.arange(450, 901, 50.0), medium="water", surface_damping=False)
+    a = hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=0.8)
+    b = hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=0.8, generation="flat")
+    np.testing.assert_allclose(a.frame.injected_electron_rate_per_s, b.frame.injected_electron_rate_per_s, rtol=1e-12)
+    assert a.frame.injected_electron_rate_interband_per_s.isna().all()
+    assert any("partition not available" in n for n in a.metadata["notes"])
