@@ -259,6 +259,8 @@ def _barrier_opts(contact, barrier_eV, carrier, bias_V, doping_cm3, temperature_
         return phi, carrier, {"barrier_eV": phi, "barrier_source": "user value", "carrier": carrier}, None
     c = contact if isinstance(contact, ct.Contact) else ct.contact(contact)
     T = float(check_positive("temperature", temperature_K, unit="K"))
+    if not np.isfinite(float(bias_V)) or abs(float(bias_V)) > 1e3:
+        raise NanoabsError(f"bias = {bias_V!r} V: must be a finite number within +-1000 V (reverse bias < 0)")
     phi, low, field = ct.effective_barrier_eV(c, bias_V=float(bias_V), doping_cm3=doping_cm3, temperature_K=T)
     meta = {"contact": c.label, "barrier_eV": phi, "barrier_zero_field_eV": c.barrier_eV,
             "barrier_range_eV": list(c.range_eV), "barrier_source": c.source, "carrier": c.carrier,

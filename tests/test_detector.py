@@ -320,3 +320,18 @@ def test_metal_without_fit_gets_flat_carriers():
     np.testing.assert_allclose(a.frame.injected_electron_rate_per_s, b.frame.injected_electron_rate_per_s, rtol=1e-12)
     assert a.frame.injected_electron_rate_interband_per_s.isna().all()
     assert any("partition not available" in n for n in a.metadata["notes"])
+
+
+@pytest.mark.parametrize("kw,needle", [
+    ({"bias_V": float("nan")}, "bias"), ({"temperature_K": 0.0}, "temperature"), ({"doping_cm3": -1.0}, "doping"),
+    ({"area_um2": -5.0}, "area"), ({"load_ohm": 0.0}, "load"), ({"geometry": "cube"}, "geometry"),
+    ({"generation": "magic"}, "generation"), ({"contact": "Au/InP"}, "Au/Si"),
+])
+def test_device_input_errors(kw, needle):
+    # Bad device inputs raise one-line NanoabsErrors naming the parameter (house rule).
+    p = Sphere("Au", 20)
+    s = spectrum(p, np.arange(1200, 1301, 50.0), medium="Si")
+    args = {"contact": "Au/p-Si", "density_per_um2": 5.0, "area_um2": 100.0, **kw}
+    with pytest.raises(NanoabsError) as e:
+        hot_carrier_estimate(s, p, il.monochromatic(10.0), **args)
+    assert needle in str(e.value) and "\n" not in str(e.value)
