@@ -7,21 +7,27 @@
    surface-assisted intraband) in proportion to the parts of ε″ of its
    Drude–Lorentz model (Khurgin, Faraday Discuss. 214, 35 (2019); Kreibig &
    Vollmer 1995) — every part sees the same field, so P_j/P = ε″_j/ε″;
-3. emission probability over the Schottky barrier: the escape-cone integral
-   for isotropic hot-electron momenta (default) or Fowler's small-excess form;
-4. transport to the interface with attenuation length ℓ, over the radial
-   absorption profile of (layered) spheres, or a uniform profile in the
-   equal-volume sphere for ellipsoids (uniform internal field in the
-   quasi-static limit);
-5. per particle: injected electron rate and photocurrent I = q Γ η T; for an
+3. energy-resolved generation per mechanism, one electron-hole pair per photon
+   (:mod:`nanoabs.carriers`): intraband carriers flat over [0, hν], interband
+   d-band holes and sp electrons from the band edge of Au, Ag, Cu;
+4. barrier from a tabulated contact (:mod:`nanoabs.contacts`, image-force
+   lowered at the bias, doping and temperature) or a value; electrons cross
+   n-type barriers, holes p-type ones; cut-off hc/φ_B with warnings;
+5. emission: escape cone at the curved wall where each straight path ends,
+   survival exp(−s/ℓ(E)), over the Mie absorption profile of (layered) spheres
+   or the uniform field of ellipsoids (``geometry="flat"``: flat-interface cone
+   with the straight radial path);
+6. per particle: injected carrier rate by channel and photocurrent; for an
    array of N particles per µm²: absorptance N σ_abs (sparse limit),
-   photocurrent density, responsivity and external quantum efficiency;
-6. steady-state temperature rise of one particle ΔT = P/(4π κ R)
+   photocurrent density, responsivity and external quantum efficiency; with a
+   device area: thermionic dark current, noise, NEP and D* (:mod:`nanoabs.noise`);
+7. steady-state temperature rise of one particle ΔT = P/(4π κ R)
    (Govorov & Richardson, Nano Today 2, 30 (2007)).
 
 This is an order-of-magnitude estimate of the kind used to compare designs; it
-ignores carrier–carrier scattering cascades, interface roughness and
-momentum-relaxing surface absorption beyond the user factor ``momentum_factor``.
+ignores carrier–carrier scattering cascades (attenuated carriers are lost),
+reflections at the wall, interface roughness, surface photoemission and
+momentum-shaped distributions beyond the user factor ``momentum_factor``.
 """
 
 from __future__ import annotations

@@ -1,7 +1,7 @@
 """Hot-carrier (internal photoemission) and absorbed-power estimates.
 
 Pure functions, vectorised over wavelength (numpy broadcasting), for a metal
-nanoparticle forming a Schottky contact with an n-type semiconductor:
+nanoparticle forming a Schottky contact with a semiconductor:
 
 * photon energy and photon rate (``scipy.constants``, CODATA);
 * internal photoemission yield over the Schottky barrier: the Fowler
