@@ -490,7 +490,9 @@ def _sphere_nd(eps, eps_medium, radius):
     eps = _check_eps("eps", eps)
     em = _check_eps_medium(eps_medium)
     r = check_positive("radius", radius)
-    return 4.0 * np.pi * r**3 * (eps - em), eps + 2.0 * em, eps, np.abs(eps) + 2.0 * np.abs(em)
+    with np.errstate(over="ignore", invalid="ignore"):  # an overflow is reported by the callers
+        num = 4.0 * np.pi * r**3 * (eps - em)
+    return num, eps + 2.0 * em, eps, np.abs(eps) + 2.0 * np.abs(em)
 
 
 def _depol_nd(eps, eps_medium, volume, L):
