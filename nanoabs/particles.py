@@ -105,10 +105,14 @@ def check_size_family(particle, wavelength_nm) -> None:
     n = np.size(wavelength_nm)
     for label, size in zip(particle.layer_labels(), particle.damping_lengths_nm()):
         shape = np.shape(size)
-        if (len(shape) == 1 and shape[0] > 1) or (len(shape) > 1 and shape[-1] not in (1, n)):
+        if len(shape) == 1 and shape[0] > 1:
             raise NanoabsError(
-                f"particle {label} size: an array of shape {shape} against {n} wavelengths is "
+                f"particle {label} size: a 1-D array of shape {shape} against {n} wavelengths is "
                 "ambiguous; give a scalar or a family of shape (P, 1), e.g. sizes[:, None]")
+        if len(shape) > 1 and shape[-1] not in (1, n):
+            raise NanoabsError(
+                f"particle {label} size: shape {shape} has a last axis of {shape[-1]}, neither 1 (a "
+                f"family of shape (P, 1)) nor the number of wavelengths ({n})")
 
 
 class _Spherical:

@@ -138,7 +138,9 @@ API_CASES = [
     ("mutated 1-D radius vs grid", lambda t: check_size_family(_mutated_sphere([10, 20, 30, 40, 50]), WL),
      "ambiguous"),
     ("mutated (2, 7) radius vs 5 wl", lambda t: check_size_family(_mutated_sphere(np.ones((2, 7))), WL),
-     "ambiguous"),
+     "neither 1"),
+    ("(1, 3) geometry vs 5 wl", lambda t: check_size_family(spheroid("Au", np.array([[40.0, 50.0, 60.0]]), 20.0), WL),
+     "neither 1"),
     # singular physics: every static pole is refused, not returned as Q ~ 1e26
     ("prolate pole, long axis", lambda t: q.polarizability_ellipsoid(
         *_ellipsoid_pole((30, 10, 10), "x"), 30, 10, 10, axis="x"), "singular"),
