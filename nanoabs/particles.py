@@ -84,6 +84,12 @@ def _common_shape(what: str, *sizes) -> None:
                            "give equal family lengths P (each of shape (P, 1)) or scalars") from None
 
 
+def _check_outer(name: str, value) -> None:
+    """The outer size of a coated particle obeys the same bound as every size."""
+    if np.any(np.asarray(value) > MAX_SIZE_NM):
+        raise NanoabsError(f"{name} = {float(np.max(value)):g} nm: allowed range is 0 to {MAX_SIZE_NM:g} nm")
+
+
 def _pair(name: str, item) -> tuple:
     """A (material, thickness_nm) pair; a one-line error for anything else."""
     if isinstance(item, (str, bytes, dict)) or not hasattr(item, "__len__") or len(item) != 2:
@@ -203,9 +209,7 @@ class LayeredSphere(_Spherical):
             raise NanoabsError("shells: give at least one (material, thickness_nm) pair")
         self.shells = [_pair(f"shell {i}", item) for i, item in enumerate(self.shells, 1)]
         _common_shape("layered sphere", self.core_radius_nm, *(t for _, t in self.shells))
-        if np.any(self.layers[-1][1] > MAX_SIZE_NM):
-            raise NanoabsError(f"outer radius = {float(np.max(self.layers[-1][1])):g} nm: allowed range "
-                               f"is 0 to {MAX_SIZE_NM:g} nm")
+        _check_outer("outer radius", self.outer_radius_nm)
 
     shape = "layered sphere"
 
@@ -256,6 +260,8 @@ class Ellipsoid:
         if self.shell is not None:
             self.shell = _pair("shell", self.shell)
             _common_shape("ellipsoid with shell", *self.semi_axes_nm, self.shell[1])
+            for n, v in zip("abc", self.shell_axes_nm()):
+                _check_outer(f"outer semi-axis {n}", v)
 
     shape = "ellipsoid"
 

@@ -129,6 +129,7 @@ API_CASES = [
     ("semi-axis True", lambda t: Ellipsoid("Au", (10, True, 5)), "boolean"),
     ("semi-axis string", lambda t: Ellipsoid("Au", (10, "5", 5)), "real number"),
     ("semi-axes families differ", lambda t: Ellipsoid("Au", (np.ones((3, 1)), np.ones((4, 1)), 5)), "broadcast"),
+    ("ellipsoid outer axis over bound", lambda t: Ellipsoid("Au", (9e3, 10, 10), ("SiO2", 5e3)), "outer semi-axis"),
     ("ellipsoid shell a string", lambda t: Ellipsoid("Au", (30, 10, 10), "SiO2"), "pair"),
     ("ellipsoid shell one item", lambda t: Ellipsoid("Au", (30, 10, 10), ("SiO2",)), "pair"),
     ("spheroid length True", lambda t: spheroid("Au", True, 20), "boolean"),
