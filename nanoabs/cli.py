@@ -462,7 +462,8 @@ def _register_particle_commands(sub):
     h = sub.add_parser("hot-carriers", help="absorbed power, hot-carrier injection, photocurrent, noise")
     _add_particle_options(h)
     g = h.add_argument_group("illumination")
-    g.add_argument("--irradiance", type=float, help="monochromatic irradiance [W/m^2] at every wavelength")
+    g.add_argument("--irradiance", type=_irradiance_arg,
+                   help="monochromatic irradiance at every wavelength: W/m^2, or with a unit (1mW/cm2)")
     g.add_argument("--laser-power", type=float, help="laser power [W] (Gaussian beam, peak irradiance)")
     g.add_argument("--beam-radius", type=float, help="1/e^2 intensity radius of the beam [nm]")
     g.add_argument("--spectrum", help="am1.5g | am1.5d | am0 | blackbody:T_K | flat:W_m2_nm | FILE.csv")
@@ -503,6 +504,14 @@ def _register_particle_commands(sub):
                    help="incident irradiance: W/m^2, or with a unit (1mW/cm2, 10W/m2)")
     x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50)")
     x.set_defaults(func=_cmd_export_generation)
+
+
+def _irradiance_arg(text):
+    """argparse type: an irradiance with an optional unit, in W/m^2 (errors become one line)."""
+    try:
+        return parse_irradiance(text)
+    except NanoabsError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def _cmd_export_generation(args) -> int:
@@ -727,7 +736,8 @@ def _register_design_commands(sub):
     q.add_argument("--barrier", type=float, help="injection: Schottky barrier [eV]")
     q.add_argument("--schottky", help="injection: tabulated pair, e.g. Au/Si")
     q.add_argument("--spectrum", help="injection: am1.5g | am1.5d | am0 | blackbody:T | flat:V | FILE.csv")
-    q.add_argument("--irradiance", type=float, help="injection: monochromatic irradiance [W/m^2]")
+    q.add_argument("--irradiance", type=_irradiance_arg,
+                   help="injection: monochromatic irradiance, W/m^2 or with a unit (1mW/cm2)")
     q.add_argument("--top", type=int, default=10)
     q.add_argument("-o", "--output", help="write the ranked table (CSV + JSON)")
     q.add_argument("--force", action="store_true")

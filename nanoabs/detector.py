@@ -45,7 +45,7 @@ from .drude_lorentz import HC_EV_NM
 from .illumination import band_integral, check_illumination
 from .particles import Ellipsoid, LayeredSphere, Sphere
 
-__all__ = ["HotCarrierResult", "hot_carrier_estimate", "absorbed_power_density", "EXPORT_COLUMNS",
+__all__ = ["HotCarrierResult", "hot_carrier_estimate", "absorbed_power_density", "export_names", "EXPORT_COLUMNS",
            "ARRAY_COLUMNS"]
 
 EXPORT_COLUMNS = ["wavelength_nm", "irradiance_W_m2_nm", "sigma_abs_m2", "absorbed_power_W",
@@ -72,7 +72,59 @@ class HotCarrierResult:
 
         meta = dict(self.metadata)
         meta["totals"] = self.totals
-        return write_export(self.frame, path, metadata=meta, units=self.units, force=force)
+        frame, units, renamed = export_names(self.frame, self.units)
+        if renamed:
+            meta["column_names_in_python"] = renamed
+        return write_export(frame, path, metadata=meta, units=units, force=force)
+
+    def plot(self, ax=None):
+        """Responsivity [mA/W] (and D* with a device area) against wavelength, cut-off marked;
+        returns the Axes (see :func:`nanoabs.plotting.plot_detector`)."""
+        from .plotting import plot_detector
+
+        if ax is None:
+            import matplotlib.pyplot as plt
+
+            _, ax = plt.subplots(figsize=(6.4, 4.2), layout="constrained")
+        return plot_detector(self, ax=ax)
+
+    def __repr__(self) -> str:
+        t, m = self.totals, self.metadata
+        sch = m.get("schottky", {}) if isinstance(m.get("schottky"), dict) else {}
+        parts = [f"HotCarrierResult({len(self.frame)} wavelengths",
+                 f"barrier {sch.get('barrier_eV', '?')} eV", f"cut-off {t.get('cutoff_wavelength_nm', float('nan')):.0f} nm"]
+        if "peak_responsivity_A_W" in t:
+            parts.append(f"peak responsivity {t['peak_responsivity_A_W'] * 1e3:.3g} mA/W")
+        if t.get("specific_detectivity_Jones_at_peak") is not None:
+            parts.append(f"D* {t['specific_detectivity_Jones_at_peak']:.3g} Jones")
+        n = len(m.get("warnings", []))
+        return "; ".join(parts) + (f"; {n} warning(s))" if n else ")")
+
+    def _repr_html_(self) -> str:
+        import html
+
+        return f"<div><b>nanoabs hot-carrier estimate</b><br>{html.escape(repr(self))}</div>"
+
+
+def export_names(frame, units):
+    """Column names for export format 2: a spectral density says so (``..._per_nm``).
+
+    Under broadband light, powers, rates, currents and irradiances per wavelength are densities
+    per nm; their exported names end in ``_per_nm``. Under monochromatic light the irradiance
+    column holds W m⁻² and is exported as ``irradiance_W_m2``. Returns (frame, units, {new: old}).
+    """
+    mapping = {}
+    for col in frame.columns:
+        unit = units.get(col, "")
+        base = col[:-3] if col.endswith("_nm") and col.startswith("irradiance_") else col
+        if unit.endswith("nm^-1") and not col.endswith("_per_nm"):
+            mapping[col] = base + "_per_nm"
+        elif col == "irradiance_W_m2_nm":
+            mapping[col] = "irradiance_W_m2"
+    if not mapping:
+        return frame, units, {}
+    new_units = {mapping.get(c, c): u for c, u in units.items()}
+    return frame.rename(columns=mapping), new_units, {v: k for k, v in mapping.items()}
 
 
 def _metal_layers(particle):

@@ -149,7 +149,18 @@ def test_cli_forms_and_round_trip(form, tmp_path, monkeypatch, capsys):
     assert "caution" in out and ("photocurrent" in out)
     name = form.split()[-1]
     df, meta = nanoabs.read_export(name)
-    assert list(df.columns[:9]) == EXPORT_COLUMNS
+    # export format 2: the exported names say what the numbers are (per-nm densities under broadband
+    # light, W/m^2 for a monochromatic irradiance); the sidecar maps them back to the Python names
+    back = meta["metadata"].get("column_names_in_python", {})
+    assert [back.get(c, c) for c in df.columns[:9]] == EXPORT_COLUMNS
+    units = {c["name"]: c["unit"] for c in meta["columns"]}
+    for c, u in units.items():
+        assert c.endswith("_per_nm") == u.endswith("nm^-1"), (c, u)
+    if "spectrum" in form:
+        assert "absorbed_power_W_per_nm" in df.columns and "photocurrent_A_per_nm" in df.columns
+        assert "irradiance_W_m2_per_nm" in df.columns
+    else:
+        assert "irradiance_W_m2" in df.columns and units["irradiance_W_m2"] == "W m^-2"
     md = meta["metadata"]
     for key in ("illumination", "schottky", "methods", "materials", "totals", "package_version"):
         assert key in md
@@ -232,6 +243,7 @@ def test_issue13_contract_forms(form, tmp_path, monkeypatch, capsys):
     assert main(form.split()) == 0
     df, meta = nanoabs.read_export(form.split()[-1])
     md = meta["metadata"]
+    df = df.rename(columns=md.get("column_names_in_python", {}))  # export-format-2 names back to Python's
     carrier = "hole" if "p-Si" in form else "electron"
     total = df[f"injected_{carrier}_rate_per_s"]
     parts = sum(df[f"injected_{carrier}_rate_{k}_per_s"] for k in ("intraband_bulk", "intraband_surface", "interband"))
