@@ -508,7 +508,7 @@ def _read_csv_fast(csv_path: Path, columns: list[dict], rows: int):
         na[c["name"]] = ["nan"] if kind == "f" else []
     try:
         frame = pd.read_csv(csv_path, dtype=dtypes, keep_default_na=False, na_values=na, encoding="utf-8",
-                            index_col=False)
+                            index_col=False, float_precision="round_trip")  # exact, as the writer promises
     except (ValueError, TypeError, OverflowError, OSError, pd.errors.ParserError, UnicodeDecodeError):
         return None
     if list(frame.columns) != names or len(frame) != rows:

@@ -581,7 +581,8 @@ def _sweep_reduced(path, param, n, wl, band):
     inb = (wl >= band[0]) & (wl <= band[1]) if band else np.zeros(W, bool)
     step = max(1, -(-n // _MAP_ROWS))
     vals, peaks, foms, map_ids, map_rows = [], [], [], [], []
-    for chunk in pd.read_csv(path, usecols=["design_id", param, "sigma_abs_m2"], chunksize=W * 512):
+    for chunk in pd.read_csv(path, usecols=["design_id", param, "sigma_abs_m2"], chunksize=W * 512,
+                             float_precision="round_trip"):
         sa = chunk["sigma_abs_m2"].to_numpy(dtype=float).reshape(-1, W)
         ids = chunk["design_id"].to_numpy()[::W]
         vals.append(chunk[param].to_numpy(dtype=float)[::W])
