@@ -85,6 +85,8 @@ def check_writable(path, *, force: bool = False) -> tuple[Path, ...]:
         Bad suffix, missing or unwritable parent directory, a target that is a
         directory, or a target that exists while ``force`` is false.
     """
+    if str(path).strip() == "":
+        raise NanoabsError("export path = '': give a file name ending in .csv or .json")
     path = Path(path)
     targets = _targets(path)
     parent = path.parent
@@ -555,19 +557,29 @@ def check_input_file(path, what: str, *, max_bytes: int = MAX_INPUT_BYTES) -> Pa
     return p
 
 
+def check_file_target(path, *, force: bool = False, suffixes=None, what: str = "output file") -> Path:
+    """Check, before any work, that a single output file can be written at ``path``."""
+    target = Path(path)
+    if str(path).strip() == "":
+        raise NanoabsError(f"{what} = '': give a file name")
+    if suffixes is not None and target.suffix.lower() not in suffixes:
+        raise NanoabsError(f"{what} {str(target)!r}: suffix must be {' or '.join(suffixes)}")
+    if not target.parent.is_dir():
+        raise NanoabsError(f"output directory {str(target.parent)!r} does not exist: create it first")
+    if target.is_dir():
+        raise NanoabsError(f"{what} {str(target)!r} is a directory: choose a file name")
+    if target.exists() and not force:
+        raise NanoabsError(f"{what} {str(target)!r} exists: pass force=True (CLI: --force) to overwrite")
+    return target
+
+
 def write_file_atomic(path, write, *, force: bool = False, binary: bool = False) -> Path:
     """Write any output file atomically: ``write(handle)`` fills a temporary beside it, then rename.
 
     Used for figures, reports and parameter files. Refuses to overwrite an
     existing file unless ``force``; leaves nothing behind on failure.
     """
-    target = Path(path)
-    if not target.parent.is_dir():
-        raise NanoabsError(f"output directory {str(target.parent)!r} does not exist: create it first")
-    if target.is_dir():
-        raise NanoabsError(f"output file {str(target)!r} is a directory: choose a file name")
-    if target.exists() and not force:
-        raise NanoabsError(f"output file {str(target)!r} exists: pass force=True (CLI: --force) to overwrite")
+    target = check_file_target(path, force=force)
     tmp = _write_temp(target, write, binary=binary)
     try:
         os.replace(tmp, target)

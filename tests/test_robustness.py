@@ -142,6 +142,8 @@ CLI_CASES = [
      "unknown material"),
     ("sweep missing table", "sweep --shape sphere --param radius_nm=10 --material nothere.csv", "not found"),
     ("sweep out dir missing", "sweep --shape sphere --param radius_nm=10 -o nodir/s.csv", "does not exist"),
+    ("sweep plot dir missing", "sweep --shape sphere --param radius_nm=10 --plot nodir/m.png", "does not exist"),
+    ("sweep plot suffix", "sweep --shape sphere --param radius_nm=10 --plot m.gif", ".png or .svg"),
     ("search too many starts top", "search --band 700:800 --top 0", "top"),
     ("run debug after command", "run missing.toml -o out --debug", "not found"),
     ("demo empty output", "demo -o", "expected one argument"),
@@ -267,6 +269,18 @@ def test_run_validates_everything_before_writing(what, text, extra, needle, tmp_
     assert needle in err, err
     assert err.count("\n") == 1 and "Traceback" not in err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["afile", "s.toml"]
+
+
+@pytest.mark.parametrize("argv", [["sweep", "--shape", "sphere", "--param", "radius_nm=10", "-o", ""],
+                                  ["sweep", "--shape", "sphere", "--param", "radius_nm=10", "--plot", ""],
+                                  ["search", "--band", "700:800", "-o", ""],
+                                  ["demo", "-o", ""]])
+def test_empty_output_names_are_refused(argv, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert main(argv + ["--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "''" in err, err
+    assert list(tmp_path.iterdir()) == []
 
 
 @pytest.mark.skipif(not hasattr(__import__("os"), "geteuid") or __import__("os").geteuid() == 0,
