@@ -465,6 +465,10 @@ def _cmd_sweep(args) -> int:
         print(f"wrote {args.output}")
     if hasattr(res, "columns"):
         _report_sweep(res, args)
+    else:
+        skipped = " and no --plot drawn" if args.plot else ""
+        print(f"the table is larger than the memory budget: peaks not listed{skipped}; read {res} in pieces "
+              "(pandas.read_csv(..., chunksize=...))")
     return 0
 
 

@@ -283,6 +283,17 @@ def test_empty_output_names_are_refused(argv, tmp_path, monkeypatch, capsys):
     assert list(tmp_path.iterdir()) == []
 
 
+@pytest.mark.skipif(not __import__("os").path.isdir("/proc/self"), reason="needs the Linux /proc filesystem")
+@pytest.mark.parametrize("argv", [["sweep", "--shape", "sphere", "--param", "radius_nm=10", "-o", "/proc/x.csv"],
+                                  ["run", "s.toml", "-o", "/proc/rep"], ["run", "s.toml", "-o", "/dev/null"]])
+def test_special_filesystems_give_one_line_errors(argv, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "s.toml").write_text(GOOD)
+    assert main(argv + ["--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err, err
+
+
 @pytest.mark.skipif(not hasattr(__import__("os"), "geteuid") or __import__("os").geteuid() == 0,
                     reason="root can write into read-only folders")
 def test_run_into_read_only_parent_is_one_line(tmp_path, monkeypatch, capsys):
