@@ -304,8 +304,9 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
     ------
     NanoabsError
         See :func:`check_writable`; a column without unit, an unsupported column
-        dtype, or metadata that cannot be written as JSON. On any failure no new
-        file and no temporary file is left behind.
+        dtype, or metadata that cannot be written as JSON; another process writing
+        the same export at the same moment (:func:`exclusive_lock`). On any
+        failure no new file and no temporary file is left behind.
     """
     targets = check_writable(path, force=force)
     columns = _check_frame(frame, units)
@@ -333,7 +334,9 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
         writers.append((targets[0], lambda fh: table.to_csv(fh, index=False, na_rep="nan",
                                                             lineterminator="\n")))
     writers.append((targets[-1], lambda fh: fh.write(json_text)))
-    return place_together(writers)
+    with exclusive_lock(targets[0], "export"):  # a CSV never lands beside another writer's sidecar
+        check_writable(path, force=force)
+        return place_together(writers)
 
 
 def place_together(writers) -> tuple[Path, ...]:
