@@ -96,6 +96,39 @@ API_CASES = [
     ("sweep executor unknown", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL,
                                                             executor="threads"), "executor"),
     ("sweep out not csv", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL, out="x.json"), ".csv"),
+    ("sweep chunk_size bool", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL, chunk_size=True),
+     "chunk_size"),
+    ("sweep memory budget nan", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL,
+                                                             memory_budget_MB=float("nan")), "memory_budget_MB"),
+    ("sweep wavelengths reversed", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL[::-1]),
+     "increasing"),
+    ("sweep 2-D sizes", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [[10, 20]]}, WL), "1-D"),
+    ("sweep surface damping text", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL,
+                                                                surface_damping="no"), "True or False"),
+    ("sweep material int", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10], "material": {"Au": 1}}, WL),
+     "material name"),
+    ("sweep medium unknown", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL, medium="Xx"),
+     "unknown material"),
+    ("sweep polarization unknown", lambda: nanoabs.design.sweep("spheroid", {"length_nm": [40], "diameter_nm": [10]},
+                                                                WL, polarization="diag"), "polarization"),
+    ("sweep thin shell", lambda: nanoabs.design.sweep("shell", {"core_radius_nm": [20], "thickness_nm": [0.01]},
+                                                      WL), "monolayer"),
+    ("search band one edge", lambda: nanoabs.design.search((700,)), "band_nm"),
+    ("search materials empty", lambda: nanoabs.design.search((700, 800), materials=[]), "empty"),
+    ("search materials dict", lambda: nanoabs.design.search((700, 800), materials={"Au": 1}), "materials"),
+    ("search families dict", lambda: nanoabs.design.search((700, 800), families={"rod": 1}), "families"),
+    ("search bounds reversed", lambda: nanoabs.design.search((700, 800), families=["sphere"],
+                                                             bounds={"sphere": {"radius_nm": (50, 10)}}), "lo < hi"),
+    ("search max size small", lambda: nanoabs.design.search((700, 800), max_size_nm=5), "max_size_nm"),
+    ("search surface damping text", lambda: nanoabs.design.search((700, 800), surface_damping="yes"),
+     "True or False"),
+    ("ensemble histogram mismatch", lambda: nanoabs.design.ensemble_average(
+        "sphere", {"radius_nm": 20}, {}, WL, distribution={"radius_nm": ([10, 20], [1.0])}), "same length"),
+    ("ensemble histogram and spread", lambda: nanoabs.design.ensemble_average(
+        "sphere", {"radius_nm": 20}, {"radius_nm": 0.1}, WL, distribution={"radius_nm": ([10], [1.0])}),
+     "spread must be empty"),
+    ("ensemble nominal array", lambda: nanoabs.design.ensemble_average("sphere", {"radius_nm": [10, 20]}, {}, WL),
+     "one value"),
 ]
 
 
@@ -147,6 +180,14 @@ CLI_CASES = [
     ("search too many starts top", "search --band 700:800 --top 0", "top"),
     ("run debug after command", "run missing.toml -o out --debug", "not found"),
     ("demo empty output", "demo -o", "expected one argument"),
+    ("sweep unknown shape", "sweep --shape cube --param radius_nm=10", "invalid choice"),
+    ("sweep unknown method", "sweep --shape sphere --param radius_nm=10 --method fdtd", "method"),
+    ("sweep wl reversed", "sweep --shape sphere --param radius_nm=10 --wl 900:400:5", "START < STOP"),
+    ("sweep max points text", "sweep --shape sphere --param radius_nm=10 --max-points lots", "invalid int"),
+    ("search band reversed", "search --band 800:700", "START < STOP"),
+    ("search unknown family", "search --band 700:800 --families rod,cube", "family"),
+    ("search unknown objective", "search --band 700:800 --objective speed", "objective"),
+    ("search band and centre", "search --band 700:800 --center 750 --width 10", "either"),
 ]
 
 
@@ -161,8 +202,8 @@ def test_cli_bad_input(what, argv, needle, tmp_path, monkeypatch, capsys):
     assert not (tmp_path / "o.csv").exists() and not (tmp_path / "out").exists()
 
 
-def test_at_least_forty_distinct_cases():
-    assert len(API_CASES) + len(CLI_CASES) + len(STUDY_CASES) + len(RUN_CASES) >= 90
+def test_at_least_150_distinct_cases():
+    assert len(API_CASES) + len(CLI_CASES) + len(STUDY_CASES) + len(RUN_CASES) >= 150
 
 
 # -- study files --------------------------------------------------------------
@@ -254,6 +295,11 @@ RUN_CASES = [  # (what, study text, extra argv, message): validated before anyth
     ("output is a file", GOOD, ["-o", "afile"], "not a folder"),
     ("output parent missing", GOOD, ["-o", "no/such/dir"], "does not exist"),
     ("debug after command", GOOD.replace("radius_nm = 20", "radius_nm = -20"), ["--debug"], "radius"),
+    ("particle material unknown", GOOD.replace('material = "Au"', 'material = "Xx"'), [], "unknown material"),
+    ("sweep shell core unknown", GOOD + SWEEP.replace('"sphere"', '"shell"').replace('"radius_nm"',
+                                 '"thickness_nm"') + 'core = "Xx"\ncore_radius_nm = 20\n', [], "unknown material"),
+    ("injection without band source", GOOD + '[search]\nband_nm = [700, 800]\nobjective = "injection"\n', [],
+     "monochromatic"),
 ]
 
 
