@@ -40,11 +40,12 @@ def parse_range(text: str, name: str = "--wl", *, need_step: bool = True):
     if not all(np.isfinite(vals)) or vals[0] <= 0 or vals[1] <= vals[0]:
         raise NanoabsError(f"{name} = {text!r}: need 0 < START < STOP")
     if need_step:
-        from .study import _GRID_RTOL1, inclusive_grid
-
-        if vals[2] <= 0 or vals[2] > (vals[1] - vals[0]) * _GRID_RTOL1:
+        if vals[2] <= 0 or vals[2] > vals[1] - vals[0]:
             raise NanoabsError(f"{name} = {text!r}: STEP must be > 0 and no larger than STOP - START")
-        return inclusive_grid(*vals, f"{name} = {text!r}")
+        n = int(np.floor((vals[1] - vals[0]) / vals[2] + 1e-9)) + 1
+        if n > 200_000:
+            raise NanoabsError(f"{name} = {text!r}: {n} points; at most 200000 allowed")
+        return vals[0] + vals[2] * np.arange(n)
     return vals[0], vals[1]
 
 
