@@ -252,4 +252,3 @@ def test_read_detects_mismatch_with_sidecar(tmp_path):
     sidecar.write_text(json.dumps(doc), encoding="utf-8")
     with pytest.raises(DataError, match="format = 'something-else'"):
         read_export(target)
-
