@@ -580,10 +580,12 @@ def _table_or_material(text):
 
 def _cmd_sweep(args) -> int:
     from . import design
-    from .export import check_writable
+    from .export import check_file_target, check_writable
 
-    if args.output:
+    if args.output is not None:  # an empty -o '' is refused, not read as "no output"
         check_writable(args.output, force=args.force, netcdf=True)
+    if args.plot is not None:
+        check_file_target(args.plot, force=args.force, suffixes=(".png", ".svg"), what="plot file")
     params = _sweep_params(args.param)
     wl = parse_range(args.wl)
     kw = dict(material=_table_or_material(args.material), medium=_medium_arg(args.medium), method=args.method,
@@ -605,6 +607,10 @@ def _cmd_sweep(args) -> int:
         print(f"wrote {args.output}")
     if hasattr(res, "columns"):
         _report_sweep(res, args)
+    else:
+        skipped = " and no --plot drawn" if args.plot else ""
+        print(f"the table is larger than the memory budget: peaks not listed{skipped}; read {res} in pieces "
+              "(pandas.read_csv(..., chunksize=...))")
     return 0
 
 
@@ -648,7 +654,7 @@ def _cmd_search(args) -> int:
     from .export import check_writable
     from .hotcarriers import schottky_barrier
 
-    if args.output:
+    if args.output is not None:  # an empty -o '' is refused, not read as "no output"
         check_writable(args.output, force=args.force)
     if args.band and (args.center or args.width):
         raise NanoabsError("give either --band LO:HI (repeatable) or --center and --width")

@@ -962,9 +962,10 @@ class MieSolver(_Solver):
     def inputs(problem):
         """Relative indices m (L, ..., W) and size parameters x (L, ..., W) of the layers."""
         k = problem.k
-        m = np.stack(np.broadcast_arrays(*[np.sqrt(e) / problem.n_medium for e in problem.eps_layers]))
-        x = np.stack(np.broadcast_arrays(*[k * np.asarray(r, dtype=float) for _, r in problem.particle.layers]))
-        return np.broadcast_arrays(m, x)
+        ms = [np.sqrt(e) / problem.n_medium for e in problem.eps_layers]
+        xs = [k * np.asarray(r, dtype=float) for _, r in problem.particle.layers]
+        a = np.broadcast_arrays(*ms, *xs)  # every layer on the common (..., W) shape before stacking
+        return np.stack(a[:len(ms)]), np.stack(a[len(ms):])
 
     def solve(self, problem):
         m, x = self.inputs(problem)

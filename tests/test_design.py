@@ -80,6 +80,19 @@ def test_sweep_spheroid_and_shell_reproduce_single_spectra():
     assert_allclose(g.sigma_abs_m2.to_numpy(), s.sigma_abs_m2, rtol=1e-14, atol=0)
 
 
+def test_sweep_of_dielectric_shells_reproduces_single_spectra():
+    # Regression: the layer permittivities of an array-sized LayeredSphere without size-dependent
+    # damping were once stacked against the size axis (wrong numbers when designs = layers).
+    # Source: nanoabs.spectrum of each particle built on its own; rtol 1e-12. A shell with a
+    # constant-index (non-metal) shell layer: no surface damping, so every layer's permittivity
+    # is one row per wavelength.
+    df = design.sweep("shell", {"core_radius_nm": [20.0, 30.0], "thickness_nm": [5.0]}, WL, material=2.5,
+                      progress=False)
+    for i, r in enumerate((20.0, 30.0)):
+        s = nanoabs.spectrum(nanoabs.LayeredSphere("SiO2", r, [(nanoabs.material(2.5), 5.0)]), WL)
+        assert_allclose(df[df.design_id == i].sigma_sca_m2.to_numpy(), s.sigma_sca_m2, rtol=1e-12, atol=0)
+
+
 def test_chunk_sizes_agree():
     # Source: the same sweep with chunk size 1, 7 and all designs in one chunk. Agreement to
     # rtol 1e-14: batches of different composition round differently in the last bit (module docs).

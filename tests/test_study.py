@@ -135,21 +135,12 @@ diameter_nm = 20
 
 
 _SMALL = """
-[study]
-title = "names"
-[medium]
-index = 1.33
-[wavelengths]
-start_nm = 450
-stop_nm = 800
-step_nm = 10
-[illumination]
-kind = "flat"
-value_W_m2_nm = 1.0
-[detector]
-barrier_eV = 0.8
-[output]
-figures = false
+study = {title = "names"}
+medium = {index = 1.33}
+wavelengths = {start_nm = 450, stop_nm = 800, step_nm = 10}
+illumination = {kind = "flat", value_W_m2_nm = 1.0}
+detector = {barrier_eV = 0.8}
+output = {figures = false}
 """
 
 
