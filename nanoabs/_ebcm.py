@@ -188,7 +188,7 @@ def wigner_d_all(n_max: int, m: int, theta):
 
 
 def radial(n_max: int, x, x1):
-    """Radial factors on the surface, arrays (n_max+1, W, Q): j, h, ζ_j, ζ_h of x and j, ζ of x₁.
+    """Radial factors on the surface, arrays (W, n_max+1, Q): j, h, ζ_j, ζ_h of x and j, ζ of x₁.
 
     ζ_n(z) = (z z_n(z))'/z = z_(n-1) − n z_n / z (A&S 10.1.22); order 0 rows are padding.
     """
@@ -202,68 +202,79 @@ def radial(n_max: int, x, x1):
         out[1:] = f[:-1] - n * f[1:] / arg
         return out
 
-    return {"j": j, "h": h, "zj": zeta(j, x), "zh": zeta(h, x), "j1": j1, "z1": zeta(j1, x1)}
+    out = {"j": j, "h": h, "zj": zeta(j, x), "zh": zeta(h, x), "j1": j1, "z1": zeta(j1, x1)}
+    return {key: v.transpose(1, 0, 2) for key, v in out.items()}
 
 
-def q_blocks(m: int, n_max: int, rad, x, x1, m_rel, rho, w_theta, theta):
-    """Q and RgQ of azimuthal order m, shape (2, W, 2K, 2K), rows (M, N) × n, columns (M, N) × n'.
+def q_systems(m: int, n_max: int, rad, x, x1, m_rel, rho, w_theta, theta):
+    """Q and RgQ of azimuthal order m, one system per mirror-parity class.
 
-    See the module docstring for the formulas; ``rad`` from :func:`radial`.
+    Returns [(idx, QQ), ...]: ``idx`` the positions in the block order (rows
+    (M, N) × n, module docstring of :mod:`nanoabs.tmatrix`) and ``QQ`` of shape
+    (2, W, S, S) holding Q (h_n) and RgQ (j_n) of that class; the entries
+    between classes vanish by symmetry and are never formed.  Formulas in the
+    module docstring; ``rad`` from :func:`radial`, ``x``, ``x1`` of shape (W, Q).
     """
     d, pi, tau = wigner_d_all(n_max, m, theta)
     nn = np.arange(max(m, 1), n_max + 1)
     K = nn.size
-    sel = nn
-    nn1 = (nn * (nn + 1))[:, None, None]
-    w = w_theta * x**2 * np.sin(theta)  # (W, Q)
-    j1, z1 = rad["j1"][sel], rad["z1"][sel]
-    j1x = nn1 * j1 / x1
-    # internal factors (K, W, Q), indexed by n'
-    i_pj, i_tj, i_pz, i_tz = pi[:, None] * j1, tau[:, None] * j1, pi[:, None] * z1, tau[:, None] * z1
-    i_dj = d[:, None] * j1x
-    out = np.empty((2, x.shape[0], 2 * K, 2 * K), dtype=complex)
-    for k, (zf, zz) in enumerate(((rad["h"], rad["zh"]), (rad["j"], rad["zj"]))):
-        z, zeta = zf[sel], zz[sel]
-        wz, wzeta = w * z, w * zeta
-        e_d = w * rho * nn1 * z / x * d[:, None]
-        S_a = _contract([wzeta * pi[:, None], wzeta * tau[:, None], e_d], [i_pj, i_tj, i_tj])
-        S_b = _contract([wz * pi[:, None], wz * tau[:, None], wz * rho * tau[:, None]], [i_pz, i_tz, i_dj])
-        U = _contract([wz * tau[:, None], wz * pi[:, None]], [i_pj, i_tj])
-        V = _contract([wzeta * tau[:, None], wzeta * pi[:, None], wzeta * rho * pi[:, None], e_d],
-                      [i_pz, i_tz, i_dj, pi[:, None] * z1])
-        mr = m_rel[:, None, None]
-        out[k, :, :K, :K] = S_a - mr * S_b
-        out[k, :, K:, K:] = mr * S_a - S_b
-        out[k, :, K:, :K] = -1j * (U + mr * V)
-        out[k, :, :K, K:] = -1j * (V + mr * U)
-    return out
+    order = np.argsort(nn % 2, kind="stable")  # even n first, then odd n
+    ne = int(np.sum(nn % 2 == 0))
+    ns = nn[order]
+    d, pi, tau = d[order], pi[order], tau[order]
+    nn1 = (ns * (ns + 1))[:, None]
+    x, x1 = x[:, None, :], x1[:, None, :]
+    w = (w_theta * np.sin(theta))[None, None, :] * x**2  # (W, 1, Q)
+    j1, z1 = rad["j1"][:, ns], rad["z1"][:, ns]  # internal factors (W, K, Q), index n'
+    dj1 = d * nn1 * j1 / x1
+    cat = np.concatenate
+    B = {"Sa": cat([pi * j1, tau * j1, tau * j1], -1), "Sb": cat([pi * z1, tau * z1, dj1], -1),
+         "U": cat([pi * j1, tau * j1], -1), "V": cat([pi * z1, tau * z1, dj1, pi * z1], -1)}
+    B = {key: v.transpose(0, 2, 1) for key, v in B.items()}
+    z = np.stack([rad["h"][:, ns], rad["j"][:, ns]])  # external (2, W, K, Q): [h_n, j_n], index n
+    zeta = np.stack([rad["zh"][:, ns], rad["zj"][:, ns]])
+    wz, wzeta = w * z, w * zeta
+    e_d = (w * rho / x) * nn1 * z * d
+    A = {"Sa": cat([wzeta * pi, wzeta * tau, e_d], -1), "Sb": cat([wz * pi, wz * tau, wz * rho * tau], -1),
+         "U": cat([wz * tau, wz * pi], -1), "V": cat([wzeta * tau, wzeta * pi, wzeta * rho * pi, e_d], -1)}
+    par = (slice(0, ne), slice(ne, K))
+
+    def mm(key, r, c):
+        return A[key][:, :, par[r]] @ B[key][:, :, par[c]]
+
+    mr = m_rel[:, None, None]
+    diag = {p: (mm("Sa", p, p), mm("Sb", p, p)) for p in (0, 1)}
+    systems = []
+    for a, b in ((0, 1), (1, 0)):  # class: M rows of parity a, N rows of parity b
+        (sa_a, sb_a), (sa_b, sb_b) = diag[a], diag[b]
+        U_ba, V_ba, U_ab, V_ab = mm("U", b, a), mm("V", b, a), mm("U", a, b), mm("V", a, b)
+        ka = sa_a.shape[-1]
+        QQ = np.empty((2, x.shape[0], ka + sa_b.shape[-1], ka + sa_b.shape[-1]), dtype=complex)
+        QQ[:, :, :ka, :ka] = sa_a - mr * sb_a
+        QQ[:, :, ka:, ka:] = mr * sa_b - sb_b
+        QQ[:, :, ka:, :ka] = -1j * (U_ba + mr * V_ba)
+        QQ[:, :, :ka, ka:] = -1j * (V_ab + mr * U_ab)
+        idx = np.concatenate([order[par[a]], K + order[par[b]]])
+        if idx.size:
+            systems.append((idx, QQ))
+    return systems
 
 
-def _contract(ext, internal):
-    """Σ_q Σ_i ext_i[n, w, q] internal_i[n', w, q] -> (W, n, n') by one batched matmul."""
-    A = np.concatenate(ext, axis=-1).transpose(1, 0, 2)
-    B = np.concatenate(internal, axis=-1).transpose(1, 2, 0)
-    return A @ B
+def solve_t(systems, K: int, *, want_cond: bool = False):
+    """T = −RgQ Q⁻¹ per parity class, by LU (LAPACK gesv) on equilibrated matrices.
 
-
-def solve_t(Q, RgQ, m: int, n_max: int, *, want_cond: bool = False):
-    """T = −RgQ Q⁻¹ per parity class (module docstring), by LU on equilibrated matrices.
-
-    Returns T (W, 2K, 2K) and, with ``want_cond``, the largest 1-norm condition
-    number of the equilibrated Q over the classes and wavelengths (else 0).
+    ``systems`` from :func:`q_systems`.  Row and column scalings of Q cancel in
+    T exactly and keep the pivoting meaningful when h_n spans many decades.
+    Returns T (W, 2K, 2K) in block order and, with ``want_cond``, the largest
+    1-norm condition number of the equilibrated Q (else 0).
     """
-    nn = np.arange(max(m, 1), n_max + 1)
-    K = nn.size
-    parity = np.concatenate([nn % 2, (nn + 1) % 2])
-    T = np.zeros_like(Q)
+    T = None
     cond = 0.0
-    for p in (0, 1):
-        idx = np.flatnonzero(parity == p)
-        if idx.size == 0:
-            continue
-        q = Q[:, idx[:, None], idx]
-        rg = RgQ[:, idx[:, None], idx]
-        col = 1.0 / np.max(np.abs(q), axis=1, keepdims=True)  # column equilibration (cancels in T)
+    for idx, QQ in systems:
+        q, rg = QQ[0], QQ[1]
+        if T is None:
+            T = np.zeros((q.shape[0], 2 * K, 2 * K), dtype=complex)
+        col = 1.0 / np.max(np.abs(q), axis=1, keepdims=True)
         row = 1.0 / np.max(np.abs(q * col), axis=2, keepdims=True)
         qs = q * col * row
         # T = −(rg·col) (row·q·col)⁻¹ row  ->  Tᵀ = −row (qsᵀ)⁻¹ (rg·col)ᵀ

@@ -186,9 +186,9 @@ class TMatrix:
         if n_max is None:
             n_max, n_quad, info = _converge(shape, dims, k, m_rel, tol)
         else:
-            n_quad = int(n_quad or 2 * n_max + 8)
+            n_quad = int(n_quad or _quad_points(shape, n_max))
             info = {"achieved_change": None}
-        blocks = _compute(shape, dims, k, m_rel, n_max, n_quad)
+        blocks = _compute(shape, dims, k, m_rel, n_max, n_quad, m_tol=0.01 * tol)
         info.update(method="ebcm", shape=shape, n_max=n_max, n_quad=n_quad,
                     x_max=float(np.max(k) * _r_max(shape, dims)))
         tm = cls(wl, k, n_max, blocks, info)
@@ -226,7 +226,9 @@ class TMatrix:
         sca = np.zeros(self.k_nm.shape)
         for m in range(-self.n_max, self.n_max + 1):
             am = a[_block_index(m, self.n_max)]
-            ta = self.block(m) @ am
+            if not np.any(am):
+                continue
+            ta = np.einsum("wij,j->wi", self.block(m), am)
             ext -= np.real(ta @ am.conj())
             sca += np.sum(np.abs(ta) ** 2, axis=-1)
         return _finish(ext, sca, self.k_nm)
@@ -272,7 +274,10 @@ class TMatrix:
 
 def _prepare_optics(eps, eps_medium, wavelength_nm):
     wl = np.atleast_1d(check_positive("wavelength", wavelength_nm, unit="nm")).astype(float)
-    eps = np.broadcast_to(np.asarray(eps, dtype=complex), wl.shape).copy()
+    eps = np.asarray(eps, dtype=complex)
+    if eps.ndim > 1 or eps.size not in (1, wl.size):
+        raise NanoabsError(f"eps has shape {eps.shape}: give one value or one per wavelength ({wl.size})")
+    eps = np.broadcast_to(eps, wl.shape).copy()
     em = np.asarray(eps_medium, dtype=complex)
     if np.any(np.abs(em.imag) > 1e-12 * np.abs(em)) or np.any(em.real <= 0):
         raise NanoabsError(f"eps_medium = {complex(em.ravel()[0]):g}: the host must be real and > 0 "
@@ -288,8 +293,14 @@ def _r_max(shape, dims):
     return float(np.hypot(c, R)) if shape == "cylinder" else max(c, R)
 
 
-def _compute(shape, dims, k, m_rel, n_max, n_quad):
-    """The blocks m = 0..n_max on the whole grid, in chunks of wavelengths."""
+def _compute(shape, dims, k, m_rel, n_max, n_quad, *, m_tol=0.0):
+    """The blocks m = 0..n_max on the whole grid, in chunks of wavelengths.
+
+    With ``m_tol`` > 0, the loop over m stops once two successive orders each
+    add less than ``m_tol`` (relative) to the orientation-averaged C_ext and
+    C_sca at every wavelength of the chunk; the higher blocks are set to zero
+    (Mishchenko et al. 2002, §5.11 do the same over m, from memory).
+    """
     theta, w = _ebcm.quadrature(shape, dims, n_quad)
     r, rho = _ebcm.surface(shape, dims, theta)
     step = max(1, _CHUNK_ELEMENTS // ((n_max + 2) * n_quad))
@@ -299,9 +310,18 @@ def _compute(shape, dims, k, m_rel, n_max, n_quad):
         x = k[sl, None] * r[None, :]
         x1 = m_rel[sl, None] * x
         rad = _ebcm.radial(n_max, x, x1)
+        total, small = 0.0, 0
         for m in range(n_max + 1):
-            Q = _ebcm.q_blocks(m, n_max, rad, x, x1, m_rel[sl], rho[None, :], w[None, :], theta)
-            blocks[m].append(_ebcm.solve_t(Q[0], Q[1], m, n_max)[0])
+            K = n_max - max(m, 1) + 1
+            if small >= 2:
+                blocks[m].append(np.zeros((x.shape[0], 2 * K, 2 * K), dtype=complex))
+                continue
+            systems = _ebcm.q_systems(m, n_max, rad, x, x1, m_rel[sl], rho, w, theta)
+            T = _ebcm.solve_t(systems, K)[0]
+            blocks[m].append(T)
+            part = np.abs(np.trace(T, axis1=1, axis2=2).real) + np.sum(np.abs(T) ** 2, axis=(1, 2))
+            total = total + part
+            small = small + 1 if m > 0 and np.all(part < m_tol * total) else 0
     return [np.concatenate(b) for b in blocks]
 
 
@@ -324,41 +344,51 @@ def _sample(k, m_rel):
     return np.array(sorted(idx))
 
 
+def _quad_points(shape, n):
+    """Gauss points on [0, π/2] for multipole order n: more where a corner breaks smoothness."""
+    return (2 if shape == "spheroid" else 4) * n + 8
+
+
 def _converge(shape, dims, k, m_rel, tol):
-    """Find (n_max, n_quad) on a sample of wavelengths (module docstring); raise if none."""
+    """Find (n_max, n_quad) on a sample of wavelengths (module docstring); raise if none.
+
+    Converged means that the step n -> n + 2 changes the averaged C_ext and
+    C_sca by less than ``tol`` (spheroids, whose convergence is fast and
+    monotone), or two successive steps do (cylinders and capped rods: one small
+    step can be a stationary point of their slow, oscillating convergence);
+    the lower order of the last agreeing step is returned.
+    """
     s = _sample(k, m_rel)
     ks, ms = k[s], m_rel[s]
     x_max = float(np.max(ks)) * _r_max(shape, dims)
     n = max(3, int(np.ceil(x_max + 4.0 * x_max ** (1 / 3) + 2)))
-    prev = _average(_compute(shape, dims, ks, ms, n, 2 * n + 8), ks)
+    label = f"{shape} {2 * dims[0]:g} x {2 * dims[1]:g} nm"
+    hint = "allowed: aspect ratio, size and |m| within the validated range (notes/tmatrix.md) or a larger tol"
+
+    def average(n_, n_quad_):
+        return _average(_compute(shape, dims, ks, ms, n_, n_quad_, m_tol=0.01 * tol), ks)
+
+    cur = average(n, _quad_points(shape, n))
     history = []
-    while True:
+    steps = 1 if shape == "spheroid" else 2
+    while len(history) < steps or max(history[-steps:]) >= tol:
         if n + 2 > N_MAX_LIMIT:
-            raise NanoabsError(
-                f"{shape} {2 * dims[0]:g} x {2 * dims[1]:g} nm: T-matrix not converged to tol = {tol:g} "
-                f"by n_max = {N_MAX_LIMIT} (best relative change {min(history, default=np.inf):.1e}); "
-                f"allowed: aspect ratio and size within the validated range (notes/tmatrix.md)")
+            raise NanoabsError(f"{label}: T-matrix not converged to tol = {tol:g} by n_max = {N_MAX_LIMIT} "
+                               f"(last relative changes {history[-2]:.1e}, {history[-1]:.1e}); {hint}")
         n += 2
-        cur = _average(_compute(shape, dims, ks, ms, n, 2 * n + 8), ks)
-        change = _change(prev, cur)
-        history.append(change)
-        prev = cur
-        if change < tol:
-            break
-        if len(history) >= 3 and history[-1] > history[-2] > history[-3]:
-            raise NanoabsError(
-                f"{shape} {2 * dims[0]:g} x {2 * dims[1]:g} nm: T-matrix diverges from n_max = {n - 4} "
-                f"(relative change {history[-3]:.1e} -> {history[-1]:.1e}, ill-conditioned Q); "
-                f"allowed: aspect ratio and size within the validated range (notes/tmatrix.md)")
-    n_quad = 2 * n + 8
-    finer = _average(_compute(shape, dims, ks, ms, n, n_quad + n_quad // 2), ks)
-    q_change = _change(cur, finer)
+        prev, cur = cur, average(n, _quad_points(shape, n))
+        history.append(_change(prev, cur))
+        if len(history) >= 3 and history[-1] > history[-2] > history[-3] and history[-1] > tol:
+            raise NanoabsError(f"{label}: T-matrix diverges from n_max = {n - 4} (relative change "
+                               f"{history[-3]:.1e} -> {history[-1]:.1e}, ill-conditioned Q) before "
+                               f"reaching tol = {tol:g}; {hint}")
+    n -= 2  # the last step n -> n + 2 bounds the change of the lower order
+    n_quad = _quad_points(shape, n)
+    q_change = _change(prev, average(n, n_quad + n_quad // 2))
     if q_change >= tol:
-        raise NanoabsError(
-            f"{shape} {2 * dims[0]:g} x {2 * dims[1]:g} nm: T-matrix changes by {q_change:.1e} > tol = {tol:g} "
-            f"when the quadrature grows from {n_quad} to {n_quad + n_quad // 2} points; allowed: "
-            "aspect ratio and size within the validated range (notes/tmatrix.md)")
-    return n, n_quad, {"achieved_change": change, "quadrature_change": q_change,
+        raise NanoabsError(f"{label}: T-matrix changes by {q_change:.1e} > tol = {tol:g} when the "
+                           f"quadrature grows from {n_quad} to {n_quad + n_quad // 2} points; {hint}")
+    return n, n_quad, {"achieved_change": history[-1], "quadrature_change": q_change,
                        "sample_wavelength_index": s.tolist()}
 
 
