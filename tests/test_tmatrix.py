@@ -139,7 +139,7 @@ def test_small_spheroids_tend_to_quasistatic_limit():
     # Reference: Bohren & Huffman 1983 §5.3 (static polarisability with depolarisation factors,
     # C_abs = k Im(alpha) as in nanoabs.quasistatic.cross_sections). The difference must shrink
     # about 4x per halving of the size (first corrections are O((k a)^2)) and be < 1e-2 relative
-    # at k a_max ~ 0.02 (largest semi-axis 2.5 nm), near and off the gold resonances.
+    # at k a_max <= 0.04 (largest semi-axis 2.5 nm), near and off the gold resonances.
     wl = np.array([520.0, 650.0, 800.0])
     eps = nanoabs.material("Au").permittivity(wl)
     k = 2 * np.pi * N_WATER / wl
