@@ -1,4 +1,5 @@
-"""Particle geometries: sphere, layered sphere, ellipsoid (optionally with a confocal shell), spheroid.
+"""Particle geometries: sphere, layered sphere, ellipsoid (optionally with a confocal shell), spheroid,
+finite cylinder and capped rod.
 
 Sizes are in nm and may be numpy arrays (they broadcast against the wavelength
 grid in the solvers, e.g. radius of shape (P, 1) against W wavelengths).
@@ -10,6 +11,7 @@ substrate carrying the particle in the x–y plane) when the field is along x or
 y, and along x when the field is along z. A rod from :func:`spheroid` with
 length > diameter lies along x; a disc (length < diameter) has its symmetry axis
 along z. "long" and "short" pick the field along the long or a short axis.
+Cylinders and capped rods follow the same rule (rod along x, disc axis along z).
 """
 
 from __future__ import annotations
@@ -21,7 +23,7 @@ import numpy as np
 
 from ._errors import NanoabsError, check_choice, check_positive
 
-__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "MONOLAYER_NM"]
+__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "Cylinder", "CappedRod", "MONOLAYER_NM"]
 
 #: Thinnest shell accepted [nm]: about one atomic monolayer of gold/silver
 #: (lattice constant 0.408 nm; (111) spacing 0.236 nm; common practice to call
@@ -283,6 +285,104 @@ def spheroid(material, length_nm, diameter_nm, *, shell=None) -> Ellipsoid:
         if np.all(L < D):
             return Ellipsoid(material, (D / 2, D / 2, L / 2), shell, kind="disc")
     return Ellipsoid(material, (L / 2, D / 2, D / 2), shell, kind="rod")
+
+
+@dataclass
+class _RoundBody:
+    """Homogeneous body of revolution with flat or rounded ends (subclasses set ``shape``).
+
+    ``length_nm`` is the extent along the symmetry axis (tip to tip), ``diameter_nm``
+    across it [nm]. A rod (length >= diameter) lies along x, a disc along z.
+    """
+
+    material: object
+    length_nm: object
+    diameter_nm: object
+
+    def __post_init__(self):
+        self.material = _mat(self.material)
+        self.length_nm = check_positive("length", self.length_nm, unit="nm")
+        self.diameter_nm = check_positive("diameter", self.diameter_nm, unit="nm")
+        rods = self.length_nm >= self.diameter_nm
+        if np.any(rods) and not np.all(rods):
+            raise NanoabsError("length/diameter arrays must be all rods (length >= diameter) or all discs")
+        self.kind = "rod" if np.all(rods) else "disc"
+
+    def _parts(self):
+        """(length of the straight part, radius, end volume, end area) [nm, nm, nm³, nm²]."""
+        raise NotImplementedError
+
+    def volume_nm3(self):
+        h, R, v_end, _ = self._parts()
+        return np.pi * R**2 * h + v_end
+
+    def surface_nm2(self):
+        h, R, _, s_end = self._parts()
+        return 2 * np.pi * R * h + s_end
+
+    def side_area_nm2(self):
+        """Projected area seen from the side (light perpendicular to the axis) [nm²]."""
+        h, R, _, _ = self._parts()
+        return 2 * R * h + (np.pi * R**2 if self.shape == "capped-rod" else 0.0)
+
+    def layer_materials(self) -> list:
+        return [self.material]
+
+    def layer_labels(self) -> list:
+        return [self.shape]
+
+    def damping_lengths_nm(self) -> list:
+        """4V/S (Coronado & Schatz, J. Chem. Phys. 119, 3926 (2003))."""
+        return [4.0 * self.volume_nm3() / self.surface_nm2()]
+
+    def outer_semi_axes_nm(self) -> tuple:
+        L, R = self.length_nm / 2, self.diameter_nm / 2
+        return (L, R, R) if self.kind == "rod" else (R, R, L)
+
+    def reference_area_nm2(self, polarization):
+        """(geometric cross-section [nm²], description), as for :class:`Ellipsoid`."""
+        if polarization == "random":
+            return self.surface_nm2() / 4.0, "surface area / 4 (random orientation, Cauchy's theorem)"
+        along_axis = (polarization == "z") == (self.kind == "rod")  # light along the symmetry axis
+        if along_axis:
+            return np.pi * (self.diameter_nm / 2) ** 2, "end-on projected area pi D^2/4 (light along the axis)"
+        return self.side_area_nm2(), "side-on projected area (light perpendicular to the axis)"
+
+    def equal_volume_area_nm2(self):
+        return np.pi * (3 * self.volume_nm3() / (4 * np.pi)) ** (2.0 / 3.0)
+
+    def metal_volume_nm3(self):
+        return self.volume_nm3() if self.material.is_metal else 0.0
+
+    def describe(self) -> dict:
+        return {"shape": self.shape, "material": self.material.label, "length_nm": _plain(self.length_nm),
+                "diameter_nm": _plain(self.diameter_nm), "kind": self.kind}
+
+
+class Cylinder(_RoundBody):
+    """Finite homogeneous cylinder with flat ends: ``Cylinder(material, length_nm, diameter_nm)``."""
+
+    shape = "cylinder"
+
+    def _parts(self):
+        R = self.diameter_nm / 2
+        return self.length_nm, R, 0.0, 2 * np.pi * R**2
+
+
+class CappedRod(_RoundBody):
+    """Rod with hemispherical caps, ``length_nm`` tip to tip (>= ``diameter_nm``)."""
+
+    shape = "capped-rod"
+
+    def __post_init__(self):
+        super().__post_init__()
+        if self.kind != "rod":
+            raise NanoabsError(f"length = {_plain(self.length_nm)} nm: a capped rod needs length >= diameter "
+                               f"({_plain(self.diameter_nm)} nm)")
+
+    def _parts(self):
+        R = self.diameter_nm / 2
+        return self.length_nm - 2 * R, R, 4.0 / 3.0 * np.pi * R**3, 4 * np.pi * R**2
 
 
 def resolve_polarization(particle, polarization: str) -> str:

@@ -55,6 +55,7 @@ import numpy as np
 
 from . import _ebcm
 from ._errors import NanoabsError, check_choice, check_positive
+from .solvers import Response, Solver
 
 __all__ = ["TMatrix", "SHAPES", "N_MAX_LIMIT", "cross_sections_nm2", "plane_wave"]
 
@@ -437,6 +438,25 @@ def _rotation(n_max, alpha, beta, gamma):
 # --------------------------------------------------------------------------- #
 
 
+def _incidence(axis: int, field_axis: str):
+    """(θ_inc, ψ) of the project's illumination for a symmetry axis along x/y/z (0/1/2).
+
+    Convention of :mod:`nanoabs.particles`: light along z for a field along x or
+    y, along x for a field along z.  Field on the axis: θ = π/2, ψ = 0; light on
+    the axis: θ = 0; otherwise both perpendicular to the axis: θ = ψ = π/2.
+    """
+    f = "xyz".index(field_axis)
+    light = 2 if f < 2 else 0
+    if f == axis:
+        return np.pi / 2, 0.0
+    return (0.0, 0.0) if light == axis else (np.pi / 2, np.pi / 2)
+
+
+def _sections(tm, axis, polarization):
+    return tm.orientation_average() if polarization == "random" else tm.cross_sections(
+        *_incidence(axis, polarization))
+
+
 def cross_sections_nm2(shape, eps_particle, eps_medium, dims_nm, wavelength_nm, polarization="random",
                        tol: float = 1e-4):
     """(σ_abs, σ_sca, σ_ext) [nm²] on the grid and a convergence/validity dict.
@@ -461,17 +481,89 @@ def cross_sections_nm2(shape, eps_particle, eps_medium, dims_nm, wavelength_nm, 
         "random" is the analytic orientation average.
     tol : float
         Convergence tolerance (see :meth:`TMatrix.axisymmetric`).
+
+    Returns
+    -------
+    sigma_abs, sigma_sca, sigma_ext : (W,) ndarray [nm²]
+    info : dict
+        ``n_max``, ``n_quad``, ``achieved_change``, ``quadrature_change``, ``x_max``, ``method``.
     """
     pol = check_choice("polarization", polarization, ["long", "short", "random"])
-    L, D = dims_nm
+    L, D = (float(v) for v in dims_nm)
     tm = TMatrix.axisymmetric(shape, eps_particle, eps_medium, L, D, wavelength_nm, tol=tol)
-    disc = float(L) < float(D)
-    if pol == "random":
-        out = tm.orientation_average()
-    elif pol == "long":
-        out = tm.cross_sections(0.0, 0.0) if disc else tm.cross_sections(np.pi / 2, 0.0)
-    else:
-        out = tm.cross_sections(np.pi / 2, 0.0) if disc else tm.cross_sections(np.pi / 2, np.pi / 2)
+    rod = L >= D
+    field = {"long": "x", "short": "y" if rod else "z", "random": "random"}[pol]
+    out = _sections(tm, 0 if rod else 2, field)
+    return out[0], out[1], out[2], _report(tm)
+
+
+def _report(tm):
     info = {k: tm.info[k] for k in ("n_max", "n_quad", "achieved_change", "quadrature_change", "x_max")}
     info["method"] = "tmatrix"
-    return out[0], out[1], out[2], info
+    return info
+
+
+class TMatrixSolver(Solver):
+    """Solver-table entry ``"tmatrix"`` (see :mod:`nanoabs.solvers`): EBCM T matrix of a body of revolution.
+
+    Accepts homogeneous spheroids (ellipsoids with two equal semi-axes),
+    :class:`~nanoabs.particles.Cylinder` and :class:`~nanoabs.particles.CappedRod`
+    in a homogeneous host; a family of sizes is solved one size at a time.
+    """
+
+    name = "tmatrix"
+    reference = ("T-matrix, extended boundary condition method: Waterman, Proc. IEEE 53, 805 (1965); "
+                 "Barber & Yeh, Appl. Opt. 14, 2864 (1975); orientation average: Mishchenko, "
+                 "J. Opt. Soc. Am. A 8, 871 (1991)")
+    shapes = frozenset({"ellipsoid", "cylinder", "capped-rod"})
+    tol = 1e-4
+
+    def accepts(self, particle) -> str | None:
+        reason = super().accepts(particle)
+        if reason is not None:
+            return reason
+        if len(particle.layer_materials()) > 1:
+            return "it treats homogeneous particles only (no shell)"
+        if particle.shape == "ellipsoid" and _symmetry_axis(particle.semi_axes_nm) is None:
+            return "it treats spheroids (two equal semi-axes) only"
+        return None
+
+    def solve(self, problem) -> Response:
+        p = problem.particle
+        if p.shape == "ellipsoid":
+            axes = [np.asarray(a, dtype=float) for a in p.semi_axes_nm]
+            axis = _symmetry_axis(p.semi_axes_nm)
+            L, D = 2 * axes[axis], 2 * axes[(axis + 1) % 3]
+            shape = "spheroid"
+        else:
+            axis = 0 if p.kind == "rod" else 2
+            L, D, shape = np.asarray(p.length_nm, dtype=float), np.asarray(p.diameter_nm, dtype=float), p.shape
+        W = problem.wavelength_nm.size
+        grid = np.broadcast_shapes(np.shape(L), np.shape(D))
+        grid = grid[:-1] if grid and grid[-1] == 1 else grid  # sizes of shape (..., 1) against W
+        eps = np.broadcast_to(problem.eps_layers[0], grid + (W,))
+        out = np.zeros((3,) + grid + (W,))
+        reports = []
+        for idx in np.ndindex(*grid):
+            Li, Di = (float(np.broadcast_to(v, grid + (1,) * (len(grid) < np.ndim(v)))[idx].ravel()[0])
+                      for v in (L, D))
+            tm = TMatrix.axisymmetric(shape, eps[idx], problem.eps_medium, Li, Di, problem.wavelength_nm,
+                                      tol=self.tol)
+            out[(slice(None),) + idx] = _sections(tm, axis, problem.polarization)
+            reports.append(_report(tm))
+        meta = {"tmatrix": reports[0] if len(reports) == 1 else {
+            "n_max": max(r["n_max"] for r in reports),
+            "achieved_change": max(r["achieved_change"] for r in reports)}}
+        return Response(out[0], out[1], out[2], backend="numpy (EBCM)", metadata=meta)
+
+
+def _symmetry_axis(semi_axes):
+    """Index of the symmetry axis of a spheroid (z for a sphere), or None if all three differ."""
+    a, b, c = (np.asarray(v, dtype=float) for v in semi_axes)
+    if np.array_equal(*np.broadcast_arrays(a, b)):
+        return 2
+    if np.array_equal(*np.broadcast_arrays(b, c)):
+        return 0
+    if np.array_equal(*np.broadcast_arrays(a, c)):
+        return 1
+    return None
