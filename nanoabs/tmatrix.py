@@ -227,7 +227,7 @@ class TMatrix:
         sca = np.zeros(self.k_nm.shape)
         for m in range(-self.n_max, self.n_max + 1):
             am = a[_block_index(m, self.n_max)]
-            if not np.any(am):
+            if not (np.any(am) and np.any(self.blocks[abs(m)])):  # blocks past the m truncation are 0
                 continue
             ta = np.einsum("wij,j->wi", self.block(m), am)
             ext -= np.real(ta @ am.conj())
