@@ -226,28 +226,32 @@ def q_systems(m: int, n_max: int, rad, x, x1, m_rel, rho, w_theta, theta):
     x, x1 = x[:, None, :], x1[:, None, :]
     w = (w_theta * np.sin(theta))[None, None, :] * x**2  # (W, 1, Q)
     j1, z1 = rad["j1"][:, ns], rad["z1"][:, ns]  # internal factors (W, K, Q), index n'
-    dj1 = d * nn1 * j1 / x1
+    Q = theta.size
     cat = np.concatenate
-    B = {"Sa": cat([pi * j1, tau * j1, tau * j1], -1), "Sb": cat([pi * z1, tau * z1, dj1], -1),
-         "U": cat([pi * j1, tau * j1], -1), "V": cat([pi * z1, tau * z1, dj1, pi * z1], -1)}
-    B = {key: v.transpose(0, 2, 1) for key, v in B.items()}
+    # pairings (module docstring): Sa = [ζτ, ζπ, e_d]·[τj₁, πj₁, τj₁]; Sb = [zπ, zτ, zρτ]·[πζ₁, τζ₁, d j₁];
+    # U = [zπ, zτ]·[τj₁, πj₁] and V = [ζτ, ζπ]·[πζ₁, τζ₁] + e_d·πζ₁ + ζρπ·d j₁ reuse their pieces
+    B_a = cat([tau * j1, pi * j1, tau * j1], -1).transpose(0, 2, 1)  # (W, 3Q, K)
+    B_b = cat([pi * z1, tau * z1, d * nn1 * j1 / x1], -1).transpose(0, 2, 1)
     z = np.stack([rad["h"][:, ns], rad["j"][:, ns]])  # external (2, W, K, Q): [h_n, j_n], index n
     zeta = np.stack([rad["zh"][:, ns], rad["zj"][:, ns]])
     wz, wzeta = w * z, w * zeta
-    e_d = (w * rho / x) * nn1 * z * d
-    A = {"Sa": cat([wzeta * pi, wzeta * tau, e_d], -1), "Sb": cat([wz * pi, wz * tau, wz * rho * tau], -1),
-         "U": cat([wz * tau, wz * pi], -1), "V": cat([wzeta * tau, wzeta * pi, wzeta * rho * pi, e_d], -1)}
+    A_a = cat([wzeta * tau, wzeta * pi, (w * rho / x) * nn1 * z * d], -1)  # (2, W, K, 3Q)
+    A_b = cat([wz * pi, wz * tau, wz * (rho * tau)], -1)
+    A_rho = wzeta * (rho * pi)
     par = (slice(0, ne), slice(ne, K))
+    two, three = slice(0, 2 * Q), slice(2 * Q, 3 * Q)
 
-    def mm(key, r, c):
-        return A[key][:, :, par[r]] @ B[key][:, :, par[c]]
+    def mm(A, B, r, c, s=slice(None), t=None):
+        return A[:, :, par[r], s] @ B[:, s if t is None else t, par[c]]
 
     mr = m_rel[:, None, None]
-    diag = {p: (mm("Sa", p, p), mm("Sb", p, p)) for p in (0, 1)}
+    diag = {p: (mm(A_a, B_a, p, p), mm(A_b, B_b, p, p)) for p in (0, 1)}
     systems = []
     for a, b in ((0, 1), (1, 0)):  # class: M rows of parity a, N rows of parity b
         (sa_a, sb_a), (sa_b, sb_b) = diag[a], diag[b]
-        U_ba, V_ba, U_ab, V_ab = mm("U", b, a), mm("V", b, a), mm("U", a, b), mm("V", a, b)
+        U_ba, U_ab = mm(A_b, B_a, b, a, two), mm(A_b, B_a, a, b, two)
+        V_ba, V_ab = (mm(A_a, B_b, r, c, two) + mm(A_a, B_b, r, c, three, slice(0, Q))
+                      + A_rho[:, :, par[r]] @ B_b[:, three, par[c]] for r, c in ((b, a), (a, b)))
         ka = sa_a.shape[-1]
         QQ = np.empty((2, x.shape[0], ka + sa_b.shape[-1], ka + sa_b.shape[-1]), dtype=complex)
         QQ[:, :, :ka, :ka] = sa_a - mr * sb_a
