@@ -364,6 +364,7 @@ def _converge(shape, dims, k, m_rel, tol):
     x_max = float(np.max(ks)) * _r_max(shape, dims)
     n = max(3, int(np.ceil(x_max + 4.0 * x_max ** (1 / 3) + 2)))
     label = f"{shape} {2 * dims[0]:g} x {2 * dims[1]:g} nm"
+    floor = 1e-12 * _r_max(shape, dims) ** 2
     hint = "allowed: aspect ratio, size and |m| within the validated range (notes/tmatrix.md) or a larger tol"
 
     def average(n_, n_quad_):
@@ -378,7 +379,7 @@ def _converge(shape, dims, k, m_rel, tol):
                                f"(last relative changes {history[-2]:.1e}, {history[-1]:.1e}); {hint}")
         n += 2
         prev, cur = cur, average(n, _quad_points(shape, n))
-        history.append(_change(prev, cur))
+        history.append(_change(prev, cur, floor))
         if (len(history) >= 3 and history[-1] > history[-2] > history[-3]
                 and history[-1] > max(tol, 10 * min(history))):  # not an oscillation: a blow-up
             raise NanoabsError(f"{label}: T-matrix diverges from n_max = {n - 4} (relative change "
@@ -386,7 +387,7 @@ def _converge(shape, dims, k, m_rel, tol):
                                f"reaching tol = {tol:g}; {hint}")
     n -= 2  # the last step n -> n + 2 bounds the change of the lower order
     n_quad = _quad_points(shape, n)
-    q_change = _change(prev, average(n, n_quad + n_quad // 2))
+    q_change = _change(prev, average(n, n_quad + n_quad // 2), floor)
     if q_change >= tol:
         raise NanoabsError(f"{label}: T-matrix changes by {q_change:.1e} > tol = {tol:g} when the "
                            f"quadrature grows from {n_quad} to {n_quad + n_quad // 2} points; {hint}")
@@ -394,9 +395,16 @@ def _converge(shape, dims, k, m_rel, tol):
                        "sample_wavelength_index": s.tolist()}
 
 
-def _change(a, b):
-    """Largest relative change of C_ext and C_sca between two (abs, sca, ext) results."""
-    return float(max(np.max(np.abs(b[2] - a[2]) / np.abs(b[2])), np.max(np.abs(b[1] - a[1]) / np.abs(b[1]))))
+def _change(a, b, floor):
+    """Largest relative change of C_ext and C_sca between two (abs, sca, ext) results.
+
+    Cross-sections below ``floor`` [nm²] (1e-12 of the particle's size squared: an
+    index-matched particle, T = 0 up to rounding) count as ``floor``.
+    """
+    def rel(u, v):
+        return np.max(np.abs(v - u) / np.maximum(np.abs(v), floor))
+
+    return float(max(rel(a[2], b[2]), rel(a[1], b[1])))
 
 
 def _check_passive(tm, eps, shape, L, D):

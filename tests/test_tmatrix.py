@@ -332,6 +332,13 @@ def test_spectrum_uses_the_tmatrix_for_spheroids_and_the_new_shapes(tmp_path):
     assert "tmatrix-edges" in [c["code"] for c in ball.metadata["cautions"]]
     np.testing.assert_allclose(ball.sigma_abs_m2, mie.sigma_abs_m2, rtol=1e-6)
     np.testing.assert_allclose(ball.q_abs, mie.q_abs, rtol=1e-6)
+    # a family of sizes is solved one size at a time: equal to the single-size calls
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", NanoabsWarning)
+        fam = nanoabs.spectrum(nanoabs.spheroid("Au", np.array([[60.0], [80.0]]), 20.0), wl, method="tmatrix")
+        for i, L in enumerate((60.0, 80.0)):
+            one = nanoabs.spectrum(nanoabs.spheroid("Au", L, 20.0), wl, method="tmatrix")
+            np.testing.assert_allclose(fam.sigma_abs_m2[i], one.sigma_abs_m2, rtol=1e-12)
     out = tmp_path / "cyl.csv"
     code = main(["spectrum", "--shape", "cylinder", "--material", "Au", "--length", "100", "--diameter",
                  "40", "--medium", "water", "--polarization", "random", "--wl", "600:800:50", "-o", str(out)])
