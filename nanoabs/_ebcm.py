@@ -40,7 +40,7 @@ from memory).  For a sphere (ρ = 0) they give T^{11}_n = −b_n, T^{22}_n = −
 Mirror symmetry z → −z (all shapes here) makes (M,M), (N,N) vanish for odd
 n + n' and (M,N), (N,M) for even n + n' (Mishchenko et al. 2002, §5.8.3):
 θ is integrated over [0, π/2] only and each m splits into two independent
-half-size systems, which halves the condition number's reach.
+half-size systems (smaller LU solves, no entries that should vanish but hold rounding).
 """
 
 from __future__ import annotations

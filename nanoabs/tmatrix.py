@@ -25,7 +25,8 @@ Convention
   ``blocks[m]`` (m = 0..n_max) has shape (W, 2K, 2K), K = n_max − max(m,1) + 1,
   rows/columns ordered (p = 1, n = max(m,1)..n_max) then (p = 2, same n).
   Negative m follow from ``T^{pq}_{-m} = (−1)^{p+q} T^{pq}_m`` (Mishchenko et
-  al. 2002, eq. 5.37, from memory; tested against Mie-invariant quantities).
+  al. 2002, eq. 5.37, from memory; the tests check fixed orientations against
+  pytmatrix).
 * Dense order (:meth:`dense`, :meth:`rotated`): n = 1..n_max outermost, then
   m = −n..n, then p = 1, 2; index ``2 (n² − 1 + n + m) + p − 1``.
 * Plane wave E0 e^{ik·r}, |E0| = 1: ``a_mn = 4π i^n C*_mn(k̂)·E0 γ_n``,
@@ -38,13 +39,16 @@ Convergence and validity
 ------------------------
 ``n_max`` grows from ``x_max + 4 x_max^{1/3} + 2`` (x_max = k r_max; Wiscombe
 1980's rule) in steps of 2, with ``n_quad = 2 n_max + 8`` Gauss points on
-[0, π/2] (split at corners), until the orientation-averaged C_ext and C_sca
-of a sample of wavelengths change by less than ``tol``; then ``n_quad`` is
-raised by half and must change them by less than ``tol`` too.  The grid is
-computed once with the result.  If the change stops decreasing (the
-ill-conditioning of Q for elongated particles) or ``n_max`` reaches
-:data:`N_MAX_LIMIT`, or the result violates passivity, NanoabsError is raised.
-See notes/tmatrix.md for the validated range.
+[0, π/2] for spheroids and ``4 n_max + 8`` for cylinders and capped rods
+(split at the corner / cap junction), until the orientation-averaged C_ext
+and C_sca of a sample of wavelengths change by less than ``tol`` (one step
+for spheroids, two successive steps for the shapes with edges); then
+``n_quad`` is raised by half and must change them by less than ``tol`` too.
+The grid is computed once with the result; the loop over m stops when two
+successive orders add less than 0.01 ``tol``.  If the changes blow up (the
+ill-conditioning of Q for elongated particles), ``n_max`` would pass
+:data:`N_MAX_LIMIT`, or the result violates passivity, NanoabsError is
+raised.  See notes/tmatrix.md for the validated range.
 """
 
 from __future__ import annotations
