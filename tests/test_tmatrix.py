@@ -345,3 +345,46 @@ def test_spectrum_uses_the_tmatrix_for_spheroids_and_the_new_shapes(tmp_path):
     assert code == 0 and out.exists()
     assert main(["spectrum", "--shape", "capped-rod", "--material", "Au", "--length", "20", "--diameter",
                  "30", "--wl", "600:800:50", "-o", str(tmp_path / "x.csv")]) == 2
+
+
+def test_plane_wave_coefficients_sum_to_the_plane_wave():
+    # Identity (Mishchenko et al. 2002 eq. 5.40-5.41 form, from memory; the normalisation the
+    # trace formulas rely on): sum_mn a_mn RgM_mn + b_mn RgN_mn with the module's normalised
+    # VSWFs equals E0 exp(i k.r) at points inside the unit-radius ball. Tolerance 1e-10 at
+    # k r <= 2.5 with n_max = 25 (one point on the axis, theta = 0). VSWFs are built here from
+    # the module's Wigner functions and scipy.special.spherical_jn.
+    from scipy.special import spherical_jn
+
+    from nanoabs._ebcm import wigner_d_all
+
+    n_max = 25
+    theta_k, phi_k, psi = 0.7, 1.9, 0.4
+    e_t, e_p = np.cos(psi), np.sin(psi)
+    a = plane_wave(n_max, theta_k, phi_k, e_t, e_p)
+    st, ct, sp, cp = np.sin(theta_k), np.cos(theta_k), np.sin(phi_k), np.cos(phi_k)
+    k_hat = np.array([st * cp, st * sp, ct])
+    e0 = e_t * np.array([ct * cp, ct * sp, -st]) + e_p * np.array([-sp, cp, 0.0])
+    for point in ([0.3, -1.2, 0.8], [-2.0, 0.5, -1.1], [0.0, 0.0, 1.5]):
+        p = np.array(point)
+        kr = np.linalg.norm(p)
+        th, ph = np.arccos(p[2] / kr), np.arctan2(p[1], p[0])
+        field = np.zeros(3, dtype=complex)  # (r, theta, phi) components
+        for m in range(-n_max, n_max + 1):
+            d, pi, tau = (f[:, 0] for f in wigner_d_all(n_max, abs(m), np.array([th])))
+            if m < 0:  # d^n_{0,-m} = (-1)^m d^n_{0m}
+                s = (-1.0) ** m
+                d, pi, tau = s * d, -s * pi, s * tau
+            n = np.arange(max(abs(m), 1), n_max + 1)
+            j = spherical_jn(n, kr)
+            zeta = spherical_jn(n - 1, kr) - n * j / kr
+            coeff = a[2 * (n * n - 1 + n + m)], a[2 * (n * n - 1 + n + m) + 1]
+            ph_m = np.exp(1j * m * ph)
+            field += ph_m * np.array([
+                np.sum(coeff[1] * n * (n + 1) * j / kr * d),
+                np.sum(coeff[0] * 1j * j * pi + coeff[1] * zeta * tau),
+                np.sum(-coeff[0] * j * tau + coeff[1] * 1j * zeta * pi)])
+        r_hat = p / kr
+        t_hat = np.array([np.cos(th) * np.cos(ph), np.cos(th) * np.sin(ph), -np.sin(th)])
+        p_hat = np.array([-np.sin(ph), np.cos(ph), 0.0])
+        cart = field[0] * r_hat + field[1] * t_hat + field[2] * p_hat
+        np.testing.assert_allclose(cart, e0 * np.exp(1j * kr * (k_hat @ r_hat)), rtol=0, atol=1e-10)
