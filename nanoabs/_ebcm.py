@@ -264,16 +264,14 @@ def q_systems(m: int, n_max: int, rad, x, x1, m_rel, rho, w_theta, theta):
     return systems
 
 
-def solve_t(systems, K: int, *, want_cond: bool = False):
+def solve_t(systems, K: int):
     """T = −RgQ Q⁻¹ per parity class, by LU (LAPACK gesv) on equilibrated matrices.
 
     ``systems`` from :func:`q_systems`.  Row and column scalings of Q cancel in
     T exactly and keep the pivoting meaningful when h_n spans many decades.
-    Returns T (W, 2K, 2K) in block order and, with ``want_cond``, the largest
-    1-norm condition number of the equilibrated Q (else 0).
+    Returns T (W, 2K, 2K) in block order.
     """
     T = None
-    cond = 0.0
     for idx, QQ in systems:
         q, rg = QQ[0], QQ[1]
         if T is None:
@@ -284,9 +282,7 @@ def solve_t(systems, K: int, *, want_cond: bool = False):
         # T = −(rg·col) (row·q·col)⁻¹ row  ->  Tᵀ = −row (qsᵀ)⁻¹ (rg·col)ᵀ
         tt = np.linalg.solve(qs.transpose(0, 2, 1), (rg * col).transpose(0, 2, 1))
         T[:, idx[:, None], idx] = -(tt * row).transpose(0, 2, 1)
-        if want_cond:
-            cond = max(cond, float(np.max(np.linalg.cond(qs, p=1))))
-    return T, cond
+    return T
 
 
 def check_shape_args(shape: str, dims) -> None:

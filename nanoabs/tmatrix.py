@@ -322,7 +322,7 @@ def _compute(shape, dims, k, m_rel, n_max, n_quad, *, m_tol=0.0):
                 blocks[m].append(np.zeros((x.shape[0], 2 * K, 2 * K), dtype=complex))
                 continue
             systems = _ebcm.q_systems(m, n_max, rad, x, x1, m_rel[sl], rho, w, theta)
-            T = _ebcm.solve_t(systems, K)[0]
+            T = _ebcm.solve_t(systems, K)
             blocks[m].append(T)
             part = np.abs(np.trace(T, axis1=1, axis2=2).real) + np.sum(np.abs(T) ** 2, axis=(1, 2))
             total = total + part
