@@ -58,12 +58,14 @@ from ._errors import NanoabsError
 def surface(shape: str, dims, theta):
     """r(θ) and r'(θ)/r on θ ∈ (0, π/2] for a body symmetric about z and about z = 0.
 
-    ``dims`` = (half length along z, radius across) [any length unit]:
+    ``dims`` = (half length along z, radius across) = (c, R) [any length unit]:
 
-    * spheroid: r = (sin²θ/a² + cos²θ/c²)^(-1/2)  (a = radius, c = half length)
-    * cylinder (flat ends): r = h/cosθ on the end, R/sinθ on the side
-    * capped-rod (hemispherical caps; h = half length tip to tip − R):
-      r = h' cosθ + sqrt(R² − h'² sin²θ) on a cap, R/sinθ on the side
+    * spheroid: r = (sin²θ/R² + cos²θ/c²)^(-1/2)
+    * cylinder (flat ends): r = c/cosθ on the end, R/sinθ on the side
+    * capped-rod (hemispherical caps of radius R centred at z = h = c − R):
+      r = h cosθ + sqrt(R² − h² sin²θ) on a cap, R/sinθ on the side
+    * rounded-disc (flat faces, rim a half-torus of radius c centred at ρ0 = R − c):
+      r = c/cosθ on a face, ρ0 sinθ + sqrt(c² − ρ0² cos²θ) on the rim
     """
     c, R = dims
     s, co = np.sin(theta), np.cos(theta)
@@ -74,6 +76,12 @@ def surface(shape: str, dims, theta):
     if shape == "cylinder":
         r = np.where(side, R / s, c / co)
         return r, np.where(side, -co / s, s / co)
+    if shape == "rounded-disc":
+        p0 = R - c
+        root = np.sqrt(np.maximum(c**2 - (p0 * co) ** 2, 0.0))
+        r_rim = p0 * s + root
+        dr_rim = p0 * co + p0**2 * s * co / np.where(root > 0, root, 1.0)
+        return np.where(side, r_rim, c / co), np.where(side, dr_rim / r_rim, s / co)
     h = c - R  # capped rod: centre of the cap
     root = np.sqrt(np.maximum(R**2 - (h * s) ** 2, 0.0))
     r_cap = h * co + root
@@ -83,11 +91,14 @@ def surface(shape: str, dims, theta):
 
 
 def _corner(shape: str, dims) -> float:
+    """θ of the corner (cylinder) or of the junction of two smooth pieces; π/2 when there is none."""
     c, R = dims
     if shape == "cylinder":
         return float(np.arctan2(R, c))
     if shape == "capped-rod":
         return float(np.arctan2(R, c - R)) if c > R else np.pi / 2
+    if shape == "rounded-disc":
+        return float(np.arctan2(R - c, c)) if R > c else 0.0
     return np.pi / 2
 
 
@@ -98,7 +109,7 @@ def quadrature(shape: str, dims, n_quad: int):
     width (at least 4 each), so each piece integrates a smooth function.
     """
     tc = _corner(shape, dims)
-    if tc >= np.pi / 2 - 1e-12:
+    if tc >= np.pi / 2 - 1e-12 or tc <= 1e-12:
         pieces = [(0.0, np.pi / 2, n_quad)]
     else:
         n1 = int(np.clip(round(n_quad * tc / (np.pi / 2)), 4, n_quad - 4))
@@ -289,3 +300,5 @@ def check_shape_args(shape: str, dims) -> None:
     c, R = dims
     if shape == "capped-rod" and c < R:
         raise NanoabsError(f"length = {2 * c:g} nm: a capped rod needs length >= diameter ({2 * R:g} nm)")
+    if shape == "rounded-disc" and c > R:
+        raise NanoabsError(f"length = {2 * c:g} nm: a rounded disc needs length <= diameter ({2 * R:g} nm)")

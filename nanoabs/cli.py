@@ -143,8 +143,8 @@ def _cmd_materials(args) -> int:
 # -- particles, spectrum, hot-carriers -------------------------------------------
 
 
-PARTICLE_SHAPES = ["sphere", "shell", "spheroid", "ellipsoid", "cylinder", "capped-rod"]
-_AXIAL_SHAPES = ("spheroid", "cylinder", "capped-rod")
+PARTICLE_SHAPES = ["sphere", "shell", "spheroid", "ellipsoid", "cylinder", "capped-rod", "rounded-disc"]
+_AXIAL_SHAPES = ("spheroid", "cylinder", "capped-rod", "rounded-disc")
 
 
 def _material_arg(text, option):
@@ -157,7 +157,7 @@ def _material_arg(text, option):
 
 
 def _particle_from_args(args):
-    from .particles import CappedRod, Cylinder, Ellipsoid, LayeredSphere, Sphere, spheroid
+    from .particles import CappedRod, Cylinder, Ellipsoid, LayeredSphere, RoundedDisc, Sphere, spheroid
 
     shape = args.shape
     if shape == "sphere":
@@ -184,11 +184,11 @@ def _particle_from_args(args):
         if args.length is None or args.diameter is None:
             raise NanoabsError("--length and --diameter [nm] are required for --shape spheroid")
         return spheroid(_material_arg(args.material, "--material"), args.length, args.diameter, shell=shell)
-    if shape in ("cylinder", "capped-rod"):
+    if shape in ("cylinder", "capped-rod", "rounded-disc"):
         if args.length is None or args.diameter is None or shell is not None:
             raise NanoabsError(f"--shape {shape} needs --length and --diameter [nm] (no --shell)")
-        return (Cylinder if shape == "cylinder" else CappedRod)(
-            _material_arg(args.material, "--material"), args.length, args.diameter)
+        kind = {"cylinder": Cylinder, "capped-rod": CappedRod, "rounded-disc": RoundedDisc}[shape]
+        return kind(_material_arg(args.material, "--material"), args.length, args.diameter)
     if shape == "ellipsoid":
         if args.semi_axes is None:
             raise NanoabsError("--semi-axes A,B,C [nm] is required for --shape ellipsoid")
@@ -375,11 +375,11 @@ def _add_particle_options(p):
     g.add_argument("--core-radius", type=float, help="shell: core radius [nm]")
     g.add_argument("--shell", action="append", help="shell material (repeat for more shells, core outward)")
     g.add_argument("--thickness", type=float, action="append", help="shell thickness [nm] (one per --shell)")
-    g.add_argument("--length", type=float, help="spheroid, cylinder, capped-rod: extent along the symmetry "
-                   "axis (tip to tip) [nm]")
-    g.add_argument("--diameter", type=float, help="spheroid, cylinder, capped-rod: diameter [nm]")
+    g.add_argument("--length", type=float, help="spheroid, cylinder, capped-rod, rounded-disc: extent along "
+                   "the symmetry axis (tip to tip) [nm]")
+    g.add_argument("--diameter", type=float, help="spheroid, cylinder, capped-rod, rounded-disc: diameter [nm]")
     g.add_argument("--semi-axes", help="ellipsoid: A,B,C semi-axes along x,y,z [nm]")
-    g.add_argument("--polarization", help="spheroid, cylinder, capped-rod: long|short|random; "
+    g.add_argument("--polarization", help="spheroid, cylinder, capped-rod, rounded-disc: long|short|random; "
                    "ellipsoid: x|y|z|random")
     g.add_argument("--medium", default="water", help="medium name or refractive index (default water)")
     g.add_argument("--wl", default="400:1000:2", help="wavelengths START:STOP:STEP [nm] (default 400:1000:2)")

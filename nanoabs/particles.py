@@ -11,7 +11,7 @@ substrate carrying the particle in the x–y plane) when the field is along x or
 y, and along x when the field is along z. A rod from :func:`spheroid` with
 length > diameter lies along x; a disc (length < diameter) has its symmetry axis
 along z. "long" and "short" pick the field along the long or a short axis.
-Cylinders and capped rods follow the same rule (rod along x, disc axis along z).
+Cylinders, capped rods and rounded discs follow the same rule (rod along x, disc axis along z).
 """
 
 from __future__ import annotations
@@ -23,7 +23,8 @@ import numpy as np
 
 from ._errors import NanoabsError, check_choice, check_positive
 
-__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "Cylinder", "CappedRod", "MONOLAYER_NM"]
+__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "Cylinder", "CappedRod", "RoundedDisc",
+           "MONOLAYER_NM"]
 
 #: Thinnest shell accepted [nm]: about one atomic monolayer of gold/silver
 #: (lattice constant 0.408 nm; (111) spacing 0.236 nm; common practice to call
@@ -308,22 +309,15 @@ class _RoundBody:
             raise NanoabsError("length/diameter arrays must be all rods (length >= diameter) or all discs")
         self.kind = "rod" if np.all(rods) else "disc"
 
-    def _parts(self):
-        """(length of the straight part, radius, end volume, end area) [nm, nm, nm³, nm²]."""
+    def volume_nm3(self):  # pragma: no cover - each shape defines its own
         raise NotImplementedError
 
-    def volume_nm3(self):
-        h, R, v_end, _ = self._parts()
-        return np.pi * R**2 * h + v_end
+    def surface_nm2(self):  # pragma: no cover
+        raise NotImplementedError
 
-    def surface_nm2(self):
-        h, R, _, s_end = self._parts()
-        return 2 * np.pi * R * h + s_end
-
-    def side_area_nm2(self):
+    def side_area_nm2(self):  # pragma: no cover
         """Projected area seen from the side (light perpendicular to the axis) [nm²]."""
-        h, R, _, _ = self._parts()
-        return 2 * R * h + (np.pi * R**2 if self.shape == "capped-rod" else 0.0)
+        raise NotImplementedError
 
     def layer_materials(self) -> list:
         return [self.material]
@@ -364,9 +358,15 @@ class Cylinder(_RoundBody):
 
     shape = "cylinder"
 
-    def _parts(self):
+    def volume_nm3(self):
+        return np.pi * (self.diameter_nm / 2) ** 2 * self.length_nm
+
+    def surface_nm2(self):
         R = self.diameter_nm / 2
-        return self.length_nm, R, 0.0, 2 * np.pi * R**2
+        return 2 * np.pi * R * (R + self.length_nm)
+
+    def side_area_nm2(self):
+        return self.length_nm * self.diameter_nm
 
 
 class CappedRod(_RoundBody):
@@ -380,9 +380,50 @@ class CappedRod(_RoundBody):
             raise NanoabsError(f"length = {_plain(self.length_nm)} nm: a capped rod needs length >= diameter "
                                f"({_plain(self.diameter_nm)} nm)")
 
-    def _parts(self):
+    def volume_nm3(self):
         R = self.diameter_nm / 2
-        return self.length_nm - 2 * R, R, 4.0 / 3.0 * np.pi * R**3, 4 * np.pi * R**2
+        return np.pi * R**2 * (self.length_nm - 2 * R) + 4.0 / 3.0 * np.pi * R**3
+
+    def surface_nm2(self):
+        R = self.diameter_nm / 2
+        return 2 * np.pi * R * (self.length_nm - 2 * R) + 4 * np.pi * R**2
+
+    def side_area_nm2(self):
+        R = self.diameter_nm / 2
+        return 2 * R * (self.length_nm - 2 * R) + np.pi * R**2
+
+
+class RoundedDisc(_RoundBody):
+    """Disc with a rounded rim (a half-torus of radius length/2), ``length_nm`` <= ``diameter_nm``.
+
+    Volume and area by Pappus's theorems: the rim is a half-disc (area π a²/2,
+    centroid at ρ0 + 4a/3π) or a half-circle (length π a, centroid at ρ0 + 2a/π)
+    turned about the axis, with a = length/2 and ρ0 = diameter/2 − a.
+    """
+
+    shape = "rounded-disc"
+
+    def __post_init__(self):
+        super().__post_init__()
+        if np.any(self.length_nm > self.diameter_nm):
+            raise NanoabsError(f"length = {_plain(self.length_nm)} nm: a rounded disc needs length <= diameter "
+                               f"({_plain(self.diameter_nm)} nm)")
+
+    def _a_rho0(self):
+        a = self.length_nm / 2
+        return a, self.diameter_nm / 2 - a
+
+    def volume_nm3(self):
+        a, p0 = self._a_rho0()
+        return 2 * np.pi * a * p0**2 + np.pi**2 * a**2 * p0 + 4.0 / 3.0 * np.pi * a**3
+
+    def surface_nm2(self):
+        a, p0 = self._a_rho0()
+        return 2 * np.pi * p0**2 + 2 * np.pi**2 * a * p0 + 4 * np.pi * a**2
+
+    def side_area_nm2(self):
+        a, p0 = self._a_rho0()
+        return 4 * a * p0 + np.pi * a**2
 
 
 def resolve_polarization(particle, polarization: str) -> str:

@@ -63,7 +63,7 @@ from .solvers import Response, Solver
 
 __all__ = ["TMatrix", "SHAPES", "N_MAX_LIMIT", "cross_sections_nm2", "plane_wave"]
 
-SHAPES = ("spheroid", "cylinder", "capped-rod")
+SHAPES = ("spheroid", "cylinder", "capped-rod", "rounded-disc")
 #: Largest multipole order tried before a case is declared non-convergent.
 N_MAX_LIMIT = 32
 # (N+1) x wavelengths x quadrature points held per chunk of the wavelength grid
@@ -158,7 +158,7 @@ class TMatrix:
 
         Parameters
         ----------
-        shape : {"spheroid", "cylinder", "capped-rod"}
+        shape : {"spheroid", "cylinder", "capped-rod", "rounded-disc"}
         eps : complex array_like, shape (W,)
             Particle permittivity on the grid [1].
         eps_medium : float or array_like (W,)
@@ -476,7 +476,7 @@ def cross_sections_nm2(shape, eps_particle, eps_medium, dims_nm, wavelength_nm, 
 
     Parameters
     ----------
-    shape : {"spheroid", "cylinder", "capped-rod"}
+    shape : {"spheroid", "cylinder", "capped-rod", "rounded-disc"}
     eps_particle : complex array_like (W,)
         Particle permittivity [1] (surface damping, if any, already applied).
     eps_medium : float or array_like (W,)
@@ -528,10 +528,10 @@ class TMatrixSolver(Solver):
     reference = ("T-matrix, extended boundary condition method: Waterman, Proc. IEEE 53, 805 (1965); "
                  "Barber & Yeh, Appl. Opt. 14, 2864 (1975); orientation average: Mishchenko, "
                  "J. Opt. Soc. Am. A 8, 871 (1991)")
-    shapes = frozenset({"ellipsoid", "cylinder", "capped-rod"})
+    shapes = frozenset({"ellipsoid", "cylinder", "capped-rod", "rounded-disc"})
     #: Convergence tolerance per shape: the EBCM series of bodies with edges converges
     #: slowly and oscillates (notes/tmatrix.md), so they get a looser one and a caution.
-    tol = {"spheroid": 1e-4, "cylinder": 2e-2, "capped-rod": 2e-2}
+    tol = {"spheroid": 1e-4, "cylinder": 2e-2, "capped-rod": 2e-2, "rounded-disc": 2e-2}
 
     def accepts(self, particle) -> str | None:
         reason = super().accepts(particle)
