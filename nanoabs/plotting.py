@@ -37,6 +37,22 @@ def spectrum_axes(spec, quantity="sigma_abs_m2", *, ax=None, **line_kw):
 
     The title names the particle, host or environment, method and polarisation; a family
     of sizes is drawn as one line per member.
+
+    Parameters
+    ----------
+    spec : Spectrum
+        The spectrum (wavelengths [nm], cross-sections [m²]).
+    quantity : str
+        A spectrum column (a key of ``QUANTITY_LABELS``); cross-sections are drawn in
+        [nm²], σ_abs per metal volume in [µm⁻¹], efficiencies and ratios in [1].
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes; default new Axes through pyplot (shown inline in notebooks).
+    **line_kw
+        Passed to :meth:`matplotlib.axes.Axes.plot` (``label=`` also adds a legend).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
     """
     from ._errors import check_choice
 
@@ -71,7 +87,24 @@ def _figure(nrows=1, ncols=1, ax=None, **kw):
 
 
 def save_figure(fig, path, *, force: bool = False, dpi: int = 150) -> Path:
-    """Save ``fig`` to ``path`` (.png or .svg) atomically; never overwrite unless ``force``."""
+    """Save ``fig`` to ``path`` (.png or .svg) atomically; never overwrite unless ``force``.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure.
+    path : str or os.PathLike
+        Output file; the suffix (``.png`` or ``.svg``) chooses the format.
+    force : bool, keyword-only
+        Replace an existing file.
+    dpi : int, keyword-only
+        Resolution of a PNG [dots per inch].
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
     from .export import write_file_atomic
 
     p = Path(path)
@@ -83,7 +116,22 @@ def save_figure(fig, path, *, force: bool = False, dpi: int = 150) -> Path:
 
 
 def plot_material(mat, wavelength_nm=None, *, ax=None):
-    """n, k and ε′, ε″ of a material against wavelength [nm]; tabulated points marked."""
+    """n, k and ε′, ε″ of a material against wavelength [nm]; tabulated points marked.
+
+    Parameters
+    ----------
+    mat : Material
+        The material (from :func:`nanoabs.material`).
+    wavelength_nm : array_like, optional
+        Vacuum wavelengths [nm]; default 400 points over the data range (at most a
+        factor 20 in wavelength, 300–2000 nm for a constant index).
+    ax : sequence of two matplotlib.axes.Axes, optional
+        Draw n, k into the first and ε′, ε″ into the second; default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     if wavelength_nm is None:
         lo, hi = mat.range_nm
         if not np.isfinite(hi):
@@ -116,7 +164,27 @@ def plot_material(mat, wavelength_nm=None, *, ax=None):
 
 def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None, band=None,
                  scale=1.0, ax=None):
-    """Overlay of spectra: ``curves`` is a list of (label, wavelength_nm, values)."""
+    """Overlay of spectra: ``curves`` is a list of (label, wavelength_nm, values).
+
+    Parameters
+    ----------
+    curves : list of (str, array_like, array_like)
+        Label, vacuum wavelengths [nm] and values (in the unit of ``ylabel`` after ``scale``).
+    ylabel : str, keyword-only
+        Axis label, with its unit in brackets.
+    title : str, optional
+        Axes title.
+    band : (float, float), optional
+        Target band [nm], shaded.
+    scale : float, keyword-only
+        Factor applied to the values (e.g. 1e18 for m² → nm²) [1].
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     import matplotlib
 
     fig, ax = _figure(ax=ax)
@@ -138,7 +206,34 @@ def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None
 
 def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=True, band=None,
              title=None, ax=None):
-    """Wavelength × parameter map (values shape (len(param), len(wavelength))) with the peak ridge."""
+    """Wavelength × parameter map (values shape (len(param), len(wavelength))) with the peak ridge.
+
+    Parameters
+    ----------
+    wavelength_nm : (W,) array_like
+        Vacuum wavelengths [nm].
+    param : (P,) array_like
+        Values of the swept parameter (in the unit named by ``param_label``, e.g. [nm]).
+    values : (P, W) array_like
+        Quantity to colour (in the unit named by ``value_label``).
+    param_label : str, keyword-only
+        Label of the parameter axis, with its unit in brackets.
+    value_label : str, keyword-only
+        Label of the colour bar, with its unit in brackets.
+    ridge : bool, keyword-only
+        Draw the wavelength of the maximum of each row; a maximum on the first or last
+        wavelength is not a peak and is not drawn.
+    band : sequence of float, optional
+        Band edges [nm], drawn as vertical lines.
+    title : str, optional
+        Axes title.
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     wl = np.asarray(wavelength_nm, dtype=float)
     p = np.asarray(param, dtype=float)
     v = np.asarray(values, dtype=float)
@@ -162,7 +257,29 @@ def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=Tr
 
 
 def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False, ax=None):
-    """Simple line plot: ``curves`` is a list of (label, y) against a shared x."""
+    """Simple line plot: ``curves`` is a list of (label, y) against a shared x.
+
+    Parameters
+    ----------
+    x : array_like
+        Shared abscissa (in the unit named by ``xlabel``).
+    curves : list of (str, array_like)
+        Label and ordinate values (in the unit named by ``ylabel``).
+    xlabel : str, keyword-only
+        Abscissa label, with its unit in brackets.
+    ylabel : str, keyword-only
+        Ordinate label, with its unit in brackets.
+    title : str, optional
+        Axes title.
+    logy : bool, keyword-only
+        Logarithmic ordinate (e.g. for emission probabilities).
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     import matplotlib
 
     fig, ax = _figure(ax=ax)
