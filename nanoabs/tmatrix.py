@@ -29,7 +29,7 @@ Convention
   pytmatrix).
 * Dense order (:meth:`dense`, :meth:`rotated`): n = 1..n_max outermost, then
   m = −n..n, then p = 1, 2; index ``2 (n² − 1 + n + m) + p − 1``.
-* Plane wave E0 e^{ik·r}, |E0| = 1: ``a_mn = 4π i^n C*_mn(k̂)·E0 γ_n``,
+* Plane wave ``E0 e^{ik·r}`` with ``|E0| = 1``: ``a_mn = 4π i^n C*_mn(k̂)·E0 γ_n``,
   ``b_mn = 4π i^(n−1) B*_mn(k̂)·E0 γ_n``; then ``C_ext = −Re(a† T a)/k²`` and
   ``C_sca = |T a|²/k²`` (our derivation from the orthonormality above; the
   average over directions and polarisations gives Mishchenko 1991's
