@@ -425,7 +425,17 @@ class _RoundBody:
 
 
 class Cylinder(_RoundBody):
-    """Finite homogeneous cylinder with flat ends: ``Cylinder(material, length_nm, diameter_nm)``."""
+    """Finite homogeneous cylinder with flat ends: ``Cylinder(material, length_nm, diameter_nm)``.
+
+    Parameters
+    ----------
+    material : str, float or Material
+        Particle material (name, constant refractive index or a material object).
+    length_nm : float or array_like
+        Extent along the symmetry axis, tip to tip [nm]; a family has shape (P, 1).
+    diameter_nm : float or array_like
+        Extent across the axis [nm].
+    """
 
     shape = "cylinder"
 
@@ -441,7 +451,17 @@ class Cylinder(_RoundBody):
 
 
 class CappedRod(_RoundBody):
-    """Rod with hemispherical caps, ``length_nm`` tip to tip (>= ``diameter_nm``)."""
+    """Rod with hemispherical caps, ``length_nm`` tip to tip (>= ``diameter_nm``).
+
+    Parameters
+    ----------
+    material : str, float or Material
+        Particle material (name, constant refractive index or a material object).
+    length_nm : float or array_like
+        Extent along the symmetry axis, tip to tip [nm]; a family has shape (P, 1).
+    diameter_nm : float or array_like
+        Extent across the axis [nm].
+    """
 
     shape = "capped-rod"
 
@@ -470,6 +490,15 @@ class RoundedDisc(_RoundBody):
     Volume and area by Pappus's theorems: the rim is a half-disc (area π a²/2,
     centroid at ρ0 + 4a/3π) or a half-circle (length π a, centroid at ρ0 + 2a/π)
     turned about the axis, with a = length/2 and ρ0 = diameter/2 − a.
+
+    Parameters
+    ----------
+    material : str, float or Material
+        Particle material (name, constant refractive index or a material object).
+    length_nm : float or array_like
+        Thickness of the disc (<= ``diameter_nm``) [nm]; a family has shape (P, 1).
+    diameter_nm : float or array_like
+        Extent across the axis, rim included [nm].
     """
 
     shape = "rounded-disc"
