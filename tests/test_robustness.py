@@ -60,7 +60,8 @@ API_CASES = [
     ("unknown solar", lambda: il.solar("am2"), "am1.5g"),
     ("solar outside table", lambda: il.solar("am1.5g").spectral_irradiance([200.0]), "280"),
     ("barrier <= 0", lambda: _hc(barrier_eV=0.0), "barrier"),
-    ("barrier above photons", lambda: _hc(barrier_eV=5.0), "photon energy"),
+    # "barrier above photons" is no longer an error: beyond the cut-off the result is zero with a warning (issue 13;
+    # tests/test_detector.py::test_bad_detector_inputs checks it)
     ("negative fermi energy", lambda: _hc(fermi_energy_eV=-1.0), "fermi"),
     ("zero attenuation length", lambda: _hc(attenuation_length_nm=0.0), "attenuation"),
     ("contact fraction > 1", lambda: _hc(contact_fraction=1.5), "contact"),
