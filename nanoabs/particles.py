@@ -434,9 +434,7 @@ class _RoundBody:
                 "diameter_nm": _plain(self.diameter_nm), "kind": self.kind}
 
 
-class Cylinder(_RoundBody):
-    """Finite homogeneous cylinder with flat ends: ``Cylinder(material, length_nm, diameter_nm)``.
-
+_BODY_PARAMETERS = """
     Parameters
     ----------
     material : str, float or Material
@@ -446,6 +444,11 @@ class Cylinder(_RoundBody):
     diameter_nm : float or array_like
         Extent across the axis [nm].
     """
+
+
+class Cylinder(_RoundBody):
+    __doc__ = ("Finite homogeneous cylinder with flat ends: ``Cylinder(material, length_nm, diameter_nm)``.\n"
+               + _BODY_PARAMETERS)
 
     shape = "cylinder"
 
@@ -461,17 +464,7 @@ class Cylinder(_RoundBody):
 
 
 class CappedRod(_RoundBody):
-    """Rod with hemispherical caps, ``length_nm`` tip to tip (>= ``diameter_nm``).
-
-    Parameters
-    ----------
-    material : str, float or Material
-        Particle material (name, constant refractive index or a material object).
-    length_nm : float or array_like
-        Extent along the symmetry axis, tip to tip [nm]; a family has shape (P, 1).
-    diameter_nm : float or array_like
-        Extent across the axis [nm].
-    """
+    __doc__ = "Rod with hemispherical caps, ``length_nm`` tip to tip (>= ``diameter_nm``).\n" + _BODY_PARAMETERS
 
     shape = "capped-rod"
 
