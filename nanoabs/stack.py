@@ -37,7 +37,7 @@ import numpy as np
 
 from ._errors import check_choice
 
-__all__ = ["kz", "stack_coefficients", "stack_RT", "drive_field"]
+__all__ = ["kz", "stack_coefficients", "stack_RT", "plane_waves", "drive_field"]
 
 POLARIZATIONS = ("s", "p")
 
@@ -166,6 +166,40 @@ def _plane_wave_vector(eps, kz_signed, k_par, k0, pol):
     return np.stack([kz_signed, np.zeros_like(kz_signed), -k_par + 0 * kz_signed], axis=-1) / (k0 * eps)[..., None]
 
 
+def plane_waves(eps, thickness_nm, wavelength_nm, z_nm, *, angle_deg=0.0, pol="s"):
+    """The plane waves that make up the field without the particle at a point of an end half-space.
+
+    Parameters are those of `drive_field`.
+
+    Returns
+    -------
+    list of (khat, E) pairs
+        ``khat`` (W, 3) complex unit direction (k / k_medium, k_hat . k_hat = 1) and
+        ``E`` (W, 3) complex amplitude at the point, per unit incident amplitude:
+        [incident, reflected] in the incidence medium (z >= 0) or [transmitted]
+        in medium N (z < 0).
+    """
+    pol = check_choice("polarization", pol, POLARIZATIONS)
+    wl = np.asarray(wavelength_nm, dtype=float)
+    k0 = 2 * np.pi / wl
+    e0 = np.asarray(eps[0], dtype=complex).real + 0j
+    eps = [e0] + [np.asarray(e, dtype=complex) for e in eps[1:]]
+    n0 = np.sqrt(e0.real)
+    kp = n0 * k0 * np.sin(np.deg2rad(angle_deg)) + 0j
+    r, t = stack_coefficients(eps, thickness_nm, k0, kp, pol)
+    scale = n0[..., None] if (pol == "p" and np.ndim(n0)) else (n0 if pol == "p" else 1.0)
+
+    def wave(e, k, amp):
+        kn = k0 * np.sqrt(e)
+        khat = np.stack([kp / kn, 0 * kp, k / kn], axis=-1)
+        return khat, _plane_wave_vector(e, k, kp, k0, pol) * amp[..., None] * scale
+    if z_nm >= 0:
+        k = kz(e0, k0, kp)
+        return [wave(e0, -k, np.exp(-1j * k * z_nm)), wave(e0, k, r * np.exp(1j * k * z_nm))]
+    k = kz(eps[-1], k0, kp)
+    return [wave(eps[-1], -k, t * np.exp(1j * k * (-z_nm)))]
+
+
 def drive_field(eps, thickness_nm, wavelength_nm, z_nm, *, angle_deg=0.0, pol="s"):
     """Field without the particle, E/|E_inc|, at a point of an end half-space.
 
@@ -179,7 +213,7 @@ def drive_field(eps, thickness_nm, wavelength_nm, z_nm, *, angle_deg=0.0, pol="s
     wavelength_nm : float array_like, shape (W,)
         Vacuum wavelength [nm].
     z_nm : float
-        Position [nm]: z > 0 is the height above the first interface in the
+        Position [nm]: z >= 0 is the height above the first interface in the
         incidence medium (incident + reflected wave); z < 0 is the depth -z
         below the LAST interface, inside medium N (transmitted wave).
     angle_deg : float, keyword-only
@@ -195,24 +229,8 @@ def drive_field(eps, thickness_nm, wavelength_nm, z_nm, *, angle_deg=0.0, pol="s
     Notes
     -----
     Incident wave exp(i k_par x - i k_z0 z), reflected r exp(i k_z0 z),
-    transmitted t exp(+i k_zN z') in medium N (z' >= 0 the depth below the last interface);
-    p-polarised E from H by Ampère's law (Born & Wolf 1999, Sec. 1.5.2).
+    transmitted t exp(+i k_zN z') in medium N (z' >= 0 the depth below the last
+    interface); p-polarised E from H by Ampère's law (Born & Wolf 1999, Sec. 1.5.2).
     Phase reference: incident wave at the first interface, x = 0.
     """
-    pol = check_choice("polarization", pol, POLARIZATIONS)
-    wl = np.asarray(wavelength_nm, dtype=float)
-    k0 = 2 * np.pi / wl
-    e0 = np.asarray(eps[0], dtype=complex).real + 0j
-    eps = [e0] + [np.asarray(e, dtype=complex) for e in eps[1:]]
-    n0 = np.sqrt(e0.real)
-    kp = n0 * k0 * np.sin(np.deg2rad(angle_deg)) + 0j
-    r, t = stack_coefficients(eps, thickness_nm, k0, kp, pol)
-    scale = 1.0 if pol == "s" else n0[..., None] if np.ndim(n0) else n0
-    if z_nm >= 0:
-        k = kz(e0, k0, kp)
-        down = _plane_wave_vector(e0, -k, kp, k0, pol) * np.exp(-1j * k * z_nm)[..., None]
-        up = _plane_wave_vector(e0, k, kp, k0, pol) * (r * np.exp(1j * k * z_nm))[..., None]
-        return (down + up) * scale
-    k = kz(eps[-1], k0, kp)
-    tr = _plane_wave_vector(eps[-1], -k, kp, k0, pol) * (t * np.exp(1j * k * (-z_nm)))[..., None]
-    return tr * scale
+    return sum(E for _, E in plane_waves(eps, thickness_nm, wavelength_nm, z_nm, angle_deg=angle_deg, pol=pol))

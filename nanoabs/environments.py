@@ -1,0 +1,252 @@
+"""Where the particle sits and how it is lit: homogeneous host, on a substrate, buried.
+
+An environment resolves its materials on a wavelength grid and gives the
+solvers what they need: the host index, the incidence-medium index (for the
+irradiance reference), the stack seen from the particle (for the reflected
+field), the stack seen from the light (for the field without the particle) and
+the particle centre's height above / depth below the surface.
+
+Geometry: the surface of the substrate (or of the spacer on it) is the plane
+z = 0, the superstrate fills z > 0. ``on_substrate``: the particle's lowest
+point is ``gap_nm`` above the top surface (the spacer's, if any); its centre is
+at z = gap + half-height. ``buried``: the centre is ``depth_nm`` below the
+surface, inside the substrate, and the particle must lie wholly below it.
+
+Cross-section reference: sigma_abs = power absorbed in the particle /
+irradiance of the incident plane wave in the incidence medium (front: the
+superstrate, back: the substrate, taken just at the surface; absorption of a
+thick wafer on the way in is not included).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import NamedTuple
+
+import numpy as np
+
+from ._errors import NanoabsError, check_choice, check_positive, check_range
+from .stack import plane_waves
+
+__all__ = ["Homogeneous", "OnSubstrate", "Buried", "homogeneous", "on_substrate", "buried", "Resolved"]
+
+INCIDENCE = ("front", "back")
+SIGMA_REFERENCE = ("power absorbed in the particle / irradiance of the incident plane wave in the "
+                   "incidence medium (not the field at the particle)")
+MAX_ANGLE_DEG = 89.0
+MAX_LENGTH_NM = 1e6
+
+
+def _mat(value):
+    from .materials import material
+
+    return value if hasattr(value, "permittivity") else material(value)
+
+
+def _transparent(name, mat, wl, role):
+    """Real index of a medium that must be (nearly) non-absorbing; same rule as spectrum()'s medium."""
+    n = np.atleast_1d(mat.refractive_index(wl)).astype(complex)
+    worst = float(np.max(n.imag))
+    if worst > 0.01 * float(np.min(n.real)):
+        raise NanoabsError(f"{name} = {mat.label}: absorbs (k up to {worst:.3g}) at these wavelengths but is the "
+                           f"{role}; allowed: k <= 0.01 n there (choose another range, side or material)")
+    return n.real
+
+
+class Resolved(NamedTuple):
+    """An environment on a wavelength grid (arrays of shape (W,))."""
+
+    n_host: np.ndarray            # real index of the medium around the particle
+    n_inc: np.ndarray             # real index of the incidence medium
+    host_stack: list              # permittivities seen from the particle, host first
+    host_thickness_nm: list
+    light_stack: list             # permittivities seen from the incident light, incidence medium first
+    light_thickness_nm: list
+    particle_in_incidence_medium: bool
+
+
+def _check_common(incidence, angle_deg, polarization):
+    incidence = check_choice("incidence", incidence, INCIDENCE)
+    angle = float(check_range("angle_deg", angle_deg, 0.0, MAX_ANGLE_DEG, unit="deg"))
+    pol = check_choice("polarization", polarization, ("s", "p"))
+    return incidence, angle, pol
+
+
+class _Planar:
+    """Shared behaviour of the planar environments (see module docstring)."""
+
+    def field_factor(self, wavelength_nm, half_height_nm=0.0):
+        """|E_drive/E_inc|^2 at the particle centre without the particle, shape (W,)."""
+        return np.sum(np.abs(self.drive_field(wavelength_nm, half_height_nm)) ** 2, -1)
+
+    def drive_field(self, wavelength_nm, half_height_nm=0.0, res=None):
+        """E without the particle at the particle centre per unit incident amplitude, (W, 3)."""
+        return sum(E for _, E in self.drive_waves(wavelength_nm, half_height_nm, res))
+
+    def drive_waves(self, wavelength_nm, half_height_nm=0.0, res=None):
+        """Plane waves (direction, amplitude at the centre) making up the drive field (`stack.plane_waves`)."""
+        wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+        res = res or self.resolve(wl)
+        h = self.center_height_nm(half_height_nm)
+        z = h if res.particle_in_incidence_medium else -h
+        return plane_waves(res.light_stack, res.light_thickness_nm, wl, z,
+                           angle_deg=self.angle_deg, pol=self.polarization)
+
+    def _light(self, top, inner, thick, bottom, n_top, n_bottom):
+        front = self.incidence == "front"
+        stack = [top, *inner, bottom] if front else [bottom, *inner[::-1], top]
+        return (n_top if front else n_bottom), stack, (list(thick) if front else list(thick)[::-1])
+
+
+@dataclass(frozen=True)
+class Homogeneous:
+    """The particle in one infinite, non-absorbing medium (today's default)."""
+
+    medium: object = "water"
+
+    kind = "homogeneous"
+
+    def describe(self) -> dict:
+        return {"kind": self.kind, "medium": _mat(self.medium).label, "sigma_reference":
+                "power absorbed / irradiance of the incident plane wave in the medium"}
+
+
+@dataclass(frozen=True)
+class OnSubstrate(_Planar):
+    """Particle in the superstrate, resting ``gap_nm`` above a substrate or a spacer layer on it."""
+
+    substrate: object
+    superstrate: object = "air"
+    gap_nm: float = 0.0
+    spacer: tuple | None = None
+    incidence: str = "front"
+    angle_deg: float = 0.0
+    polarization: str = "s"
+
+    kind = "on_substrate"
+
+    def center_height_nm(self, half_height_nm):
+        return self.gap_nm + float(half_height_nm)
+
+    def resolve(self, wavelength_nm) -> Resolved:
+        wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+        sup, sub = _mat(self.superstrate), _mat(self.substrate)
+        n_h = _transparent("superstrate", sup, wl, "medium around the particle")
+        eps_sub = np.atleast_1d(sub.permittivity(wl)).astype(complex)
+        inner, thick = [], []
+        if self.spacer is not None:
+            inner = [np.atleast_1d(_mat(self.spacer[0]).permittivity(wl)).astype(complex)]
+            thick = [float(self.spacer[1])]
+        n_sub = (_transparent("substrate", sub, wl, "incidence medium (incidence='back')")
+                 if self.incidence == "back" else None)
+        eh = n_h ** 2 + 0j
+        n_inc, light, lthick = self._light(eh, inner, thick, eps_sub, n_h, n_sub)
+        return Resolved(n_h, n_inc, [eh, *inner, eps_sub], thick, light, lthick, self.incidence == "front")
+
+    def describe(self) -> dict:
+        d = {"kind": self.kind, "substrate": _mat(self.substrate).label,
+             "superstrate": _mat(self.superstrate).label, "gap_nm": self.gap_nm,
+             "spacer": None if self.spacer is None else {"material": _mat(self.spacer[0]).label,
+                                                         "thickness_nm": float(self.spacer[1])}}
+        return d | _light_meta(self)
+
+
+@dataclass(frozen=True)
+class Buried(_Planar):
+    """Particle inside the substrate, its centre ``depth_nm`` below the planar surface."""
+
+    substrate: object
+    superstrate: object = "air"
+    depth_nm: float = 0.0
+    incidence: str = "front"
+    angle_deg: float = 0.0
+    polarization: str = "s"
+
+    kind = "buried"
+
+    def center_height_nm(self, half_height_nm):
+        if self.depth_nm <= half_height_nm:
+            raise NanoabsError(f"depth_nm = {self.depth_nm:g} nm: the particle (half-height {half_height_nm:g} nm) "
+                               f"must lie below the surface; allowed: depth > {half_height_nm:g} nm")
+        return self.depth_nm
+
+    def resolve(self, wavelength_nm) -> Resolved:
+        wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+        sup, sub = _mat(self.superstrate), _mat(self.substrate)
+        n_h = _transparent("substrate", sub, wl, "medium around the particle (buried)")
+        eps_sup = np.atleast_1d(sup.permittivity(wl)).astype(complex)
+        n_sup = (_transparent("superstrate", sup, wl, "incidence medium (incidence='front')")
+                 if self.incidence == "front" else None)
+        eh = n_h ** 2 + 0j
+        n_inc, light, lthick = self._light(eps_sup, [], [], eh, n_sup, n_h)
+        return Resolved(n_h, n_inc, [eh, eps_sup], [], light, lthick, self.incidence == "back")
+
+    def describe(self) -> dict:
+        return {"kind": self.kind, "substrate": _mat(self.substrate).label,
+                "superstrate": _mat(self.superstrate).label, "depth_nm": self.depth_nm} | _light_meta(self)
+
+
+def _light_meta(env) -> dict:
+    return {"incidence": env.incidence, "angle_deg": env.angle_deg, "polarization": env.polarization,
+            "sigma_reference": SIGMA_REFERENCE,
+            "field_factor": "|E_drive/E_inc|^2 at the particle centre without the particle"}
+
+
+def homogeneous(medium="water") -> Homogeneous:
+    """Particle in one infinite medium (a store name, a number for a constant index, or a Material)."""
+    _mat(medium)
+    return Homogeneous(medium)
+
+
+def _check_spacer(spacer):
+    if spacer is None:
+        return None
+    if isinstance(spacer, str) and ":" in spacer:
+        name, _, t = spacer.rpartition(":")
+        spacer = (name, t)
+    try:
+        name, t = spacer
+    except (TypeError, ValueError):
+        raise NanoabsError(f"spacer = {spacer!r}: must be (material, thickness_nm) or 'MATERIAL:THICKNESS_NM'") from None
+    t = float(check_range("spacer thickness", t, 1e-3, MAX_LENGTH_NM, unit="nm"))
+    _mat(name)
+    return (name, t)
+
+
+def on_substrate(substrate, *, superstrate="air", gap_nm=0.0, spacer=None, incidence="front",
+                 angle_deg=0.0, polarization="s") -> OnSubstrate:
+    """Particle in ``superstrate`` resting ``gap_nm`` [nm] above ``substrate`` (or a spacer on it).
+
+    Parameters
+    ----------
+    substrate, superstrate : str, float or Material
+        Store names (``"Si"``, ``"SiO2"``, ``"air"``, ``"water"``) or constant indices.
+    gap_nm : float, keyword-only
+        Distance from the particle's lowest point to the surface [nm], >= 0.
+    spacer : (material, thickness_nm) or "MATERIAL:THICKNESS_NM", keyword-only
+        One planar layer between superstrate and substrate (native oxide, Ti/Cr adhesion film).
+    incidence : {"front", "back"}, keyword-only
+        Light from the superstrate side or through the substrate.
+    angle_deg : float, keyword-only
+        Angle of incidence in the incidence medium [deg], 0 to 89.
+    polarization : {"s", "p"}, keyword-only
+        For oblique light (plane of incidence x-z; s: E along y).
+    """
+    _mat(substrate), _mat(superstrate)
+    gap = float(check_range("gap_nm", gap_nm, 0.0, MAX_LENGTH_NM, unit="nm"))
+    inc, angle, pol = _check_common(incidence, angle_deg, polarization)
+    return OnSubstrate(substrate, superstrate, gap, _check_spacer(spacer), inc, angle, pol)
+
+
+def buried(substrate, *, superstrate="air", depth_nm, incidence="front", angle_deg=0.0,
+           polarization="s") -> Buried:
+    """Particle inside ``substrate``, its centre ``depth_nm`` [nm] below the surface.
+
+    Parameters are those of `on_substrate`; ``depth_nm`` must exceed the particle's half-height.
+    """
+    _mat(substrate), _mat(superstrate)
+    depth = float(check_positive("depth_nm", depth_nm, unit="nm"))
+    if depth > MAX_LENGTH_NM:
+        raise NanoabsError(f"depth_nm = {depth:g} nm: allowed range is 0 to {MAX_LENGTH_NM:g} nm")
+    inc, angle, pol = _check_common(incidence, angle_deg, polarization)
+    return Buried(substrate, superstrate, depth, inc, angle, pol)

@@ -1,0 +1,76 @@
+"""Checks of nanoabs.environments: validation, metadata, field factors against textbook optics."""
+
+import numpy as np
+import pytest
+
+from nanoabs._errors import NanoabsError
+from nanoabs.environments import buried, homogeneous, on_substrate
+
+
+def test_field_factor_on_silicon_front_is_the_standing_wave():
+    # Normal incidence from air on a half-space: |1 + r exp(2ikz)|^2, r = (1 - n)/(1 + n)
+    # (Born & Wolf 1999, eq. 1.5.20 at normal incidence, from memory); n from the store's
+    # own Si table; tolerance 1e-12.
+    from nanoabs import material
+
+    wl = np.array([500.0, 700.0, 1000.0])
+    env = on_substrate("Si", gap_nm=2.0)
+    n = material("Si").refractive_index(wl)
+    r = (1 - n) / (1 + n)
+    z = 2.0 + 20.0
+    ref = np.abs(1 + r * np.exp(2j * 2 * np.pi / wl * z)) ** 2
+    np.testing.assert_allclose(env.field_factor(wl, 20.0), ref, rtol=1e-12)
+
+
+def test_back_incidence_and_buried_use_transmission():
+    # Through a non-absorbing substrate (SiO2, lit from the back) the particle in air sees
+    # |t|^2 = (2 n / (1 + n))^2 for E (Born & Wolf 1999, eq. 1.5.20); buried particle lit from the
+    # front sees (2/(1 + n))^2 attenuated by nothing (lossless); tolerance 1e-12.
+    from nanoabs import material
+
+    wl = np.array([600.0, 900.0])
+    n = material("SiO2").refractive_index(wl).real
+    env = on_substrate("SiO2", gap_nm=0.0, incidence="back")
+    np.testing.assert_allclose(env.field_factor(wl, 10.0), (2 * n / (1 + n)) ** 2, rtol=1e-12)
+    env_b = buried("SiO2", depth_nm=50.0)
+    np.testing.assert_allclose(env_b.field_factor(wl, 10.0), (2 / (1 + n)) ** 2, rtol=1e-12)
+    res = env_b.resolve(wl)
+    np.testing.assert_allclose(res.n_host, n)
+    np.testing.assert_allclose(res.n_inc, 1.0)
+
+
+@pytest.mark.parametrize("call, word", [
+    (lambda: on_substrate("Si", gap_nm=-1), "gap_nm"),
+    (lambda: on_substrate("Si", incidence="side"), "incidence"),
+    (lambda: on_substrate("Si", angle_deg=95), "angle_deg"),
+    (lambda: on_substrate("Si", polarization="q"), "polarization"),
+    (lambda: on_substrate("Si", spacer="SiO2:-3"), "spacer thickness"),
+    (lambda: on_substrate("Si", spacer=("SiO2",)), "spacer"),
+    (lambda: on_substrate("Unobtainium"), "Unobtainium"),
+    (lambda: buried("Si", depth_nm=0), "depth_nm"),
+    (lambda: buried("Si", depth_nm=10).center_height_nm(20.0), "depth_nm"),
+])
+def test_bad_input_one_line_error_naming_the_parameter(call, word):
+    with pytest.raises(NanoabsError) as e:
+        call()
+    assert word in str(e.value) and "\n" not in str(e.value)
+
+
+def test_absorbing_host_or_incidence_medium_rejected():
+    # Si absorbs strongly at 500 nm (k ~ 0.07 > 0.01 n): neither host (buried) nor the
+    # incidence medium (back) there; fine at 1300 nm where it is transparent (common practice).
+    with pytest.raises(NanoabsError, match="substrate"):
+        buried("Si", depth_nm=60).resolve(np.array([500.0]))
+    with pytest.raises(NanoabsError, match="substrate"):
+        on_substrate("Si", incidence="back").resolve(np.array([500.0]))
+    res = on_substrate("Si", incidence="back", spacer="SiO2:3").resolve(np.array([1300.0]))
+    assert res.n_inc[0] > 3.4 and res.n_host[0] == 1.0
+    assert len(res.light_stack) == 3 and res.light_thickness_nm == [3.0]
+
+
+def test_describe_states_reference_and_geometry():
+    d = on_substrate("Si", gap_nm=1, spacer="SiO2:3", incidence="back").describe()
+    assert d["kind"] == "on_substrate" and d["spacer"]["thickness_nm"] == 3.0
+    assert "incidence medium" in d["sigma_reference"] and d["incidence"] == "back"
+    assert buried("Si", depth_nm=60).describe()["depth_nm"] == 60.0
+    assert homogeneous("water").describe()["kind"] == "homogeneous"
