@@ -38,6 +38,8 @@ References
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 
 from ._errors import NanoabsError
@@ -48,18 +50,24 @@ __all__ = ["sommerfeld", "reflected_dyadic", "image_dyadic", "dressed_dipole", "
 MAX_DOUBLINGS = 7
 
 
+@lru_cache(maxsize=64)
+def _gauss_legendre(n):
+    """Gauss-Legendre nodes and weights on [-1, 1] (cached: numpy builds them by an eigenproblem)."""
+    return np.polynomial.legendre.leggauss(n)
+
+
 def _path(c, h_norm, n_ellipse, n_tail):
     """Nodes and weights in s = k_par / k_h: ellipse 0 -> c (fourth quadrant), then c -> inf.
 
     c : (W,) end of the ellipse; h_norm : k_h h. Returns s (W, K), w (W, K) complex.
     """
-    t, wt = np.polynomial.legendre.leggauss(n_ellipse)
+    t, wt = _gauss_legendre(n_ellipse)
     th = 0.5 * np.pi * (t + 1)                                        # [0, pi]
     c = np.asarray(c, float)[:, None]
     depth = 0.25 * c
     s1 = 0.5 * c * (1 - np.cos(th)) - 1j * depth * np.sin(th)
     w1 = (0.5 * c * np.sin(th) - 1j * depth * np.cos(th)) * (0.5 * np.pi * wt)
-    u, wu = np.polynomial.legendre.leggauss(n_tail)
+    u, wu = _gauss_legendre(n_tail)
     u = 0.5 * (u + 1)
     scale = 1.0 / np.maximum(2 * np.asarray(h_norm, float), 1e-3)[:, None]
     s2 = c + scale * u / (1 - u)
@@ -335,3 +343,255 @@ def dipole_response(environment, alpha, wavelength_nm, *, half_height_nm, method
     s_abs, s_rad = dipole_cross_sections(alpha, q, gamma, 2 * np.pi / wl, res.n_host, res.n_inc)
     return {"sigma_abs_nm2": s_abs, "sigma_rad_nm2": s_rad, "field_factor": np.sum(np.abs(e_drive) ** 2, -1),
             "q": q, "integration_error": err, "height_nm": h}
+
+
+# --------------------------------------------------------------------------
+# multipole method (T-matrix coupled to the stack)
+# --------------------------------------------------------------------------
+
+
+def _coupling_integrand(eps, thickness_nm, k0, k_h, h_nm, m, n_max):
+    """Integrand in s = k_par/k_h of the reflection matrix R (2x2 blocks M/N x n x n'), see `reflection_matrix`."""
+    from .vswf import angular, orders
+
+    n = orders(m, n_max)
+    sq = np.sqrt(n * (n + 1))
+    i_n = 1j ** n
+    e = [np.asarray(x, complex)[:, None] for x in eps]
+
+    def f(s):
+        kp = s * k_h[:, None]
+        rs, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "s")
+        rp, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "p")
+        uz = np.sqrt(1 - s ** 2 + 0j)
+        uz = np.where(uz.imag < 0, -uz, uz)
+        pi_d, tau_d = angular(-uz, s, m, n_max)
+        pi_u, tau_u = angular(uz, s, m, n_max)
+        ph = (4j * np.pi * s / uz * np.exp(2j * uz * k_h[:, None] * h_nm))[..., None, None]
+        src_p = np.stack([(-1j) ** (n + 1) * -pi_d, (-1j) ** n * 1j * tau_d], -2) / sq     # (.., 2, nn)
+        src_s = np.stack([(-1j) ** (n + 1) * -1j * tau_d, (-1j) ** n * -pi_d], -2) / sq
+        rec_p = np.stack([i_n * -pi_u, i_n * -tau_u], -2) / sq
+        rec_s = np.stack([i_n * 1j * tau_u, i_n * 1j * pi_u], -2) / sq
+        out = (rp[..., None, None] * np.einsum("...an,...bk->...anbk", rec_p, src_p).reshape(*s.shape, 2 * len(n), -1)
+               + rs[..., None, None] * np.einsum("...an,...bk->...anbk", rec_s, src_s).reshape(*s.shape, 2 * len(n), -1))
+        return (ph * out).reshape(*s.shape, -1)
+    return f
+
+
+def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, rtol=1e-9):
+    """Matrix R of order m: regular coefficients of the reflected wave = R x outgoing coefficients.
+
+    Parameters
+    ----------
+    eps : sequence of (W,) complex
+        Stack seen from the particle, host first (real part of the host used) [1].
+    thickness_nm : sequence of float
+        Inner-layer thicknesses [nm].
+    wavelength_nm : (W,) float
+        Vacuum wavelengths [nm].
+    height_nm : float
+        Height of the expansion centre above the first interface [nm].
+    m : int
+        Azimuthal order (conserved: the stack is invariant under rotations about z).
+    n_max : int
+        Largest multipole degree.
+    rtol : float, keyword-only
+        Accuracy of the Sommerfeld integrals relative to 1/(6 pi) + max |R|.
+
+    Returns
+    -------
+    R : (W, 2 nn, 2 nn) complex
+        Rows and columns ordered [M_n..., N_n...] over n = max(1,|m|)..n_max
+        (VSWF convention of `nanoabs.vswf`).
+    error : (W,) float
+        Achieved accuracy of the integrals.
+
+    Notes
+    -----
+    Plane-wave (angular-spectrum) route (Bobbert & Vlieger 1986, Sec. 3; Egel, Kettlitz
+    & Lemmer 2016, JOSA A 33, 698, eqs. 14-20, from memory): the outgoing wave is
+    written as downward plane waves (Weyl identity, far-field pattern F(k_hat):
+    (i/2pi) int F e^{ik.r} / k_z d^2k_par), each is reflected with r_s or r_p of the
+    stack and the phase exp(2 i k_z h), and expanded in regular waves about the centre
+    (`nanoabs.vswf`). The azimuthal integral gives 2 pi delta_mm'. In s = k_par/k_h:
+    R = int ds (s/u_z) 4 pi i exp(2 i u_z k_h h) sum_j r_j Rec_j(theta_up) Src_j(theta_down),
+    on the path of `sommerfeld`.
+    """
+    wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+    k0 = 2 * np.pi / wl
+    eps = [np.asarray(eps[0], complex).real + 0j] + [np.broadcast_to(np.asarray(x, complex), wl.shape) for x in eps[1:]]
+    n_h = np.sqrt(eps[0].real)
+    k_h = n_h * k0
+    nmax_stack = np.max([np.sqrt(x).real for x in eps], axis=0) / n_h
+    vals, err = sommerfeld(_coupling_integrand(eps, thickness_nm, k0, k_h, height_nm, m, n_max),
+                           nmax_stack, k_h * height_nm, rtol=rtol)
+    size = int(round(np.sqrt(vals.shape[-1])))
+    return vals.reshape(len(wl), size, size), err
+
+
+def _sphere_blocks(particle, wl, n_host, n_max):
+    """T-matrix blocks tmatrix(m) -> (W, 2nn, 2nn) of a (layered) sphere (diagonal, m-independent)."""
+    from .vswf import orders, sphere_tmatrix
+
+    tM, tN = sphere_tmatrix(particle, wl, n_host, n_max)
+
+    def blocks(m):
+        n = orders(m, n_max) - 1
+        d = np.concatenate([tM[:, n], tN[:, n]], 1)
+        return d[:, :, None] * np.eye(d.shape[1])
+    return blocks
+
+
+def _azimuthal_orders(waves, n_max):
+    """Orders m excited by the drive waves: +-1 at normal incidence, all |m| <= n_max otherwise."""
+    oblique = any(np.any(np.abs(k[:, 0]) > 0) for k, _ in waves)
+    return range(-n_max, n_max + 1) if oblique else (-1, 1)
+
+
+def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n_max, rtol=1e-9):
+    """Absorption of a particle with a T-matrix in a planar environment (multipole method).
+
+    Parameters
+    ----------
+    environment : OnSubstrate or Buried
+        From `nanoabs.environments`.
+    tmatrix : callable
+        ``tmatrix(m)`` -> (W, 2 nn, 2 nn) T-matrix block of azimuthal order m in the
+        host, ordered [M_n..., N_n...], n = max(1,|m|)..n_max (`nanoabs.vswf`
+        convention). Any particle whose T-matrix is block-diagonal in m (a sphere,
+        a body of revolution standing upright) fits.
+    wavelength_nm : (W,) float
+        Vacuum wavelengths [nm].
+    half_height_nm : float, keyword-only
+        Particle extent below its centre [nm].
+    n_max : int, keyword-only
+        Multipole degree.
+    rtol : float, keyword-only
+        Accuracy of the Sommerfeld integrals.
+
+    Returns
+    -------
+    dict
+        ``sigma_abs_nm2`` (W,): (n_h/n_inc) k_h^-2 sum(-Re(conj(e) b) - |b|^2), e = a + R b
+        the exciting coefficients, b = T e (Bobbert & Vlieger 1986, eq. 3.x; the power
+        flux of `nanoabs.vswf`); ``sigma_drive_nm2`` (W,): work of the drive field,
+        (n_h/n_inc) k_h^-2 sum(-Re(conj(a) b)), = absorbed + all scattered power;
+        ``field_factor``; ``integration_error`` (W,); ``n_max``; ``b`` (dict m -> (W, 2nn)).
+
+    Notes
+    -----
+    Solves (1 - T R) b = T a per order m, with a the regular coefficients of the
+    field without the particle (`nanoabs.vswf.plane_wave_coefficients` of each plane
+    wave of `environment.drive_waves`) and R from `reflection_matrix`.
+    """
+    from .vswf import plane_wave_coefficients
+
+    wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+    res = environment.resolve(wl)
+    h = environment.center_height_nm(half_height_nm)
+    waves = environment.drive_waves(wl, half_height_nm, res)
+    k_h = 2 * np.pi * res.n_host / wl
+    s_abs = np.zeros(wl.shape)
+    s_drive = np.zeros(wl.shape)
+    err = np.zeros(wl.shape)
+    coeffs = {}
+    for m in _azimuthal_orders(waves, n_max):
+        a = sum(np.concatenate(plane_wave_coefficients(k, E, m, n_max), 1) for k, E in waves)
+        T = tmatrix(m)
+        R = np.empty(T.shape, complex)
+        for i in range(len(wl)):
+            stack_i = [np.broadcast_to(x, wl.shape)[i:i + 1] for x in res.host_stack]
+            R[i:i + 1], e_i = reflection_matrix(stack_i, res.host_thickness_nm, wl[i:i + 1], h, m, n_max, rtol=rtol)
+            err[i] = max(err[i], e_i[0])
+        b = np.linalg.solve(np.eye(T.shape[1]) - T @ R, (T @ a[..., None]))[..., 0]
+        e = a + (R @ b[..., None])[..., 0]
+        s_abs += np.sum(-np.real(np.conj(e) * b) - np.abs(b) ** 2, 1)
+        s_drive += np.sum(-np.real(np.conj(a) * b), 1)
+        coeffs[m] = b
+    scale = res.n_host / res.n_inc / k_h ** 2
+    return {"sigma_abs_nm2": scale * s_abs, "sigma_drive_nm2": scale * s_drive,
+            "field_factor": np.sum(np.abs(sum(E for _, E in waves)) ** 2, -1),
+            "integration_error": err, "n_max": n_max, "b": coeffs}
+
+
+def _patterns(b, m, n_max, cos_t, sin_t):
+    """Far-field pattern components (F_theta, F_phi) of outgoing coefficients b (W, 2nn) at directions (W, K)."""
+    from .vswf import angular, orders
+
+    n = orders(m, n_max)
+    sq = np.sqrt(n * (n + 1))
+    pi, tau = angular(cos_t, sin_t, m, n_max)
+    bM, bN = b[:, None, :len(n)], b[:, None, len(n):]
+    f_th = np.sum(bM * (-1j) ** (n + 1) * -pi / sq + bN * (-1j) ** n * 1j * tau / sq, -1)
+    f_ph = np.sum(bM * (-1j) ** (n + 1) * -1j * tau / sq + bN * (-1j) ** n * -pi / sq, -1)
+    return f_th, f_ph
+
+
+def scattered_powers(environment, result, wavelength_nm, *, half_height_nm, n_nodes=96):
+    """Power scattered into the particle's half-space and into the far half-space, per irradiance [nm^2].
+
+    Parameters
+    ----------
+    environment : OnSubstrate or Buried
+    result : dict
+        From `multipole_response` (uses ``b`` and ``n_max``).
+    wavelength_nm : (W,) float
+    half_height_nm : float, keyword-only
+    n_nodes : int, keyword-only
+        Gauss-Legendre nodes per integration segment.
+
+    Returns
+    -------
+    up, down : (W,) float
+        Far-field integrals over the host half-space (direct + reflected waves) and
+        over the propagating directions of the far half-space (transmitted waves,
+        including those evanescent in the host, k_h < k_par < k_far). ``down`` is NaN
+        when the far medium absorbs. Power per plane wave n |E|^2 cos(theta)/(2 Z0)
+        (Born & Wolf 1999, Sec. 1.5.3); the angular spectrum of an outgoing wave is
+        its far-field pattern F as (i/2 pi) F e^{ik.r}/k_z (Weyl identity, Novotny &
+        Hecht 2012, eq. 2.xx, from memory).
+    """
+    wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+    res = environment.resolve(wl)
+    h = environment.center_height_nm(half_height_nm)
+    k0 = 2 * np.pi / wl
+    n_h = res.n_host
+    kh = (n_h * k0)[:, None]
+    e = [np.asarray(x, complex)[:, None] + 0 * k0[:, None] for x in res.host_stack]
+    e[0] = e[0].real + 0j
+    n_far = np.sqrt(res.host_stack[-1] + 0j * k0)
+    x, w = _gauss_legendre(n_nodes)
+    x, w = 0.5 * (x + 1), 0.5 * w
+    # host-propagating directions u_z in (0, 1), split at the critical angle of a less dense far
+    # medium with quadratic maps that smooth the square-root kinks there
+    u_c = np.sqrt(np.maximum(1 - (n_far.real / n_h) ** 2, 0))[:, None]
+    seg_a = (u_c * (1 - x ** 2) + 0j, 2 * u_c * x * w)
+    seg_b = (u_c + (1 - u_c) * x ** 2 + 0j, 2 * (1 - u_c) * x * w)
+    V = np.sqrt(np.maximum((n_far.real / n_h) ** 2 - 1, 0))[:, None]
+    phi = 0.5 * np.pi * x
+    seg_c = (1j * V * np.sin(phi), (0.5 * np.pi * w) * V * np.cos(phi))   # evanescent in host: u_z = i v
+    up = np.zeros(wl.shape)
+    down = np.zeros(wl.shape)
+    for m, b in result["b"].items():
+        n_max = result["n_max"]
+        for part, (u, wt) in enumerate((seg_a, seg_b, seg_c)):
+            u = u + 0 * k0[:, None]
+            s = np.sqrt(1 - u ** 2)
+            kp = s * kh
+            rs, ts = stack_coefficients(e, res.host_thickness_nm, k0[:, None], kp, "s")
+            rp, tp = stack_coefficients(e, res.host_thickness_nm, k0[:, None], kp, "p")
+            fd = _patterns(b, m, n_max, -u, s)
+            ph = np.exp(2j * u * kh * h)
+            if part < 2:   # d(Omega) = sin(theta) d(theta) d(alpha) = du_z d(alpha)
+                fu = _patterns(b, m, n_max, u, s)
+                up += 2 * np.pi * np.sum(wt * (np.abs(fu[0] + rp * ph * fd[0]) ** 2
+                                               + np.abs(fu[1] + rs * ph * fd[1]) ** 2), 1)
+            uzn = np.sqrt((n_far[:, None] / n_h[:, None]) ** 2 - s ** 2)       # k_zN / k_h
+            with np.errstate(invalid="ignore", divide="ignore"):            # s ds / |u_z|^2 = du / |u| (dv / v)
+                flux = (uzn.real * (np.abs(ts * fd[1]) ** 2 + np.abs(tp * fd[0] * n_h[:, None] / n_far[:, None]) ** 2)
+                        * np.abs(ph) / np.abs(u))
+            flux = np.where(np.abs(u) > 0, flux, 0.0)      # empty segment (no critical angle / no v range)
+            down += 2 * np.pi * np.sum(wt * flux, 1)
+    scale = n_h / res.n_inc / (n_h * k0) ** 2
+    lossy = np.abs(np.imag(res.host_stack[-1] + 0j * k0)) > 1e-12
+    return scale * up, np.where(lossy, np.nan, scale * down)
