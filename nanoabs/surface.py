@@ -75,7 +75,7 @@ def _path(c, h_norm, n_ellipse, n_tail):
     return np.concatenate([s1, s2 + 0j], 1), np.concatenate([w1, w2 + 0j], 1)
 
 
-def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9):
+def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9, matrix=False):
     """Integral over s = k_par/k_h in [0, inf) of ``integrand(s)`` on the deformed path.
 
     Parameters
@@ -89,6 +89,10 @@ def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9):
     rtol : float, keyword-only
         Tolerance of the doubling test, relative to 1/(6 pi) + max |result| per
         wavelength (in units of k_h^3 for Green's-function integrands).
+    matrix : bool, keyword-only
+        The C components are a square matrix R whose entries span many orders of
+        magnitude (multipoles): entry (i, j) is then compared with
+        sqrt(|R_ii| |R_jj|) + |R_ij| instead.
 
     Returns
     -------
@@ -104,8 +108,14 @@ def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9):
         s, w = _path(c, h_norm, n1, n2)
         val = np.einsum("wk,wkc->wc", w, integrand(s))
         if prev is not None:
-            scale = 1 / (6 * np.pi) + np.max(np.abs(val), axis=1)
-            err = np.max(np.abs(val - prev), axis=1) / scale
+            if matrix:
+                size = int(round(np.sqrt(val.shape[1])))
+                d = np.sqrt(np.abs(np.diagonal(val.reshape(-1, size, size), axis1=1, axis2=2)))
+                scale = (d[:, :, None] * d[:, None, :]).reshape(val.shape) + np.abs(val) + 1e-300
+                err = np.max(np.abs(val - prev) / scale, axis=1)
+            else:
+                scale = 1 / (6 * np.pi) + np.max(np.abs(val), axis=1)
+                err = np.max(np.abs(val - prev), axis=1) / scale
             if np.all(err < rtol):
                 return val, err
         prev, n1, n2 = val, 2 * n1, 2 * n2
@@ -367,14 +377,19 @@ def _coupling_integrand(eps, thickness_nm, k0, k_h, h_nm, m, n_max):
         uz = np.where(uz.imag < 0, -uz, uz)
         pi_d, tau_d = angular(-uz, s, m, n_max)
         pi_u, tau_u = angular(uz, s, m, n_max)
-        ph = (4j * np.pi * s / uz * np.exp(2j * uz * k_h[:, None] * h_nm))[..., None, None]
-        src_p = np.stack([(-1j) ** (n + 1) * -pi_d, (-1j) ** n * 1j * tau_d], -2) / sq     # (.., 2, nn)
-        src_s = np.stack([(-1j) ** (n + 1) * -1j * tau_d, (-1j) ** n * -pi_d], -2) / sq
-        rec_p = np.stack([i_n * -pi_u, i_n * -tau_u], -2) / sq
-        rec_s = np.stack([i_n * 1j * tau_u, i_n * 1j * pi_u], -2) / sq
-        out = (rp[..., None, None] * np.einsum("...an,...bk->...anbk", rec_p, src_p).reshape(*s.shape, 2 * len(n), -1)
-               + rs[..., None, None] * np.einsum("...an,...bk->...anbk", rec_s, src_s).reshape(*s.shape, 2 * len(n), -1))
-        return (ph * out).reshape(*s.shape, -1)
+        half = np.exp(1j * uz * k_h[:, None] * h_nm)          # split between source and receiver:
+        gone = np.abs(half) < 1e-150                              # s^n of each stays finite
+        half = np.where(gone, 0, half)[..., None, None]
+        pre = (4j * np.pi * s / uz)[..., None, None]
+        with np.errstate(invalid="ignore", over="ignore"):
+            src_p = half * pre * np.stack([(-1j) ** (n + 1) * -pi_d, (-1j) ** n * 1j * tau_d], -2) / sq
+            src_s = half * pre * np.stack([(-1j) ** (n + 1) * -1j * tau_d, (-1j) ** n * -pi_d], -2) / sq
+            rec_p = half * np.stack([i_n * -pi_u, i_n * -tau_u], -2) / sq
+            rec_s = half * np.stack([i_n * 1j * tau_u, i_n * 1j * pi_u], -2) / sq
+            out = (rp[..., None, None] * np.einsum("...an,...bk->...anbk", rec_p, src_p).reshape(*s.shape, 2 * len(n), -1)
+                   + rs[..., None, None] * np.einsum("...an,...bk->...anbk", rec_s, src_s).reshape(*s.shape, 2 * len(n), -1))
+        out = np.where(gone[..., None, None], 0, out)
+        return out.reshape(*s.shape, -1)
     return f
 
 
@@ -396,7 +411,8 @@ def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, 
     n_max : int
         Largest multipole degree.
     rtol : float, keyword-only
-        Accuracy of the Sommerfeld integrals relative to 1/(6 pi) + max |R|.
+        Accuracy of the Sommerfeld integrals, entry (i, j) relative to
+        sqrt(|R_ii| |R_jj|) + |R_ij|.
 
     Returns
     -------
@@ -424,7 +440,7 @@ def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, 
     k_h = n_h * k0
     nmax_stack = np.max([np.sqrt(x).real for x in eps], axis=0) / n_h
     vals, err = sommerfeld(_coupling_integrand(eps, thickness_nm, k0, k_h, height_nm, m, n_max),
-                           nmax_stack, k_h * height_nm, rtol=rtol)
+                           nmax_stack, k_h * height_nm, rtol=rtol, matrix=True)
     size = int(round(np.sqrt(vals.shape[-1])))
     return vals.reshape(len(wl), size, size), err
 
@@ -503,7 +519,10 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
             stack_i = [np.broadcast_to(x, wl.shape)[i:i + 1] for x in res.host_stack]
             R[i:i + 1], e_i = reflection_matrix(stack_i, res.host_thickness_nm, wl[i:i + 1], h, m, n_max, rtol=rtol)
             err[i] = max(err[i], e_i[0])
-        b = np.linalg.solve(np.eye(T.shape[1]) - T @ R, (T @ a[..., None]))[..., 0]
+        # balanced: D^-1 (1 - T R) D (D^-1 b) = D^-1 T a with D = sqrt|diag T| (T_n ~ x^(2n+1), R ~ (kh)^-(n+n'+1))
+        d = np.sqrt(np.abs(np.diagonal(T, axis1=1, axis2=2))) + 1e-300
+        A = np.eye(T.shape[1]) - (T @ R) / d[:, :, None] * d[:, None, :]
+        b = d * np.linalg.solve(A, ((T @ a[..., None])[..., 0] / d)[..., None])[..., 0]
         e = a + (R @ b[..., None])[..., 0]
         s_abs += np.sum(-np.real(np.conj(e) * b) - np.abs(b) ** 2, 1)
         s_drive += np.sum(-np.real(np.conj(a) * b), 1)
