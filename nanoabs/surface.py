@@ -291,22 +291,19 @@ def dipole_cross_sections(alpha, q, gamma, k0, n_host, n_inc):
     return s_abs, s_rad
 
 
-def sphere_alpha(particle, wavelength_nm, n_host):
+def sphere_alpha(eps_layers, radii_nm, wavelength_nm, n_host):
     """Radiatively corrected electric-dipole polarisability of a (layered) sphere [nm^3], (W, 3, 3).
 
     alpha = 6 pi i a_1 / k_h^3 from the Mie coefficient a_1 (Bohren & Huffman 1983,
     eq. 4.53 and Sec. 5.2, from memory: the far field of a_1 is that of this dipole),
     so that k_h Im(alpha) - k_h^4 |alpha|^2 / (6 pi) is the n = 1 electric term of
-    the Mie absorption cross-section exactly.
+    the Mie absorption cross-section exactly. Parameters as `nanoabs.vswf.sphere_tmatrix`.
     """
-    from .mie import mie_coefficients_layered
+    from .vswf import sphere_tmatrix
 
-    wl = np.atleast_1d(np.asarray(wavelength_nm, float))
-    k_h = 2 * np.pi * n_host / wl
-    m = np.stack([np.atleast_1d(mat.refractive_index(wl)) / n_host for mat, _ in particle.layers])
-    x = np.stack([k_h * float(r) for _, r in particle.layers])
-    a, _ = mie_coefficients_layered(m, x, 1)
-    return (6j * np.pi * a[0] / k_h ** 3)[:, None, None] * np.eye(3)
+    k_h = 2 * np.pi * np.asarray(n_host) / np.atleast_1d(np.asarray(wavelength_nm, float))
+    _, tN = sphere_tmatrix(eps_layers, radii_nm, wavelength_nm, n_host, 1)
+    return (-6j * np.pi * tN[:, 0] / k_h ** 3)[:, None, None] * np.eye(3)
 
 
 METHODS = ("sommerfeld", "image")
@@ -445,11 +442,14 @@ def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, 
     return vals.reshape(len(wl), size, size), err
 
 
-def _sphere_blocks(particle, wl, n_host, n_max):
-    """T-matrix blocks tmatrix(m) -> (W, 2nn, 2nn) of a (layered) sphere (diagonal, m-independent)."""
+def sphere_blocks(eps_layers, radii_nm, wavelength_nm, n_host, n_max):
+    """``tmatrix(m)`` -> (W, 2nn, 2nn) for a (layered) sphere: diagonal, independent of m.
+
+    Parameters are those of `nanoabs.vswf.sphere_tmatrix`.
+    """
     from .vswf import orders, sphere_tmatrix
 
-    tM, tN = sphere_tmatrix(particle, wl, n_host, n_max)
+    tM, tN = sphere_tmatrix(eps_layers, radii_nm, wavelength_nm, n_host, n_max)
 
     def blocks(m):
         n = orders(m, n_max) - 1
@@ -614,3 +614,55 @@ def scattered_powers(environment, result, wavelength_nm, *, half_height_nm, n_no
     scale = n_h / res.n_inc / (n_h * k0) ** 2
     lossy = np.abs(np.imag(res.host_stack[-1] + 0j * k0)) > 1e-12
     return scale * up, np.where(lossy, np.nan, scale * down)
+
+
+MAX_ORDER = 40
+
+
+def sphere_on_stack(environment, eps_layers, radii_nm, wavelength_nm, *, n_max=None, conv_rtol=1e-4, rtol=1e-9):
+    """Multipole method for a (layered) sphere in a planar environment, with the order chosen by convergence.
+
+    Parameters
+    ----------
+    environment : OnSubstrate or Buried
+    eps_layers : sequence of (W,) complex
+        Permittivity of each layer, core first (with any surface damping) [1].
+    radii_nm : sequence of float
+        Outer radius of each layer [nm].
+    wavelength_nm : (W,) float
+    n_max : int, optional, keyword-only
+        Fixed multipole degree; default: start at the Mie truncation of the sphere
+        alone (`nanoabs.mie.n_terms`) and add 4 until sigma_abs changes by less than
+        ``conv_rtol`` (relative, at every wavelength), at most 40.
+    conv_rtol : float, keyword-only
+    rtol : float, keyword-only
+        Accuracy of the Sommerfeld integrals.
+
+    Returns
+    -------
+    dict
+        As `multipole_response`, plus ``n_max_change``: the largest relative change of
+        sigma_abs in the last step of the order (NaN when ``n_max`` was given), and
+        ``converged`` (bool).
+    """
+    from .mie import n_terms
+
+    wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+    n_h = environment.resolve(wl).n_host
+    half = float(radii_nm[-1])
+
+    def run(n):
+        return multipole_response(environment, sphere_blocks(eps_layers, radii_nm, wl, n_h, n), wl,
+                                  half_height_nm=half, n_max=n, rtol=rtol)
+    if n_max is not None:
+        out = run(int(n_max))
+        return out | {"n_max_change": float("nan"), "converged": True}
+    n = min(int(np.max(n_terms(2 * np.pi * n_h * half / wl))) + 1, MAX_ORDER)
+    out = run(n)
+    while True:
+        n_next = min(n + 4, MAX_ORDER)
+        new = run(n_next)
+        change = float(np.max(np.abs(new["sigma_abs_nm2"] / out["sigma_abs_nm2"] - 1)))
+        if change < conv_rtol or n_next == MAX_ORDER:
+            return new | {"n_max_change": change, "converged": change < conv_rtol}
+        n, out = n_next, new

@@ -121,17 +121,32 @@ def plane_wave_coefficients(khat, E, m, n_max):
     return aM, aN
 
 
-def sphere_tmatrix(particle, wavelength_nm, n_host, n_max):
+def sphere_tmatrix(eps_layers, radii_nm, wavelength_nm, n_host, n_max):
     """Diagonal T-matrix (t^M_n, t^N_n) = (-b_n, -a_n) of a (layered) sphere, each (W, n_max).
 
+    Parameters
+    ----------
+    eps_layers : sequence of (W,) complex
+        Permittivity of each layer, core first [1].
+    radii_nm : sequence of float
+        Outer radius of each layer [nm].
+    wavelength_nm : (W,) float
+    n_host : (W,) float
+        Real index of the host [1].
+    n_max : int
+
+    Notes
+    -----
     With b^M = t^M e^M, b^N = t^N e^N for the coefficients of this module;
-    a_n, b_n from `nanoabs.mie.mie_coefficients_layered` (Bohren & Huffman 1983, eq. 4.53).
+    a_n, b_n from `nanoabs.mie.mie_coefficients_layered` (Bohren & Huffman 1983,
+    eq. 4.53: the scattered field is sum E_n (i a_n N_e1n - b_n M_o1n) for the
+    incident sum E_n (M_o1n - i N_e1n)).
     """
     from .mie import mie_coefficients_layered
 
     wl = np.atleast_1d(np.asarray(wavelength_nm, float))
     k_h = 2 * np.pi * n_host / wl
-    m = np.stack([np.atleast_1d(mat.refractive_index(wl)) / n_host for mat, _ in particle.layers])
-    x = np.stack([k_h * float(r) for _, r in particle.layers])
+    m = np.stack([np.sqrt(np.asarray(e, complex) + 0 * wl) / n_host for e in eps_layers])
+    x = np.stack([k_h * float(r) for r in radii_nm])
     a, b = mie_coefficients_layered(m, x, n_max)
     return -b.T, -a.T

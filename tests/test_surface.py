@@ -143,7 +143,8 @@ def test_index_matched_substrate_reproduces_mie_dipole_term():
     sp = nanoabs.Sphere("Au", 25.0)
     env = on_substrate(1.33, superstrate=1.33, gap_nm=3.0)
     n_h = np.full(4, 1.33)
-    out = dipole_response(env, sphere_alpha(sp, wl, n_h), wl, half_height_nm=25.0)
+    out = dipole_response(env, sphere_alpha([sp.material.permittivity(wl)], [25.0], wl, n_h), wl,
+                          half_height_nm=25.0)
     m = nanoabs.material("Au").refractive_index(wl) / 1.33
     x = 2 * np.pi * 1.33 / wl * 25.0
     for i in range(4):
@@ -162,7 +163,7 @@ def test_far_from_interface_tends_to_free_particle_times_field_factor():
     a1 = None
     for h in (2000.0, 8000.0):
         env = on_substrate(1.5, superstrate=1.0, gap_nm=h)
-        alpha = sphere_alpha(sp, wl, np.ones(1))
+        alpha = sphere_alpha([sp.material.permittivity(wl)], [20.0], wl, np.ones(1))
         out = dipole_response(env, alpha, wl, half_height_nm=20.0)
         k = 2 * np.pi / wl[0]
         a1 = alpha[0, 0, 0] * k ** 3 / (6j * np.pi)
@@ -180,7 +181,7 @@ def test_energy_identity_and_positivity_on_silicon():
         if env.incidence == "back":
             wl = np.linspace(1150.0, 1600.0, 6)
         res = env.resolve(wl)
-        alpha = sphere_alpha(sp, wl, res.n_host)
+        alpha = sphere_alpha([sp.material.permittivity(wl)], [30.0], wl, res.n_host)
         out = dipole_response(env, alpha, wl, half_height_nm=30.0)
         ed = env.drive_field(wl, 30.0)
         drive = 2 * np.pi / wl * res.n_host ** 2 / res.n_inc * np.einsum("wi,wi->w", np.conj(ed), out["q"]).imag
