@@ -9,10 +9,13 @@ from __future__ import annotations
 
 import argparse
 import sys
+import warnings
 
 import numpy as np
 
 from . import __version__
+from ._units import parse_irradiance
+from .validity import NanoabsWarning
 from ._errors import NanoabsError
 
 EXIT_INTERNAL = 1
@@ -232,9 +235,11 @@ def _cmd_spectrum(args) -> int:
             print(f"{r.wavelength_nm:13.1f} {r.sigma_abs_m2:13.4e} {r.sigma_sca_m2:13.4e} {r.q_abs:8.4f} "
                   f"{r.q_sca:8.4f}")
     fwhm = summ["fwhm_nm"]
-    print(f"method {spec.metadata['method']}; absorption peak {summ['peak_wavelength_nm']:.1f} nm, "
-          f"FWHM {'not resolved in the grid' if fwhm != fwhm else f'{fwhm:.1f} nm'}, "
-          f"sigma_abs {summ['peak_sigma_abs_m2']:.4g} m^2, Q_abs {summ['peak_q_abs']:.3g}, "
+    peak = (f"absorption peak {summ['peak_wavelength_nm']:.1f} nm" if summ["peak_status"] == "peak"
+            else f"no absorption peak in the window ({summ['peak_status']})")
+    width = f"FWHM {fwhm:.1f} nm" if fwhm == fwhm else f"FWHM not given ({summ['fwhm_status']})"
+    print(f"method {spec.metadata['method']}; {peak}, {width}, "
+          f"largest sigma_abs {summ['peak_sigma_abs_m2']:.4g} m^2, Q_abs {summ['peak_q_abs']:.3g}, "
           f"absorbed fraction {summ['absorbed_fraction_at_peak']:.3f}")
     if args.plot:
         from .plotting import plot_spectra, save_figure
@@ -275,7 +280,9 @@ def _spectrum_source(text, total_irradiance=None):
             return il.flat(float(low.split(":", 1)[1]))
         except ValueError:
             raise NanoabsError(f"--spectrum {text!r}: expected flat:W_PER_M2_PER_NM") from None
-    return il.from_csv(text)
+    from .export import check_input_file
+
+    return il.from_csv(check_input_file(text, "--spectrum file"))
 
 
 def _illumination_from_args(args):
@@ -399,6 +406,42 @@ def _register_particle_commands(sub):
     d.add_argument("--thermal-conductivity", type=float, help="of the surroundings [W/(m K)]")
     h.set_defaults(func=_cmd_hot_carriers)
 
+    x = sub.add_parser("export-generation", help="carrier generation rate G(r) inside a sphere, for a "
+                                                 "device simulator")
+    _add_particle_options(x)
+    x.add_argument("--irradiance", required=True,
+                   help="incident irradiance: W/m^2, or with a unit (1mW/cm2, 10W/m2)")
+    x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50)")
+    x.set_defaults(func=_cmd_export_generation)
+
+
+def _cmd_export_generation(args) -> int:
+    from .export import check_writable, write_export
+    from .handoff import GENERATION_UNITS, absorbed_photon_rate, generation_profile
+
+    if not args.output:
+        raise NanoabsError("-o/--output FILE.csv is required for export-generation")
+    check_writable(args.output, force=args.force)
+    irradiance = parse_irradiance(args.irradiance)
+    particle = _particle_from_args(args)
+    wl = _parse_values(args.wl, "--wl")
+    pol = args.polarization or ("long" if args.shape == "spheroid" else "x")
+    from .optics import spectrum
+
+    spec = spectrum(particle, wl, medium=_medium_arg(args.medium), method=args.method, polarization=pol,
+                    surface_damping=not args.no_surface_damping, damping_A=args.damping_a)
+    _print_warnings(spec.metadata)
+    frame = generation_profile(spec, particle, irradiance, n_points=args.points)
+    meta = {"what": "carrier generation rate inside the particle (one electron-hole pair per absorbed "
+                    "photon), angle-averaged internal field",
+            "irradiance_W_m2": irradiance, "spectrum": spec.metadata,
+            "absorbed_photon_rate_per_s": absorbed_photon_rate(spec, irradiance).tolist()}
+    write_export(frame, args.output, metadata=meta, units=GENERATION_UNITS, force=args.force)
+    print(f"wrote {args.output}: G(r) at {len(spec.wavelength_nm)} wavelength(s), "
+          f"{len(frame) // len(spec.wavelength_nm)} radii; peak G {frame['generation_rate_cm3_s'].max():.3g} "
+          "cm^-3 s^-1")
+    return 0
+
 
 def _parse_values(text, name):
     """'40:100:5' (start:stop:step, inclusive) or '20' or '20,30,40' -> array [nm]."""
@@ -411,46 +454,88 @@ def _parse_values(text, name):
         raise NanoabsError(f"{name} = {text!r}: expected START:STOP:STEP or comma-separated numbers") from None
 
 
+def _sweep_params(items):
+    """--param NAME=VALUES (repeatable, each name once) -> {name: array}."""
+    params = {}
+    for item in items or []:
+        key, sep, val = item.partition("=")
+        key = key.strip()
+        if not sep:
+            raise NanoabsError(f"--param {item!r}: expected NAME=VALUES, e.g. length_nm=40:100:5")
+        if key in params:
+            raise NanoabsError(f"--param {key} is given twice: give each parameter once (comma-separate "
+                               "several values, e.g. radius_nm=10,20,40)")
+        if key in ("material", "core_material", "shell", "core"):
+            params[key] = [_table_or_material(v.strip()) for v in val.split(",")]
+        else:
+            params[key] = _parse_values(val, f"--param {key}")
+    if not params:
+        raise NanoabsError("give at least one --param NAME=VALUES, e.g. --param radius_nm=10:80:5")
+    return params
+
+
+def _table_or_material(text):
+    """A material name, or a user table when the text names a .csv file."""
+    from .export import check_input_file
+    from .materials import load_table
+
+    return load_table(check_input_file(text, "material table")) if str(text).lower().endswith(".csv") else text
+
+
 def _cmd_sweep(args) -> int:
     from . import design
     from .export import check_writable
 
     if args.output:
         check_writable(args.output, force=args.force)
-    params = {}
-    for item in args.param or []:
-        key, sep, val = item.partition("=")
-        if not sep:
-            raise NanoabsError(f"--param {item!r}: expected NAME=VALUES, e.g. length_nm=40:100:5")
-        params[key.strip()] = _parse_values(val, f"--param {key.strip()}")
-    if not params:
-        raise NanoabsError("give at least one --param NAME=VALUES, e.g. --param radius_nm=10:80:5")
+    params = _sweep_params(args.param)
     wl = parse_range(args.wl)
-    kw = dict(material=args.material, medium=_medium_arg(args.medium), method=args.method,
+    kw = dict(material=_table_or_material(args.material), medium=_medium_arg(args.medium), method=args.method,
               surface_damping=not args.no_surface_damping, progress=not args.quiet and sys.stderr.isatty(),
               executor="processes" if args.processes else None)
     if args.core:
-        kw["core"] = args.core
+        kw["core"] = _table_or_material(args.core)
     if args.polarization:
         kw["polarization"] = args.polarization
+    if args.max_points is not None:
+        kw["max_points"] = args.max_points
     res = design.sweep(args.shape, params, wl, out=args.output, force=args.force, **kw)
     if args.output:
         print(f"wrote {args.output}")
     if hasattr(res, "columns"):
+        _report_sweep(res, args)
+    return 0
+
+
+def _report_sweep(res, args):
+    """Peak per design (and the map) of a sweep table; nothing is averaged over a parameter."""
+    swept = [n for n, v in res.attrs["metadata"]["parameters"].items() if len(v) > 1]
+    if len(swept) <= 1:
         pcols = [c for c in res.columns if c.endswith("_nm") and c != "wavelength_nm" and res[c].nunique() > 1]
         key = pcols[0] if pcols else "design_id"
-        grid = res.pivot_table(index=key, columns="wavelength_nm", values="sigma_abs_m2").sort_index()
-        peaks = grid.columns.values[np.argmax(grid.values, axis=1)]
+        label = key.replace("_nm", " [nm]")
+    else:  # several parameters vary: one line (and one map row) per design
+        key, label = "design_id", f"design_id ({' x '.join(swept)}; first varies slowest)"
+    grid = res.pivot_table(index=key, columns="wavelength_nm", values="sigma_abs_m2").sort_index()
+    peaks = grid.columns.values[np.argmax(grid.values, axis=1)]
+    if key == "design_id" and swept:
+        first = res.drop_duplicates("design_id").set_index("design_id")
+        for v, pk in zip(grid.index, peaks):
+            what = ", ".join(f"{n} = {_fmt_value(first.at[v, n])}" for n in swept)
+            print(f"design {v} ({what}): absorption peak {pk:g} nm")
+    else:
         for v, pk in zip(grid.index, peaks):
             print(f"{key} = {v:g}: absorption peak {pk:g} nm")
-        if args.plot:
-            from .plotting import plot_map, save_figure
+    if args.plot:
+        from .plotting import plot_map, save_figure
 
-            save_figure(plot_map(grid.columns.values, grid.index.values, grid.values * 1e18,
-                                 param_label=key.replace("_nm", " [nm]"),
-                                 value_label="absorption cross-section [nm²]"), args.plot, force=args.force)
-            print(f"wrote {args.plot}")
-    return 0
+        save_figure(plot_map(grid.columns.values, grid.index.values, grid.values * 1e18, param_label=label,
+                             value_label="absorption cross-section [nm²]"), args.plot, force=args.force)
+        print(f"wrote {args.plot}")
+
+
+def _fmt_value(v):
+    return f"{v:g}" if isinstance(v, (float, np.floating)) else str(v)
 
 
 def _cmd_search(args) -> int:
@@ -505,14 +590,16 @@ def _register_design_commands(sub):
     w.add_argument("--param", action="append", help="NAME=VALUES, e.g. length_nm=40:100:5 or diameter_nm=20 "
                    "(names: radius_nm, core_radius_nm, thickness_nm, length_nm, diameter_nm, aspect_ratio, "
                    "a_nm, b_nm, c_nm, medium_index)")
-    w.add_argument("--material", default="Au", help="particle (or shell) material (default Au)")
-    w.add_argument("--core", help="shell: core material (default SiO2)")
+    w.add_argument("--material", default="Au", help="particle (or shell) material or a user table FILE.csv "
+                   "(default Au)")
+    w.add_argument("--core", help="shell: core material or FILE.csv (default SiO2)")
     w.add_argument("--medium", default="water")
     w.add_argument("--polarization")
     w.add_argument("--method", default="auto")
     w.add_argument("--no-surface-damping", action="store_true")
     w.add_argument("--wl", default="400:1000:2", help="START:STOP:STEP [nm]")
     w.add_argument("--processes", action="store_true", help="run chunks on two local processes")
+    w.add_argument("--max-points", type=int, help="allow a sweep of more than 1e8 designs x wavelengths")
     w.add_argument("--plot", help="save a wavelength x parameter map (.png/.svg)")
     w.add_argument("-o", "--output", help="stream the table to this CSV (+ JSON); resumes if interrupted")
     w.add_argument("--force", action="store_true")
@@ -602,16 +689,24 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _run(argv) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "func", None) is None:
+        parser.print_help()
+        return 0
+    return int(args.func(args) or 0)
+
+
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else list(argv)
     debug = "--debug" in argv
+    if debug:  # accepted before or after the command
+        argv = ["--debug"] + [a for a in argv if a != "--debug"]
     try:
-        parser = build_parser()
-        args = parser.parse_args(argv)
-        if getattr(args, "func", None) is None:
-            parser.print_help()
-            return 0
-        return int(args.func(args) or 0)
+        with warnings.catch_warnings():  # the commands print the cautions themselves ("warning: ...")
+            warnings.simplefilter("ignore", NanoabsWarning)
+            return _run(argv)
     except NanoabsError as exc:
         print(f"nanoabs: error: {exc}", file=sys.stderr)
         return exc.exit_code

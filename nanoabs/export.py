@@ -24,11 +24,14 @@ Files are written atomically (temporary file in the same directory, fsync,
 from __future__ import annotations
 
 import csv
+import glob
+import importlib.util
 import json
 import math
 import os
 import tempfile
 from collections.abc import Mapping
+from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -37,7 +40,7 @@ import pandas as pd
 
 from nanoabs._errors import DataError, NanoabsError
 
-__all__ = ["FORMAT_NAME", "FORMAT_VERSION", "write_export", "read_export", "check_writable"]
+__all__ = ["FORMAT_NAME", "FORMAT_VERSION", "write_export", "read_export", "check_writable", "exclusive_lock"]
 
 FORMAT_NAME = "nanoabs-export"
 FORMAT_VERSION = 1
@@ -535,6 +538,22 @@ def read_export(path) -> tuple[pd.DataFrame, dict]:
 
 # --------------------------------------------------------------------------- other files
 
+#: Largest user input file (illumination spectrum, material table) read [bytes]: 50 MB.
+MAX_INPUT_BYTES = 50_000_000
+
+
+def check_input_file(path, what: str, *, max_bytes: int = MAX_INPUT_BYTES) -> Path:
+    """Refuse a user input file larger than ``max_bytes`` before it is parsed (bounded memory)."""
+    p = Path(path)
+    try:
+        size = p.stat().st_size
+    except OSError:
+        return p  # the reader reports a missing or unreadable file in its own words
+    if size > max_bytes:
+        raise NanoabsError(f"{what} {str(p)!r} is {size / 1e6:.0f} MB: allowed is at most {max_bytes / 1e6:.0f} MB "
+                           "(thin the table, e.g. to a 1 nm grid)")
+    return p
+
 
 def write_file_atomic(path, write, *, force: bool = False, binary: bool = False) -> Path:
     """Write any output file atomically: ``write(handle)`` fills a temporary beside it, then rename.
@@ -556,3 +575,67 @@ def write_file_atomic(path, write, *, force: bool = False, binary: bool = False)
         tmp.unlink(missing_ok=True)
         raise
     return target
+
+
+# --------------------------------------------------------------------------- one writer at a time
+
+
+def clean_stale_temps(target) -> None:
+    """Remove temporaries of ``target`` (and its sidecar) left by a killed writer; call under its lock."""
+    target = Path(target)
+    for name in {target.name, target.with_suffix(".json").name}:
+        for tmp in target.parent.glob(f".{glob.escape(name)}.*.tmp"):
+            tmp.unlink(missing_ok=True)
+
+
+@contextmanager
+def exclusive_lock(target, what: str = "output"):
+    """Hold an exclusive OS-level lock on ``target`` (lock file ``<target>.lock``) for the block.
+
+    ``fcntl.flock`` on the lock file where available (released by the OS if the
+    process dies); elsewhere the lock file is created with ``O_EXCL`` (a stale one
+    left by a killed process must then be removed by hand, the message says so).
+    A second writer gets a one-line :class:`NanoabsError` at once; nothing waits.
+    """
+    lock = Path(str(target) + ".lock")
+    busy = (f"{what} {str(target)!r} is being written by another nanoabs process (lock file "
+            f"{str(lock)!r}); wait for it to finish or choose another output")
+    try:
+        fd = _acquire(lock, busy)
+    except OSError as exc:
+        raise NanoabsError(f"{what} {str(target)!r}: cannot create the lock file {str(lock)!r} "
+                           f"({exc.__class__.__name__}: {exc.strerror or exc})") from None
+    try:
+        os.write(fd, f"{os.getpid()}\n".encode())
+        yield lock
+    finally:
+        lock.unlink(missing_ok=True)
+        os.close(fd)
+
+
+def _acquire(lock: Path, busy: str) -> int:
+    if not _HAVE_FLOCK:
+        try:
+            return os.open(lock, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
+        except FileExistsError:
+            raise NanoabsError(busy + "; if no other process runs, remove the lock file") from None
+    import fcntl
+
+    for _ in range(5):
+        fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(fd)
+            raise NanoabsError(busy) from None
+        try:  # the previous holder may have removed the file between our open and flock
+            if os.fstat(fd).st_ino == os.stat(lock).st_ino:
+                os.ftruncate(fd, 0)
+                return fd
+        except FileNotFoundError:
+            pass
+        os.close(fd)
+    raise NanoabsError(busy)
+
+
+_HAVE_FLOCK = importlib.util.find_spec("fcntl") is not None  # POSIX

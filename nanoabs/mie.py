@@ -935,3 +935,51 @@ def fraction_within_depth(m, x, depth, *, n_nodes=None):
     with np.errstate(divide="ignore", invalid="ignore"):
         f = np.where(total > 0, near / total, 0.0)
     return _scalar(np.clip(f, 0.0, 1.0).reshape(grid))
+
+
+# -- solvers for the method table (nanoabs.solvers.METHODS) ------------------------------------
+
+
+from .solvers import Response as _Response, Solver as _Solver  # noqa: E402  (solvers imports this module)
+
+
+class MieSolver(_Solver):
+    """Full Mie series for homogeneous and layered spheres (Yang, Appl. Opt. 42, 1710 (2003))."""
+
+    name = "mie"
+    reference = "Mie series for (layered) spheres, nanoabs.mie (Yang, Appl. Opt. 42, 1710 (2003))"
+    shapes = frozenset({"sphere", "layered sphere"})
+
+    @staticmethod
+    def inputs(problem):
+        """Relative indices m (L, ..., W) and size parameters x (L, ..., W) of the layers."""
+        k = problem.k
+        m = np.stack(np.broadcast_arrays(*[np.sqrt(e) / problem.n_medium for e in problem.eps_layers]))
+        x = np.stack(np.broadcast_arrays(*[k * np.asarray(r, dtype=float) for _, r in problem.particle.layers]))
+        return np.broadcast_arrays(m, x)
+
+    def solve(self, problem):
+        m, x = self.inputs(problem)
+        res = mie_layered(m, x)
+        area = np.pi * np.asarray(problem.particle.outer_radius_nm, dtype=float) ** 2
+        return _Response(res.qabs * area, res.qsca * area, res.qext * area)
+
+
+class MiepythonSolver(MieSolver):
+    """Homogeneous sphere through miepython (S. Prahl), kept as an independent reference."""
+
+    name = "miepython"
+    reference = "miepython (S. Prahl) homogeneous-sphere Mie series"
+    shapes = frozenset({"sphere"})
+
+    def solve(self, problem):
+        import miepython
+
+        m, x = (a[0] for a in self.inputs(problem))
+        qext = np.empty(m.shape)
+        qsca = np.empty(m.shape)
+        for idx in np.ndindex(m.shape):
+            # miepython uses m = n - ik (exp(+iwt)): pass the conjugate
+            qext[idx], qsca[idx], _, _ = miepython.efficiencies_mx(np.conj(m[idx]), x[idx])
+        area = np.pi * np.asarray(problem.particle.radius_nm, dtype=float) ** 2
+        return _Response((qext - qsca) * area, qsca * area, qext * area)

@@ -37,8 +37,56 @@ def _mat(value):
     return material(value)
 
 
+class _Spherical:
+    """Geometry facts shared by homogeneous and layered spheres (from ``layers``)."""
+
+    @property
+    def outer_radius_nm(self):
+        return self.layers[-1][1]
+
+    def volume_nm3(self):
+        return 4.0 / 3.0 * np.pi * self.outer_radius_nm**3
+
+    def surface_nm2(self):
+        return 4.0 * np.pi * self.outer_radius_nm**2
+
+    def layer_materials(self) -> list:
+        """Materials of the layers, core first."""
+        return [m for m, _ in self.layers]
+
+    def layer_labels(self) -> list:
+        return ["sphere"] if len(self.layers) == 1 else ["core"] + [f"shell {i}" for i in
+                                                                    range(1, len(self.layers))]
+
+    def damping_lengths_nm(self) -> list:
+        """Effective electron mean-free-path limit of each layer [nm]: 4V/S = 4r/3 for the core
+        (Coronado & Schatz, J. Chem. Phys. 119, 3926 (2003)), the thickness for a shell (a
+        documented approximation)."""
+        radii = [np.asarray(r, dtype=float) for _, r in self.layers]
+        return [4.0 / 3.0 * radii[0]] + [radii[i] - radii[i - 1] for i in range(1, len(radii))]
+
+    def outer_semi_axes_nm(self) -> tuple:
+        return (np.asarray(self.outer_radius_nm, dtype=float),)
+
+    def reference_area_nm2(self, polarization=None):
+        """(geometric cross-section π r_outer² [nm²], its description)."""
+        return np.pi * np.asarray(self.outer_radius_nm, dtype=float) ** 2, "pi r_outer^2"
+
+    def equal_volume_area_nm2(self):
+        return np.pi * np.asarray(self.outer_radius_nm, dtype=float) ** 2
+
+    def metal_volume_nm3(self):
+        """Volume of the metal layers [nm³]."""
+        out, r_in = 0.0, 0.0
+        for mat, r in self.layers:
+            if mat.is_metal:
+                out = out + 4.0 / 3.0 * np.pi * (np.asarray(r, dtype=float) ** 3 - r_in**3)
+            r_in = np.asarray(r, dtype=float)
+        return out
+
+
 @dataclass
-class Sphere:
+class Sphere(_Spherical):
     """Homogeneous sphere of ``radius_nm`` [nm]."""
 
     material: object
@@ -55,23 +103,13 @@ class Sphere:
         """[(material, outer radius [nm])] from the centre outward."""
         return [(self.material, self.radius_nm)]
 
-    @property
-    def outer_radius_nm(self):
-        return self.radius_nm
-
-    def volume_nm3(self):
-        return 4.0 / 3.0 * np.pi * self.radius_nm**3
-
-    def surface_nm2(self):
-        return 4.0 * np.pi * self.radius_nm**2
-
     def describe(self) -> dict:
         return {"shape": "sphere", "material": self.material.label,
                 "radius_nm": _plain(self.radius_nm)}
 
 
 @dataclass
-class LayeredSphere:
+class LayeredSphere(_Spherical):
     """Core of ``core_radius_nm`` [nm] with shells [(material, thickness_nm), ...] outward."""
 
     core: object
@@ -88,11 +126,7 @@ class LayeredSphere:
             if isinstance(item, str) or not hasattr(item, "__len__") or len(item) != 2:
                 raise NanoabsError(f"shell {i} = {item!r}: must be a (material, thickness_nm) pair")
             mat, t = item
-            t = check_positive(f"shell {i} thickness", t, unit="nm")
-            if np.any(t < MONOLAYER_NM):
-                raise NanoabsError(f"shell {i} thickness = {float(np.min(t)):g} nm: must be at least "
-                                   f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
-            out.append((_mat(mat), t))
+            out.append((_mat(mat), _check_thickness(f"shell {i} thickness", t)))
         self.shells = out
 
     shape = "layered sphere"
@@ -106,20 +140,18 @@ class LayeredSphere:
             out.append((mat, r))
         return out
 
-    @property
-    def outer_radius_nm(self):
-        return self.layers[-1][1]
-
-    def volume_nm3(self):
-        return 4.0 / 3.0 * np.pi * self.outer_radius_nm**3
-
-    def surface_nm2(self):
-        return 4.0 * np.pi * self.outer_radius_nm**2
-
     def describe(self) -> dict:
         return {"shape": "layered sphere", "core": self.core.label,
                 "core_radius_nm": _plain(self.core_radius_nm),
                 "shells": [{"material": m.label, "thickness_nm": _plain(t)} for m, t in self.shells]}
+
+
+def _check_thickness(name, t):
+    t = check_positive(name, t, unit="nm")
+    if np.any(t < MONOLAYER_NM):
+        raise NanoabsError(f"{name} = {float(np.min(t)):g} nm: must be at least "
+                           f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
+    return t
 
 
 @dataclass
@@ -149,11 +181,7 @@ class Ellipsoid:
             if isinstance(self.shell, str) or not hasattr(self.shell, "__len__") or len(self.shell) != 2:
                 raise NanoabsError(f"shell = {self.shell!r}: must be a (material, thickness_nm) pair")
             mat, t = self.shell
-            t = check_positive("shell thickness", t, unit="nm")
-            if np.any(t < MONOLAYER_NM):
-                raise NanoabsError(f"shell thickness = {float(np.min(t)):g} nm: must be at least "
-                                   f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
-            self.shell = (_mat(mat), t)
+            self.shell = (_mat(mat), _check_thickness("shell thickness", t))
 
     shape = "ellipsoid"
 
@@ -186,6 +214,45 @@ class Ellipsoid:
         """Geometric cross-section for the field along ``axis`` (module docstring convention)."""
         a, b, c = self.outer_axes_nm
         return np.pi * a * b if axis in ("x", "y") else np.pi * b * c
+
+    def layer_materials(self) -> list:
+        return [self.material] + ([self.shell[0]] if self.shell is not None else [])
+
+    def layer_labels(self) -> list:
+        return ["core", "shell"] if self.shell is not None else [self.kind]
+
+    def damping_lengths_nm(self) -> list:
+        """Effective mean-free-path limit per layer [nm]: 4V/S of the core (Coronado & Schatz,
+        J. Chem. Phys. 119, 3926 (2003)), the thickness of a shell (documented approximation)."""
+        core = tuple(np.asarray(a, dtype=float) for a in self.semi_axes_nm)
+        out = [4.0 * self.core_volume_nm3() / self.surface_nm2(core)]
+        return out + ([np.asarray(self.shell[1], dtype=float)] if self.shell is not None else [])
+
+    def outer_semi_axes_nm(self) -> tuple:
+        return tuple(np.asarray(a, dtype=float) for a in self.outer_axes_nm)
+
+    def reference_area_nm2(self, polarization):
+        """(geometric cross-section [nm²], its description) for a resolved polarisation axis.
+
+        Fixed field: the projected area for the light direction of the module convention;
+        random orientation: surface area / 4 (Cauchy's theorem for convex bodies).
+        """
+        if polarization == "random":
+            return self.surface_nm2() / 4.0, "surface area / 4 (random orientation, Cauchy's theorem)"
+        text = ("projected area pi a b (light along z)" if polarization in ("x", "y")
+                else "projected area pi b c (light along x)")
+        return self.projected_area_nm2(polarization), text
+
+    def equal_volume_area_nm2(self):
+        return np.pi * (3 * self.volume_nm3() / (4 * np.pi)) ** (2.0 / 3.0)
+
+    def metal_volume_nm3(self):
+        """Volume of the metal parts [nm³]."""
+        core = self.core_volume_nm3()
+        out = core if self.material.is_metal else 0.0
+        if self.shell is not None and self.shell[0].is_metal:
+            out = out + (self.volume_nm3() - core)
+        return out
 
     def describe(self) -> dict:
         d = {"shape": self.kind, "material": self.material.label,

@@ -1,7 +1,9 @@
 """Figures (matplotlib, headless Agg backend): optical constants, spectra, maps, yields.
 
-Every function returns a ``matplotlib.figure.Figure``; :func:`save_figure` writes
-PNG or SVG atomically. Axis labels carry units; colour maps are perceptually
+The ``plot_*`` functions draw into ``ax=`` when given (else into a new Figure) and
+return the Figure; :func:`spectrum_axes` (behind :meth:`nanoabs.Spectrum.plot`) returns
+the Axes and, with no ``ax``, draws through pyplot so notebooks show the figure inline.
+:func:`save_figure` writes PNG or SVG atomically. Axis labels carry units; colour maps are perceptually
 uniform (viridis / cividis).
 """
 
@@ -13,12 +15,56 @@ import numpy as np
 
 from ._errors import NanoabsError
 
-__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "save_figure"]
+__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "spectrum_axes", "save_figure"]
+
+#: Plot label and scale of each spectrum quantity (one table: values, labels and units never disagree).
+QUANTITY_LABELS = {
+    "sigma_abs_m2": ("absorption cross-section [nm²]", 1e18),
+    "sigma_sca_m2": ("scattering cross-section [nm²]", 1e18),
+    "sigma_ext_m2": ("extinction cross-section [nm²]", 1e18),
+    "q_abs": ("absorption efficiency Q_abs [1]", 1.0),
+    "q_sca": ("scattering efficiency Q_sca [1]", 1.0),
+    "q_ext": ("extinction efficiency Q_ext [1]", 1.0),
+    "q_abs_eqvol": ("Q_abs, equal-volume sphere [1]", 1.0),
+    "sigma_abs_per_metal_volume_m_1": ("σ_abs per metal volume [µm⁻¹]", 1e-6),
+    "absorbed_fraction": ("absorbed fraction σ_abs/σ_ext [1]", 1.0),
+    "dipole_bound_ratio": ("σ_abs / single-dipole bound [1]", 1.0),
+}
 
 
-def _figure(nrows=1, ncols=1, **kw):
+def spectrum_axes(spec, quantity="sigma_abs_m2", *, ax=None, **line_kw):
+    """Draw one quantity of a :class:`~nanoabs.Spectrum` against wavelength; return the Axes.
+
+    The title names the particle, host or environment, method and polarisation; a family
+    of sizes is drawn as one line per member.
+    """
+    from ._errors import check_choice
+
+    quantity = check_choice("quantity", quantity, list(QUANTITY_LABELS))
+    label, scale = QUANTITY_LABELS[quantity]
+    if ax is None:
+        import matplotlib.pyplot as plt
+
+        _, ax = plt.subplots(figsize=(6.4, 4.2), layout="constrained")
+    y = np.asarray(getattr(spec, quantity), dtype=float) * scale
+    y = np.broadcast_to(y, np.broadcast_shapes(y.shape, spec.wavelength_nm.shape))
+    ax.plot(spec.wavelength_nm, y.reshape(-1, spec.wavelength_nm.size).T, **line_kw)
+    ax.set_xlabel("wavelength [nm]")
+    ax.set_ylabel(label)
+    ax.grid(alpha=0.3)
+    m = spec.metadata
+    ax.set_title(f"{spec._headline().split('; ')[0]}; {m.get('method', '?')}, "
+                 f"polarisation {m.get('polarization', '?')}", fontsize=9)
+    if "label" in line_kw:
+        ax.legend(frameon=False, fontsize=8)
+    return ax
+
+
+def _figure(nrows=1, ncols=1, ax=None, **kw):
     from matplotlib.figure import Figure
 
+    if ax is not None:
+        return ax.figure, ax
     fig = Figure(figsize=kw.pop("figsize", (6.4, 4.2)), layout="constrained")
     axes = fig.subplots(nrows, ncols, **kw)
     return fig, axes
@@ -36,7 +82,7 @@ def save_figure(fig, path, *, force: bool = False, dpi: int = 150) -> Path:
                              binary=True)
 
 
-def plot_material(mat, wavelength_nm=None):
+def plot_material(mat, wavelength_nm=None, *, ax=None):
     """n, k and ε′, ε″ of a material against wavelength [nm]; tabulated points marked."""
     if wavelength_nm is None:
         lo, hi = mat.range_nm
@@ -46,7 +92,7 @@ def plot_material(mat, wavelength_nm=None):
         wavelength_nm = np.geomspace(lo, hi, 400)
     wl = np.asarray(wavelength_nm, dtype=float)
     n = np.atleast_1d(mat.refractive_index(wl))
-    fig, (a1, a2) = _figure(1, 2, figsize=(9.0, 3.8))
+    fig, (a1, a2) = _figure(1, 2, ax=ax, figsize=(9.0, 3.8))  # ax: a pair of Axes
     a1.plot(wl, n.real, label="n", color="#1b6ca8")
     a1.plot(wl, n.imag, label="k", color="#c8553d")
     eps = n**2
@@ -69,11 +115,11 @@ def plot_material(mat, wavelength_nm=None):
 
 
 def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None, band=None,
-                 scale=1.0):
+                 scale=1.0, ax=None):
     """Overlay of spectra: ``curves`` is a list of (label, wavelength_nm, values)."""
     import matplotlib
 
-    fig, ax = _figure()
+    fig, ax = _figure(ax=ax)
     cmap = matplotlib.colormaps["viridis"]
     for i, (label, wl, y) in enumerate(curves):
         ax.plot(wl, np.asarray(y) * scale, label=label,
@@ -91,12 +137,12 @@ def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None
 
 
 def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=True, band=None,
-             title=None):
+             title=None, ax=None):
     """Wavelength × parameter map (values shape (len(param), len(wavelength))) with the peak ridge."""
     wl = np.asarray(wavelength_nm, dtype=float)
     p = np.asarray(param, dtype=float)
     v = np.asarray(values, dtype=float)
-    fig, ax = _figure()
+    fig, ax = _figure(ax=ax)
     mesh = ax.pcolormesh(wl, p, v, cmap="viridis", shading="nearest")
     fig.colorbar(mesh, ax=ax, label=value_label)
     if ridge:
@@ -115,11 +161,11 @@ def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=Tr
     return fig
 
 
-def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False):
+def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False, ax=None):
     """Simple line plot: ``curves`` is a list of (label, y) against a shared x."""
     import matplotlib
 
-    fig, ax = _figure()
+    fig, ax = _figure(ax=ax)
     cmap = matplotlib.colormaps["cividis"]
     for i, (label, y) in enumerate(curves):
         ax.plot(x, y, label=label, color=cmap(0.85 * i / max(1, len(curves) - 1)))

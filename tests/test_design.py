@@ -16,6 +16,7 @@ from scipy.optimize import brentq
 
 import nanoabs
 from nanoabs import NanoabsError, design
+from nanoabs.design import _engine, _ensemble, _sweep
 from nanoabs.drude_lorentz import HC_EV_NM, DrudeLorentz
 from nanoabs.export import read_export
 from nanoabs.particles import Sphere, spheroid
@@ -142,14 +143,14 @@ def test_part_files_are_formatted_like_the_export():
     f = pd.DataFrame({"design_id": np.arange(6, dtype=np.int64),
                       "x": [1 / 3, np.nan, -0.0, 1.7976931348623157e308, 5e-324, np.inf],
                       "material": ["Au", 'say "x"', "a,b", "", "Cu", "Al"]})
-    assert design._csv_text(f) == f.to_csv(index=False, na_rep="nan", lineterminator="\n")
+    assert _engine.csv_text(f) == f.to_csv(index=False, na_rep="nan", lineterminator="\n")
 
 
 def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
     # Source: the uninterrupted in-memory sweep (exact); counts of chunk computations.
     ref = _sphere_sweep(chunk_size=2)
     n_chunks = 7  # 14 designs / 2
-    real = design._compute_chunk
+    real = _sweep._compute_chunk
     calls = []
 
     def interrupted(plan, index):
@@ -159,7 +160,7 @@ def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
         return real(plan, index)
 
     out = tmp_path / "run.csv"
-    monkeypatch.setattr(design, "_compute_chunk", interrupted)
+    monkeypatch.setattr(_sweep, "_compute_chunk", interrupted)
     with pytest.raises(KeyboardInterrupt):
         _sphere_sweep(chunk_size=2, out=out)
     parts = Path(str(out) + ".parts")
@@ -172,7 +173,7 @@ def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
         rerun.append(index)
         return real(plan, index)
 
-    monkeypatch.setattr(design, "_compute_chunk", counting)
+    monkeypatch.setattr(_sweep, "_compute_chunk", counting)
     got = _sphere_sweep(chunk_size=2, out=out)
     assert rerun == list(range(3, n_chunks))  # finished chunks are not recomputed
     assert_frame_equal(ref, got, check_exact=True)
@@ -182,7 +183,7 @@ def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
 
 def test_stale_work_directory_needs_force(tmp_path, monkeypatch):
     # Source: contract — parts of a sweep with other arguments are never mixed in silently.
-    real = design._compute_chunk
+    real = _sweep._compute_chunk
 
     def stop_after_first(plan, index):
         if index > 0:
@@ -190,10 +191,10 @@ def test_stale_work_directory_needs_force(tmp_path, monkeypatch):
         return real(plan, index)
 
     out = tmp_path / "s.csv"
-    monkeypatch.setattr(design, "_compute_chunk", stop_after_first)
+    monkeypatch.setattr(_sweep, "_compute_chunk", stop_after_first)
     with pytest.raises(KeyboardInterrupt):
         _sphere_sweep(chunk_size=2, out=out)
-    monkeypatch.setattr(design, "_compute_chunk", real)
+    monkeypatch.setattr(_sweep, "_compute_chunk", real)
     with pytest.raises(NanoabsError, match="different arguments"):
         _sphere_sweep(chunk_size=5, out=out)
     got = _sphere_sweep(chunk_size=5, out=out, force=True)
@@ -210,7 +211,7 @@ def test_over_memory_budget_returns_the_path(tmp_path):
 
 def test_progress_bar_on_stderr_and_silenced(capsys, monkeypatch):
     # Source: contract — progress on stderr only; progress=False prints nothing.
-    monkeypatch.setattr(design, "_PROGRESS_DELAY_S", 0.0)
+    monkeypatch.setattr(_engine, "_PROGRESS_DELAY_S", 0.0)
     _sphere_sweep(chunk_size=5, progress=True)
     cap = capsys.readouterr()
     assert "sweep sphere" in cap.err and "3/3" in cap.err and cap.out == ""
@@ -262,7 +263,7 @@ def test_histogram_is_the_weighted_mean_of_single_spectra():
 def test_quadrature_reproduces_mean_and_relative_spread(kind):
     # Source: definition of the distributions — mean mu and E[x^2] = mu^2 (1 + s^2) for both
     # (log-normal: exp(2 mu_ln + 2 sigma_ln^2) with sigma_ln^2 = ln(1 + s^2)); rtol 1e-12.
-    x, w, dropped = design._quadrature(kind, 30.0, 0.1, 25)
+    x, w, dropped = _ensemble._quadrature(kind, 30.0, 0.1, 25)
     assert dropped < 1e-13
     assert np.sum(w * x) == pytest.approx(30.0, rel=1e-12)
     assert np.sum(w * x**2) == pytest.approx(30.0**2 * (1 + 0.1**2), rel=1e-12)

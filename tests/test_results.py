@@ -1,0 +1,58 @@
+"""Results people look at: short reprs, Spectrum.plot returning Axes, N-D datasets with units.
+
+The round-trip references are the values themselves (written, read back, compared exactly);
+the units attributes follow the CF conventions' UDUNITS spelling (common practice).
+"""
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import numpy as np  # noqa: E402
+import pytest  # noqa: E402
+
+import nanoabs  # noqa: E402
+from nanoabs import NanoabsError  # noqa: E402
+
+WL = np.linspace(400.0, 800.0, 501)
+
+
+def test_repr_is_short_and_html_summary_escapes():
+    s = nanoabs.spectrum(nanoabs.Sphere("Au", 20.0), WL)
+    r = repr(s)
+    assert len(r) < 400 and "peak" in r and "mie" in r
+    h = s._repr_html_()
+    assert h.startswith("<div>") and "<script" not in h
+
+
+def test_plot_returns_axes_with_units_and_draws_family():
+    import matplotlib.pyplot as plt
+
+    s = nanoabs.spectrum(nanoabs.Sphere("Au", np.array([[10.0], [20.0], [30.0]])), WL)
+    ax = s.plot(quantity="q_abs")
+    assert isinstance(ax, matplotlib.axes.Axes)
+    assert len(ax.get_lines()) == 3 and "[1]" in ax.get_ylabel()
+    fig, ax2 = plt.subplots()
+    assert s.plot(ax=ax2) is ax2 and "nm²" in ax2.get_ylabel()
+    plt.close("all")
+    with pytest.raises(NanoabsError):
+        s.plot(quantity="colour")
+
+
+def test_xarray_dataset_and_netcdf_round_trip(tmp_path):
+    pytest.importorskip("xarray")
+    from nanoabs.dataset import read_netcdf, write_netcdf
+
+    radii = np.array([[10.0], [20.0]])
+    s = nanoabs.spectrum(nanoabs.Sphere("Au", radii), WL)
+    ds = s.to_xarray(dims=["radius"])
+    assert ds.sigma_abs_m2.dims == ("radius", "wavelength_nm")
+    assert ds.sigma_abs_m2.attrs["units"] == "m2" and ds.wavelength_nm.attrs["units"] == "nm"
+    p = write_netcdf(ds, tmp_path / "s.nc")
+    back = read_netcdf(p)
+    np.testing.assert_array_equal(back.sigma_abs_m2.values, s.sigma_abs_m2)
+    assert back.q_abs.attrs["units"] == "1"
+    with pytest.raises(NanoabsError):
+        write_netcdf(ds, tmp_path / "s.nc")  # never overwrite unless asked
+    with pytest.raises(NanoabsError, match="dims"):
+        s.to_xarray(dims=["a", "b"])
