@@ -28,7 +28,7 @@ import numpy as np
 from ._errors import NanoabsError, check_choice, check_positive, check_range
 from .stack import plane_waves
 
-__all__ = ["Homogeneous", "OnSubstrate", "Buried", "homogeneous", "on_substrate", "buried", "Resolved"]
+__all__ = ["OnSubstrate", "Buried", "homogeneous", "on_substrate", "buried", "Resolved"]
 
 INCIDENCE = ("front", "back")
 SIGMA_REFERENCE = ("power absorbed in the particle / irradiance of the incident plane wave in the "
@@ -44,13 +44,14 @@ def _mat(value):
 
 
 def _transparent(name, mat, wl, role):
-    """Real index of a medium that must be (nearly) non-absorbing; same rule as spectrum()'s medium."""
-    n = np.atleast_1d(mat.refractive_index(wl)).astype(complex)
-    worst = float(np.max(n.imag))
-    if worst > 0.01 * float(np.min(n.real)):
-        raise NanoabsError(f"{name} = {mat.label}: absorbs (k up to {worst:.3g}) at these wavelengths but is the "
-                           f"{role}; allowed: k <= 0.01 n there (choose another range, side or material)")
-    return n.real
+    """Real index of a medium that must be (nearly) non-absorbing: the rule of a homogeneous host
+    (`nanoabs.solvers.Homogeneous.host_index`: k <= 0.01 n, weak absorption neglected with a caution)."""
+    from .solvers import Homogeneous
+
+    try:
+        return Homogeneous(mat).host_index(wl)
+    except NanoabsError as err:
+        raise NanoabsError(f"{name} = {mat.label} is the {role} here: {err}") from None
 
 
 class Resolved(NamedTuple):
@@ -74,6 +75,16 @@ def _check_common(incidence, angle_deg, polarization):
 
 class _Planar:
     """Shared behaviour of the planar environments (see module docstring)."""
+
+    def host_index(self, wavelength_nm) -> tuple:
+        """(real index of the medium around the particle (W,), cautions) for `nanoabs.spectrum`."""
+        host = self.substrate if self.kind == "buried" else self.superstrate
+        self.resolve(wavelength_nm)                      # validates every medium that must be transparent
+        return _transparent("host", _mat(host), np.atleast_1d(np.asarray(wavelength_nm, float)), "host")
+
+    def apply(self, solver, problem):
+        """Cross-sections of the particle here (see `apply_planar`)."""
+        return apply_planar(self, solver, problem)
 
     def field_factor(self, wavelength_nm, half_height_nm=0.0):
         """|E_drive/E_inc|^2 at the particle centre without the particle, shape (W,)."""
@@ -99,19 +110,6 @@ class _Planar:
 
 
 @dataclass(frozen=True)
-class Homogeneous:
-    """The particle in one infinite, non-absorbing medium (today's default)."""
-
-    medium: object = "water"
-
-    kind = "homogeneous"
-
-    def describe(self) -> dict:
-        return {"kind": self.kind, "medium": _mat(self.medium).label, "sigma_reference":
-                "power absorbed / irradiance of the incident plane wave in the medium"}
-
-
-@dataclass(frozen=True)
 class OnSubstrate(_Planar):
     """Particle in the superstrate, resting ``gap_nm`` above a substrate or a spacer layer on it."""
 
@@ -131,13 +129,13 @@ class OnSubstrate(_Planar):
     def resolve(self, wavelength_nm) -> Resolved:
         wl = np.atleast_1d(np.asarray(wavelength_nm, float))
         sup, sub = _mat(self.superstrate), _mat(self.substrate)
-        n_h = _transparent("superstrate", sup, wl, "medium around the particle")
+        n_h, _ = _transparent("superstrate", sup, wl, "medium around the particle")
         eps_sub = np.atleast_1d(sub.permittivity(wl)).astype(complex)
         inner, thick = [], []
         if self.spacer is not None:
             inner = [np.atleast_1d(_mat(self.spacer[0]).permittivity(wl)).astype(complex)]
             thick = [float(self.spacer[1])]
-        n_sub = (_transparent("substrate", sub, wl, "incidence medium (incidence='back')")
+        n_sub = (_transparent("substrate", sub, wl, "incidence medium (incidence='back')")[0]
                  if self.incidence == "back" else None)
         eh = n_h ** 2 + 0j
         n_inc, light, lthick = self._light(eh, inner, thick, eps_sub, n_h, n_sub)
@@ -173,9 +171,9 @@ class Buried(_Planar):
     def resolve(self, wavelength_nm) -> Resolved:
         wl = np.atleast_1d(np.asarray(wavelength_nm, float))
         sup, sub = _mat(self.superstrate), _mat(self.substrate)
-        n_h = _transparent("substrate", sub, wl, "medium around the particle (buried)")
+        n_h, _ = _transparent("substrate", sub, wl, "medium around the particle (buried)")
         eps_sup = np.atleast_1d(sup.permittivity(wl)).astype(complex)
-        n_sup = (_transparent("superstrate", sup, wl, "incidence medium (incidence='front')")
+        n_sup = (_transparent("superstrate", sup, wl, "incidence medium (incidence='front')")[0]
                  if self.incidence == "front" else None)
         eh = n_h ** 2 + 0j
         n_inc, light, lthick = self._light(eps_sup, [], [], eh, n_sup, n_h)
@@ -192,10 +190,14 @@ def _light_meta(env) -> dict:
             "field_factor": "|E_drive/E_inc|^2 at the particle centre without the particle"}
 
 
-def homogeneous(medium="water") -> Homogeneous:
-    """Particle in one infinite medium (a store name, a number for a constant index, or a Material)."""
-    _mat(medium)
-    return Homogeneous(medium)
+def homogeneous(medium="water"):
+    """Particle in one infinite medium (a store name, a number for a constant index, or a Material).
+
+    Returns the default environment of `nanoabs.spectrum`, :class:`nanoabs.solvers.Homogeneous`.
+    """
+    from .solvers import Homogeneous
+
+    return Homogeneous(_mat(medium))
 
 
 def _check_spacer(spacer):
@@ -250,3 +252,81 @@ def buried(substrate, *, superstrate="air", depth_nm, incidence="front", angle_d
         raise NanoabsError(f"depth_nm = {depth:g} nm: allowed range is 0 to {MAX_LENGTH_NM:g} nm")
     inc, angle, pol = _check_common(incidence, angle_deg, polarization)
     return Buried(substrate, superstrate, depth, inc, angle, pol)
+
+
+def _scalar_sizes(particle):
+    axes = [np.asarray(a, float) for a in particle.outer_semi_axes_nm()]
+    if any(a.size != 1 for a in axes):
+        raise NanoabsError(f"particle size: an array of {max(a.size for a in axes)} sizes; allowed in a "
+                           "substrate or buried environment: one size per call (loop over sizes)")
+    return [float(a.reshape(-1)[0]) for a in axes]
+
+
+def _lab_tensors(solver, problem, env, radiative):
+    """[(weight, alpha (W,3,3))] in the lab frame for the requested in-plane orientation.
+
+    The particle's axes (a, b, c) lie along (x, y, z) with c vertical (rods and discs lie
+    flat). The in-plane field is along y (s) or x (p): polarization "x" puts the particle's
+    x axis along it, "y" its y axis, "z" leaves it (only oblique p light has a z field),
+    "random" averages the two in-plane orientations, which is the exact in-plane average
+    because the stack's reflected field is isotropic in the plane (Gamma_xx = Gamma_yy).
+    """
+    k = problem.k
+    if problem.particle.shape == "ellipsoid":
+        ax, ay, az = (np.broadcast_to(solver.polarizability(problem, a), k.shape) for a in "xyz")
+    else:
+        ax = ay = az = np.broadcast_to(solver.polarizability(problem, "x"), k.shape)
+    if radiative:   # static alpha0 -> alpha0 / (1 - i k^3 alpha0 / 6 pi) (Draine 1988, eq. 3, from memory)
+        ax, ay, az = (a / (1 - 1j * k ** 3 * a / (6 * np.pi)) for a in (ax, ay, az))
+    along_x = np.stack([np.diag([x, y, z]) for x, y, z in zip(ax, ay, az)])
+    along_y = np.stack([np.diag([y, x, z]) for x, y, z in zip(ax, ay, az)])
+    field_on_x = env.polarization == "p"
+    pol = problem.polarization
+    if pol == "random":
+        return [(0.5, along_x), (0.5, along_y)]
+    if pol == "y":
+        return [(1.0, along_y if field_on_x else along_x)]
+    return [(1.0, along_x if (field_on_x or pol == "z") else along_y)]
+
+
+def apply_planar(env, solver, problem):
+    """Response of a particle in a planar environment, from what the chosen solver exposes.
+
+    * Mie solver (spheres, layered spheres): multipole method
+      (`nanoabs.surface.sphere_on_stack`), order chosen by convergence.
+    * Corrected dipole ("mlwa"): its polarisability with the retarded reflected
+      Green's function (`nanoabs.surface.dipole_response`, Sommerfeld integrals).
+    * Static dipole ("quasistatic"): its polarisability, radiatively corrected, with the
+      quasi-static image dyadic (Yamaguchi et al. 1974; Wind et al. 1987).
+
+    sigma_abs is per irradiance of the incident wave in the incidence medium;
+    sigma_ext is the work of the drive field (the power taken from the specular
+    beams) and sigma_sca = sigma_ext - sigma_abs the power scattered into both
+    half-spaces (and into guided modes or absorbing layers of the stack).
+    """
+    from .solvers import Response
+    from .surface import dipole_response, sphere_on_stack
+
+    sizes = _scalar_sizes(problem.particle)
+    wl = problem.wavelength_nm
+    meta = {"sigma_reference": SIGMA_REFERENCE}
+    if hasattr(solver, "polarizability"):
+        method = "sommerfeld" if solver.corrected else "image"
+        s_abs = s_rad = 0.0
+        for weight, alpha in _lab_tensors(solver, problem, env, radiative=not solver.corrected):
+            out = dipole_response(env, alpha, wl, half_height_nm=sizes[-1], method=method)
+            s_abs = s_abs + weight * out["sigma_abs_nm2"]
+            s_rad = s_rad + weight * out["sigma_rad_nm2"]
+        meta |= {"environment_method": f"dipole + reflected Green's function ({method})",
+                 "sommerfeld_error": float(np.max(out["integration_error"]))}
+        s_ext = s_abs + s_rad
+    else:
+        radii = [float(np.asarray(r, float).reshape(-1)[0]) for _, r in problem.particle.layers]
+        out = sphere_on_stack(env, problem.eps_layers, radii, wl)
+        s_abs, s_ext = out["sigma_abs_nm2"], out["sigma_drive_nm2"]
+        meta |= {"environment_method": "multipole (T-matrix coupled to the stack)",
+                 "multipole_order": out["n_max"], "multipole_order_change": out["n_max_change"],
+                 "multipole_converged": out["converged"],
+                 "sommerfeld_error": float(np.max(out["integration_error"]))}
+    meta["field_factor"] = np.asarray(out["field_factor"]).tolist()
+    return Response(s_abs, s_ext - s_abs, s_ext, metadata=meta)

@@ -949,6 +949,7 @@ class MieSolver(_Solver):
     name = "mie"
     reference = "Mie series for (layered) spheres, nanoabs.mie (Yang, Appl. Opt. 42, 1710 (2003))"
     shapes = frozenset({"sphere", "layered sphere"})
+    environments = frozenset({"homogeneous", "on_substrate", "buried"})  # planar: multipole method
 
     @staticmethod
     def inputs(problem):
@@ -971,6 +972,7 @@ class MiepythonSolver(MieSolver):
     name = "miepython"
     reference = "miepython (S. Prahl) homogeneous-sphere Mie series"
     shapes = frozenset({"sphere"})
+    environments = frozenset({"homogeneous"})
 
     def solve(self, problem):
         import miepython

@@ -81,7 +81,8 @@ def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9, matrix=False):
     Parameters
     ----------
     integrand : callable
-        ``integrand(s)`` with s of shape (W, K) returns (W, K, C) complex values.
+        ``integrand(s, w)`` with nodes s and weights w of shape (W, K) returns the
+        quadrature sum (W, C) of the C integrands.
     n_max_stack : (W,) float
         Largest Re(n_j)/n_h over the stack (the branch points lie at s <= this).
     h_norm : (W,) float
@@ -106,7 +107,7 @@ def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9, matrix=False):
     prev = None
     for _ in range(MAX_DOUBLINGS):
         s, w = _path(c, h_norm, n1, n2)
-        val = np.einsum("wk,wkc->wc", w, integrand(s))
+        val = integrand(s, w)
         if prev is not None:
             if matrix:
                 size = int(round(np.sqrt(val.shape[1])))
@@ -127,7 +128,7 @@ def _green_integrand(eps, thickness_nm, k0, k_h, h_nm):
     """Integrand of Gamma/k_h^3 in s = k_par/k_h: components (E_par, E_perp, M_par, M_perp)."""
     e = [np.asarray(x, complex)[:, None] for x in eps]
 
-    def f(s):
+    def f(s, w):
         kp = s * k_h[:, None]
         rs, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "s")
         rp, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "p")
@@ -136,7 +137,8 @@ def _green_integrand(eps, thickness_nm, k0, k_h, h_nm):
         ph = np.exp(2j * uz * k_h[:, None] * h_nm) / uz * 1j
         par_e = ph * s * (rs - uz ** 2 * rp) / (8 * np.pi)
         par_m = ph * s * (rp - uz ** 2 * rs) / (8 * np.pi)
-        return np.stack([par_e, ph * s ** 3 * rp / (4 * np.pi), par_m, ph * s ** 3 * rs / (4 * np.pi)], -1)
+        vals = np.stack([par_e, ph * s ** 3 * rp / (4 * np.pi), par_m, ph * s ** 3 * rs / (4 * np.pi)], -1)
+        return np.einsum("wk,wkc->wc", w, vals)
     return f
 
 
@@ -362,11 +364,11 @@ def _coupling_integrand(eps, thickness_nm, k0, k_h, h_nm, m, n_max):
     from .vswf import angular, orders
 
     n = orders(m, n_max)
-    sq = np.sqrt(n * (n + 1))
+    sq2 = np.tile(np.sqrt(n * (n + 1)), 2)
     i_n = 1j ** n
     e = [np.asarray(x, complex)[:, None] for x in eps]
 
-    def f(s):
+    def f(s, w):
         kp = s * k_h[:, None]
         rs, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "s")
         rp, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "p")
@@ -376,17 +378,19 @@ def _coupling_integrand(eps, thickness_nm, k0, k_h, h_nm, m, n_max):
         pi_u, tau_u = angular(uz, s, m, n_max)
         half = np.exp(1j * uz * k_h[:, None] * h_nm)          # split between source and receiver:
         gone = np.abs(half) < 1e-150                              # s^n of each stays finite
-        half = np.where(gone, 0, half)[..., None, None]
-        pre = (4j * np.pi * s / uz)[..., None, None]
+        half = np.where(gone, 0, half)[..., None]
+        pre = np.where(gone, 0, w * 4j * np.pi * s / uz)[..., None]
         with np.errstate(invalid="ignore", over="ignore"):
-            src_p = half * pre * np.stack([(-1j) ** (n + 1) * -pi_d, (-1j) ** n * 1j * tau_d], -2) / sq
-            src_s = half * pre * np.stack([(-1j) ** (n + 1) * -1j * tau_d, (-1j) ** n * -pi_d], -2) / sq
-            rec_p = half * np.stack([i_n * -pi_u, i_n * -tau_u], -2) / sq
-            rec_s = half * np.stack([i_n * 1j * tau_u, i_n * 1j * pi_u], -2) / sq
-            out = (rp[..., None, None] * np.einsum("...an,...bk->...anbk", rec_p, src_p).reshape(*s.shape, 2 * len(n), -1)
-                   + rs[..., None, None] * np.einsum("...an,...bk->...anbk", rec_s, src_s).reshape(*s.shape, 2 * len(n), -1))
-        out = np.where(gone[..., None, None], 0, out)
-        return out.reshape(*s.shape, -1)
+            src_p = half * pre * np.concatenate([(-1j) ** (n + 1) * -pi_d, (-1j) ** n * 1j * tau_d], -1) / sq2
+            src_s = half * pre * np.concatenate([(-1j) ** (n + 1) * -1j * tau_d, (-1j) ** n * -pi_d], -1) / sq2
+            rec_p = half * np.concatenate([i_n * -pi_u, i_n * -tau_u], -1) / sq2
+            rec_s = half * np.concatenate([i_n * 1j * tau_u, i_n * 1j * pi_u], -1) / sq2
+        src_p = np.where(gone[..., None], 0, src_p) * rp[..., None]
+        src_s = np.where(gone[..., None], 0, src_s) * rs[..., None]
+        rec_p = np.where(gone[..., None], 0, rec_p)
+        rec_s = np.where(gone[..., None], 0, rec_s)
+        out = np.swapaxes(rec_p, 1, 2) @ src_p + np.swapaxes(rec_s, 1, 2) @ src_s       # (W, 2nn, 2nn)
+        return out.reshape(out.shape[0], -1)
     return f
 
 
@@ -464,7 +468,7 @@ def _azimuthal_orders(waves, n_max):
     return range(-n_max, n_max + 1) if oblique else (-1, 1)
 
 
-def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n_max, rtol=1e-9):
+def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n_max, rtol=1e-9, check_order=4):
     """Absorption of a particle with a T-matrix in a planar environment (multipole method).
 
     Parameters
@@ -484,6 +488,9 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
         Multipole degree.
     rtol : float, keyword-only
         Accuracy of the Sommerfeld integrals.
+    check_order : int, keyword-only
+        The system is also solved truncated at n_max - check_order (same integrals);
+        ``n_max_change`` is the largest relative change of sigma_abs between the two.
 
     Returns
     -------
@@ -500,37 +507,53 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
     field without the particle (`nanoabs.vswf.plane_wave_coefficients` of each plane
     wave of `environment.drive_waves`) and R from `reflection_matrix`.
     """
-    from .vswf import plane_wave_coefficients
+    from .vswf import orders, plane_wave_coefficients
 
     wl = np.atleast_1d(np.asarray(wavelength_nm, float))
     res = environment.resolve(wl)
     h = environment.center_height_nm(half_height_nm)
     waves = environment.drive_waves(wl, half_height_nm, res)
     k_h = 2 * np.pi * res.n_host / wl
-    s_abs = np.zeros(wl.shape)
-    s_drive = np.zeros(wl.shape)
-    err = np.zeros(wl.shape)
-    coeffs = {}
+    s_abs, s_drive, s_low, err = (np.zeros(wl.shape) for _ in range(4))
+    coeffs, cache = {}, {}
     for m in _azimuthal_orders(waves, n_max):
         a = sum(np.concatenate(plane_wave_coefficients(k, E, m, n_max), 1) for k, E in waves)
         T = tmatrix(m)
-        R = np.empty(T.shape, complex)
-        for i in range(len(wl)):
-            stack_i = [np.broadcast_to(x, wl.shape)[i:i + 1] for x in res.host_stack]
-            R[i:i + 1], e_i = reflection_matrix(stack_i, res.host_thickness_nm, wl[i:i + 1], h, m, n_max, rtol=rtol)
-            err[i] = max(err[i], e_i[0])
-        # balanced: D^-1 (1 - T R) D (D^-1 b) = D^-1 T a with D = sqrt|diag T| (T_n ~ x^(2n+1), R ~ (kh)^-(n+n'+1))
-        d = np.sqrt(np.abs(np.diagonal(T, axis1=1, axis2=2))) + 1e-300
-        A = np.eye(T.shape[1]) - (T @ R) / d[:, :, None] * d[:, None, :]
-        b = d * np.linalg.solve(A, ((T @ a[..., None])[..., 0] / d)[..., None])[..., 0]
-        e = a + (R @ b[..., None])[..., 0]
-        s_abs += np.sum(-np.real(np.conj(e) * b) - np.abs(b) ** 2, 1)
-        s_drive += np.sum(-np.real(np.conj(a) * b), 1)
-        coeffs[m] = b
+        if -m in cache:   # R(-m) = S R(m) S, S = diag(1 (M), -1 (N)): P_n^-m = (-1)^m P_n^m x const
+            sgn = np.concatenate([np.ones(T.shape[1] // 2), -np.ones(T.shape[1] // 2)])
+            R = cache[-m] * sgn[:, None] * sgn[None, :]
+        else:
+            R = np.empty(T.shape, complex)
+            for i in range(len(wl)):
+                stack_i = [np.broadcast_to(x, wl.shape)[i:i + 1] for x in res.host_stack]
+                R[i:i + 1], e_i = reflection_matrix(stack_i, res.host_thickness_nm, wl[i:i + 1], h, m, n_max,
+                                                    rtol=rtol)
+                err[i] = max(err[i], e_i[0])
+            cache[m] = R
+        b, ab, dr = _solve_order(T, R, a)
+        s_abs, s_drive, coeffs[m] = s_abs + ab, s_drive + dr, b
+        keep = np.tile(orders(m, n_max) <= n_max - check_order, 2)
+        if np.any(keep):  # same R, T and a truncated check_order degrees lower: the order check
+            s_low += _solve_order(T[:, keep][:, :, keep], R[:, keep][:, :, keep], a[:, keep])[1]
     scale = res.n_host / res.n_inc / k_h ** 2
+    with np.errstate(invalid="ignore", divide="ignore"):
+        change = float(np.nanmax(np.abs(s_low / s_abs - 1))) if check_order else float("nan")
     return {"sigma_abs_nm2": scale * s_abs, "sigma_drive_nm2": scale * s_drive,
             "field_factor": np.sum(np.abs(sum(E for _, E in waves)) ** 2, -1),
-            "integration_error": err, "n_max": n_max, "b": coeffs}
+            "integration_error": err, "n_max": n_max, "n_max_change": change, "b": coeffs}
+
+
+def _solve_order(T, R, a):
+    """b = (1 - T R)^-1 T a for one order m; returns b, absorbed and drive terms (before scaling).
+
+    Balanced: D^-1 (1 - T R) D (D^-1 b) = D^-1 T a with D = sqrt|diag T|, since
+    T_n ~ x^(2n+1) and R ~ (k h)^-(n+n'+1) span many decades.
+    """
+    d = np.sqrt(np.abs(np.diagonal(T, axis1=1, axis2=2))) + 1e-300
+    A = np.eye(T.shape[1]) - (T @ R) / d[:, :, None] * d[:, None, :]
+    b = d * np.linalg.solve(A, ((T @ a[..., None])[..., 0] / d)[..., None])[..., 0]
+    e = a + (R @ b[..., None])[..., 0]
+    return b, np.sum(-np.real(np.conj(e) * b) - np.abs(b) ** 2, 1), np.sum(-np.real(np.conj(a) * b), 1)
 
 
 def _patterns(b, m, n_max, cos_t, sin_t):
@@ -619,7 +642,7 @@ def scattered_powers(environment, result, wavelength_nm, *, half_height_nm, n_no
 MAX_ORDER = 40
 
 
-def sphere_on_stack(environment, eps_layers, radii_nm, wavelength_nm, *, n_max=None, conv_rtol=1e-4, rtol=1e-9):
+def sphere_on_stack(environment, eps_layers, radii_nm, wavelength_nm, *, n_max=None, conv_rtol=1e-3, rtol=1e-8):
     """Multipole method for a (layered) sphere in a planar environment, with the order chosen by convergence.
 
     Parameters
@@ -631,9 +654,10 @@ def sphere_on_stack(environment, eps_layers, radii_nm, wavelength_nm, *, n_max=N
         Outer radius of each layer [nm].
     wavelength_nm : (W,) float
     n_max : int, optional, keyword-only
-        Fixed multipole degree; default: start at the Mie truncation of the sphere
-        alone (`nanoabs.mie.n_terms`) and add 4 until sigma_abs changes by less than
-        ``conv_rtol`` (relative, at every wavelength), at most 40.
+        Fixed multipole degree; default: start 8 above the Mie truncation of the
+        sphere alone (`nanoabs.mie.n_terms`) and add 8 until the solution truncated 4
+        degrees lower differs by less than ``conv_rtol`` in sigma_abs (relative, at
+        every wavelength), at most 40.
     conv_rtol : float, keyword-only
     rtol : float, keyword-only
         Accuracy of the Sommerfeld integrals.
@@ -641,9 +665,7 @@ def sphere_on_stack(environment, eps_layers, radii_nm, wavelength_nm, *, n_max=N
     Returns
     -------
     dict
-        As `multipole_response`, plus ``n_max_change``: the largest relative change of
-        sigma_abs in the last step of the order (NaN when ``n_max`` was given), and
-        ``converged`` (bool).
+        As `multipole_response` (with ``n_max_change``), plus ``converged`` (bool).
     """
     from .mie import n_terms
 
@@ -655,14 +677,10 @@ def sphere_on_stack(environment, eps_layers, radii_nm, wavelength_nm, *, n_max=N
         return multipole_response(environment, sphere_blocks(eps_layers, radii_nm, wl, n_h, n), wl,
                                   half_height_nm=half, n_max=n, rtol=rtol)
     if n_max is not None:
-        out = run(int(n_max))
-        return out | {"n_max_change": float("nan"), "converged": True}
-    n = min(int(np.max(n_terms(2 * np.pi * n_h * half / wl))) + 1, MAX_ORDER)
-    out = run(n)
+        return run(int(n_max)) | {"converged": True}
+    n = min(int(np.max(n_terms(2 * np.pi * n_h * half / wl))) + 8, MAX_ORDER)
     while True:
-        n_next = min(n + 4, MAX_ORDER)
-        new = run(n_next)
-        change = float(np.max(np.abs(new["sigma_abs_nm2"] / out["sigma_abs_nm2"] - 1)))
-        if change < conv_rtol or n_next == MAX_ORDER:
-            return new | {"n_max_change": change, "converged": change < conv_rtol}
-        n, out = n_next, new
+        out = run(n)
+        if out["n_max_change"] < conv_rtol or n == MAX_ORDER:
+            return out | {"converged": out["n_max_change"] < conv_rtol}
+        n = min(n + 8, MAX_ORDER)

@@ -74,3 +74,47 @@ def test_describe_states_reference_and_geometry():
     assert "incidence medium" in d["sigma_reference"] and d["incidence"] == "back"
     assert buried("Si", depth_nm=60).describe()["depth_nm"] == 60.0
     assert homogeneous("water").describe()["kind"] == "homogeneous"
+
+
+def test_spectrum_with_index_matched_substrate_equals_homogeneous_mie():
+    # Recipe check (contributor guide, "How to add an environment"): substrate = superstrate = 1.33
+    # through nanoabs.spectrum must give the homogeneous Mie result of spectrum(medium=1.33);
+    # tolerance 1e-8 (issue requirement).
+    import nanoabs
+
+    wl = np.linspace(450.0, 750.0, 7)
+    sp = nanoabs.Sphere("Au", 30.0)
+    ref = nanoabs.spectrum(sp, wl, medium=1.33)
+    s = nanoabs.spectrum(sp, wl, environment=on_substrate(1.33, superstrate=1.33, gap_nm=2.0))
+    np.testing.assert_allclose(s.sigma_abs_m2, ref.sigma_abs_m2, rtol=1e-8)
+    np.testing.assert_allclose(s.sigma_ext_m2, ref.sigma_ext_m2, rtol=1e-8)
+    assert s.metadata["method"] == "mie" and "multipole" in s.metadata["environment_method"]
+    assert s.metadata["multipole_converged"] and "incidence medium" in s.metadata["sigma_reference"]
+    np.testing.assert_allclose(s.metadata["field_factor"], 1.0, rtol=1e-12)
+
+
+def test_spectrum_dipole_methods_on_substrate_and_rod_orientations():
+    # Corrected dipole (Sommerfeld) and static dipole (image) both accept a substrate; a gold rod
+    # lying flat on glass lit from the front: "random" in-plane orientation is the mean of "long"
+    # and "short" (exact for an in-plane isotropic reflected field, see environments._lab_tensors);
+    # tolerance 1e-12.
+    import nanoabs
+
+    wl = np.linspace(600.0, 1000.0, 5)
+    rod = nanoabs.spheroid("Au", length_nm=60.0, diameter_nm=20.0)
+    env = on_substrate("SiO2", gap_nm=1.0)
+    long_ = nanoabs.spectrum(rod, wl, environment=env, polarization="long").sigma_abs_m2
+    short = nanoabs.spectrum(rod, wl, environment=env, polarization="short").sigma_abs_m2
+    rnd = nanoabs.spectrum(rod, wl, environment=env, polarization="random")
+    np.testing.assert_allclose(rnd.sigma_abs_m2, 0.5 * (long_ + short), rtol=1e-12)
+    assert rnd.metadata["method"] == "mlwa" and np.all(long_ > short)
+    qs = nanoabs.spectrum(rod, wl, environment=env, polarization="long", method="quasistatic")
+    assert "image" in qs.metadata["environment_method"] and np.all(qs.sigma_abs_m2 > 0)
+
+
+def test_array_of_sizes_refused_on_substrate():
+    import nanoabs
+
+    with pytest.raises(NanoabsError, match="one size per call"):
+        nanoabs.spectrum(nanoabs.Sphere("Au", np.array([10.0, 20.0])), np.array([500.0, 600.0]),
+                         environment=on_substrate("Si"))
