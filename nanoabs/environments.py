@@ -26,9 +26,9 @@ from typing import NamedTuple
 import numpy as np
 
 from ._errors import NanoabsError, check_choice, check_positive, check_range
-from .stack import plane_waves
+from .stack import plane_waves, stack_RT
 
-__all__ = ["OnSubstrate", "Buried", "homogeneous", "on_substrate", "buried", "Resolved"]
+__all__ = ["OnSubstrate", "Buried", "homogeneous", "on_substrate", "buried", "Resolved", "sparse_layer_absorptance"]
 
 INCIDENCE = ("front", "back")
 SIGMA_REFERENCE = ("power absorbed in the particle / irradiance of the incident plane wave in the "
@@ -93,6 +93,12 @@ class _Planar:
     def drive_field(self, wavelength_nm, half_height_nm=0.0, res=None):
         """E without the particle at the particle centre per unit incident amplitude, (W, 3)."""
         return sum(E for _, E in self.drive_waves(wavelength_nm, half_height_nm, res))
+
+    def bare_RT(self, wavelength_nm):
+        """Reflectance R and transmittance T (W,) of the bare stack for the incident wave (`stack.stack_RT`)."""
+        wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+        res = self.resolve(wl)
+        return stack_RT(res.light_stack, res.light_thickness_nm, wl, angle_deg=self.angle_deg, pol=self.polarization)
 
     def drive_waves(self, wavelength_nm, half_height_nm=0.0, res=None):
         """Plane waves (direction, amplitude at the centre) making up the drive field (`stack.plane_waves`)."""
@@ -330,3 +336,35 @@ def apply_planar(env, solver, problem):
                  "sommerfeld_error": float(np.max(out["integration_error"]))}
     meta["field_factor"] = np.asarray(out["field_factor"]).tolist()
     return Response(s_abs, s_ext - s_abs, s_ext, metadata=meta)
+
+
+def sparse_layer_absorptance(sigma_abs_nm2, density_per_um2, *, sigma_ext_nm2=None):
+    """Fraction of the incident power absorbed by a sparse layer of particles on the surface.
+
+    Parameters
+    ----------
+    sigma_abs_nm2 : array_like
+        Absorption cross-section of one particle in the environment [nm^2], referred to
+        the irradiance of the incident wave in the incidence medium (as returned here).
+    density_per_um2 : float
+        Areal density of particles [um^-2].
+    sigma_ext_nm2 : array_like, optional, keyword-only
+        Extinction in the same reference; used only for the sparseness check.
+
+    Returns
+    -------
+    A : ndarray
+        A = N sigma_abs: independent particles, each driven by the field of the bare stack
+        (standing wave or transmitted wave, substrate reflection included through the
+        cross-section's reference). Valid while N sigma_ext << 1 and the particles are far
+        apart compared with their size (no inter-particle coupling, no change of the
+        specular beams by the layer): the sparse limit (e.g. Bohren & Huffman 1983,
+        Sec. 3.4, single scattering; from memory).
+    sparse : bool
+        True when N sigma_ext (or N sigma_abs) <= 0.1 everywhere; beyond it A is an
+        overestimate and should not be used.
+    """
+    n = float(check_positive("density_per_um2", density_per_um2, unit="um^-2")) * 1e-6   # nm^-2
+    a = n * np.asarray(sigma_abs_nm2, float)
+    ext = n * np.asarray(sigma_ext_nm2 if sigma_ext_nm2 is not None else sigma_abs_nm2, float)
+    return a, bool(np.all(ext <= 0.1))

@@ -118,3 +118,20 @@ def test_array_of_sizes_refused_on_substrate():
     with pytest.raises(NanoabsError, match="one size per call"):
         nanoabs.spectrum(nanoabs.Sphere("Au", np.array([10.0, 20.0])), np.array([500.0, 600.0]),
                          environment=on_substrate("Si"))
+
+
+def test_bare_stack_reflectance_and_sparse_layer():
+    # Air/Si at normal incidence: R = |(1 - n)/(1 + n)|^2 (Born & Wolf 1999, eq. 1.5.20) ~ 0.3 in
+    # the near infrared; the sparse layer absorptance is N sigma (definition); tolerance 1e-12.
+    from nanoabs import material
+    from nanoabs.environments import sparse_layer_absorptance
+
+    wl = np.array([1300.0])
+    n = material("Si").refractive_index(wl)
+    R, T = on_substrate("Si").bare_RT(wl)
+    np.testing.assert_allclose(R, np.abs((1 - n) / (1 + n)) ** 2, rtol=1e-12)
+    np.testing.assert_allclose(R + T, 1.0, rtol=1e-12)
+    A, sparse = sparse_layer_absorptance(np.array([5000.0]), 5.0)
+    np.testing.assert_allclose(A, 5.0 * 1e-6 * 5000.0, rtol=1e-12)
+    assert sparse
+    assert not sparse_layer_absorptance(np.array([5000.0]), 100.0, sigma_ext_nm2=np.array([3e4]))[1]
