@@ -43,7 +43,7 @@ from functools import lru_cache
 import numpy as np
 
 from ._errors import NanoabsError
-from .stack import stack_coefficients
+from .stack import kz, stack_coefficients
 
 __all__ = ["sommerfeld", "reflected_dyadic", "image_dyadic", "dressed_dipole", "dipole_cross_sections"]
 
@@ -124,16 +124,20 @@ def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9, matrix=False):
                        "allowed: a smooth stack, particle height > 0.01 nm")
 
 
+def _host_reflection(e, thickness_nm, k0, k_h, s):
+    """r_s, r_p of the stack and u_z = k_z/k_h (Im >= 0) at s = k_par/k_h, shape (W, K)."""
+    kp = s * k_h[:, None]
+    rs, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "s")
+    rp, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "p")
+    return rs, rp, kz(1.0, 1.0, s)
+
+
 def _green_integrand(eps, thickness_nm, k0, k_h, h_nm):
     """Integrand of Gamma/k_h^3 in s = k_par/k_h: components (E_par, E_perp, M_par, M_perp)."""
     e = [np.asarray(x, complex)[:, None] for x in eps]
 
     def f(s, w):
-        kp = s * k_h[:, None]
-        rs, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "s")
-        rp, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "p")
-        uz = np.sqrt(1 - s ** 2 + 0j)
-        uz = np.where(uz.imag < 0, -uz, uz)
+        rs, rp, uz = _host_reflection(e, thickness_nm, k0, k_h, s)
         ph = np.exp(2j * uz * k_h[:, None] * h_nm) / uz * 1j
         par_e = ph * s * (rs - uz ** 2 * rp) / (8 * np.pi)
         par_m = ph * s * (rp - uz ** 2 * rs) / (8 * np.pi)
@@ -369,11 +373,7 @@ def _coupling_integrand(eps, thickness_nm, k0, k_h, h_nm, m, n_max):
     e = [np.asarray(x, complex)[:, None] for x in eps]
 
     def f(s, w):
-        kp = s * k_h[:, None]
-        rs, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "s")
-        rp, _ = stack_coefficients(e, thickness_nm, k0[:, None], kp, "p")
-        uz = np.sqrt(1 - s ** 2 + 0j)
-        uz = np.where(uz.imag < 0, -uz, uz)
+        rs, rp, uz = _host_reflection(e, thickness_nm, k0, k_h, s)
         pi_d, tau_d = angular(-uz, s, m, n_max)
         pi_u, tau_u = angular(uz, s, m, n_max)
         half = np.exp(1j * uz * k_h[:, None] * h_nm)          # split between source and receiver:
