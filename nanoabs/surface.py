@@ -499,7 +499,8 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
         the exciting coefficients, b = T e (Bobbert & Vlieger 1986, eq. 3.x; the power
         flux of `nanoabs.vswf`); ``sigma_drive_nm2`` (W,): work of the drive field,
         (n_h/n_inc) k_h^-2 sum(-Re(conj(a) b)), = absorbed + all scattered power;
-        ``field_factor``; ``integration_error`` (W,); ``n_max``; ``b`` (dict m -> (W, 2nn)).
+        ``field_factor``; ``integration_error`` (W,); ``n_max``; ``b`` and ``e`` (dict
+        m -> (W, 2nn)): outgoing and exciting (drive + reflected) coefficients.
 
     Notes
     -----
@@ -515,7 +516,7 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
     waves = environment.drive_waves(wl, half_height_nm, res)
     k_h = 2 * np.pi * res.n_host / wl
     s_abs, s_drive, s_low, err = (np.zeros(wl.shape) for _ in range(4))
-    coeffs, cache = {}, {}
+    coeffs, exciting, cache = {}, {}, {}
     for m in _azimuthal_orders(waves, n_max):
         a = sum(np.concatenate(plane_wave_coefficients(k, E, m, n_max), 1) for k, E in waves)
         T = tmatrix(m)
@@ -532,6 +533,7 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
             cache[m] = R
         b, ab, dr = _solve_order(T, R, a)
         s_abs, s_drive, coeffs[m] = s_abs + ab, s_drive + dr, b
+        exciting[m] = a + (R @ b[..., None])[..., 0]
         keep = np.tile(orders(m, n_max) <= n_max - check_order, 2)
         if np.any(keep):  # same R, T and a truncated check_order degrees lower: the order check
             s_low += _solve_order(T[:, keep][:, :, keep], R[:, keep][:, :, keep], a[:, keep])[1]
@@ -540,7 +542,7 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
         change = float(np.nanmax(np.abs(s_low / s_abs - 1))) if check_order else float("nan")
     return {"sigma_abs_nm2": scale * s_abs, "sigma_drive_nm2": scale * s_drive,
             "field_factor": np.sum(np.abs(sum(E for _, E in waves)) ** 2, -1),
-            "integration_error": err, "n_max": n_max, "n_max_change": change, "b": coeffs}
+            "integration_error": err, "n_max": n_max, "n_max_change": change, "b": coeffs, "e": exciting}
 
 
 def _solve_order(T, R, a):
@@ -684,3 +686,51 @@ def sphere_on_stack(environment, eps_layers, radii_nm, wavelength_nm, *, n_max=N
         if out["n_max_change"] < conv_rtol or n == MAX_ORDER:
             return out | {"converged": out["n_max_change"] < conv_rtol}
         n = min(n + 8, MAX_ORDER)
+
+
+def sphere_absorption_profile(environment, result, eps_layers, radii_nm, wavelength_nm, rho):
+    """Angle-averaged absorbed power density inside a sphere in a planar environment.
+
+    Parameters
+    ----------
+    environment : OnSubstrate or Buried
+    result : dict
+        From `sphere_on_stack` / `multipole_response` for the same sphere (its ``e``).
+    eps_layers, radii_nm, wavelength_nm :
+        As given to `sphere_on_stack`.
+    rho : (R,) float
+        Radial positions k_h r [1] (k_h in the host).
+
+    Returns
+    -------
+    q : (W, R) ndarray
+        Dimensionless density with p(r) = I_inc k_h q(k_h r) [W m^-3] for the irradiance
+        I_inc of the incident wave in the incidence medium, so that
+        sigma_abs / (pi a^2) = (1/(pi x^2)) int q 4 pi rho^2 d rho.
+
+    Notes
+    -----
+    The internal field of a sphere is fixed order by order by its exciting field; the
+    angle-averaged |E|^2 keeps orders, TE and TM apart (orthogonality of the vector
+    spherical harmonics, Jackson 1999, eq. 9.120, from memory). So the plane-wave profile
+    of `nanoabs.mie.absorption_profile` with each order weighted by
+    sum_m |e_nm|^2 / (2 pi (2n + 1)) (`nanoabs.vswf` normalisation, ``order_weights``)
+    and the factor n_h / n_inc of the irradiance reference gives the profile here.
+    """
+    from .mie import absorption_profile
+
+    wl = np.atleast_1d(np.asarray(wavelength_nm, float))
+    res = environment.resolve(wl)
+    n_max = result["n_max"]
+    n = np.arange(1, n_max + 1)
+    w = np.zeros((2, n_max, len(wl)))
+    for m, e in result["e"].items():
+        deg = np.arange(max(1, abs(m)), n_max + 1)
+        half = len(deg)
+        w[0, deg - 1] += (np.abs(e[:, :half]) ** 2).T
+        w[1, deg - 1] += (np.abs(e[:, half:]) ** 2).T
+    w /= (2 * np.pi * (2 * n + 1))[None, :, None]
+    k_h = 2 * np.pi * res.n_host / wl
+    m_rel = np.stack([np.sqrt(np.asarray(x, complex) + 0 * wl) / res.n_host for x in eps_layers])
+    x = np.stack([k_h * float(r) for r in radii_nm])
+    return (res.n_host / res.n_inc)[:, None] * absorption_profile(m_rel, x, rho, order_weights=w)

@@ -14,7 +14,7 @@ import pytest
 from nanoabs._errors import NanoabsError
 from nanoabs.stack import drive_field, kz, stack_coefficients, stack_RT
 
-tmm = pytest.importorskip("tmm")
+import tmm  # noqa: E402  (test extra: a general-purpose thin-film code, tests only)
 
 WL = np.array([400.0, 633.0, 1000.0, 1550.0])
 
