@@ -48,6 +48,7 @@ from .stack import kz, stack_coefficients
 __all__ = ["sommerfeld", "reflected_dyadic", "image_dyadic", "dressed_dipole", "dipole_cross_sections"]
 
 MAX_DOUBLINGS = 7
+WAVELENGTH_CHUNK = 16   # wavelengths integrated together (arrays of WAVELENGTH_CHUNK x nodes x 2 n_max)
 
 
 @lru_cache(maxsize=64)
@@ -525,11 +526,11 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
             R = cache[-m] * sgn[:, None] * sgn[None, :]
         else:
             R = np.empty(T.shape, complex)
-            for i in range(len(wl)):
-                stack_i = [np.broadcast_to(x, wl.shape)[i:i + 1] for x in res.host_stack]
-                R[i:i + 1], e_i = reflection_matrix(stack_i, res.host_thickness_nm, wl[i:i + 1], h, m, n_max,
-                                                    rtol=rtol)
-                err[i] = max(err[i], e_i[0])
+            for i in range(0, len(wl), WAVELENGTH_CHUNK):
+                sl = slice(i, i + WAVELENGTH_CHUNK)
+                stack_i = [np.broadcast_to(x, wl.shape)[sl] for x in res.host_stack]
+                R[sl], e_i = reflection_matrix(stack_i, res.host_thickness_nm, wl[sl], h, m, n_max, rtol=rtol)
+                err[sl] = np.maximum(err[sl], e_i)
             cache[m] = R
         b, ab, dr = _solve_order(T, R, a)
         s_abs, s_drive, coeffs[m] = s_abs + ab, s_drive + dr, b
