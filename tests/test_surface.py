@@ -198,3 +198,16 @@ def test_cross_sections_homogeneous_formula():
     s_abs, s_rad = dipole_cross_sections(alpha, q, np.zeros((1, 3, 3)), np.array([k]), np.ones(1), np.ones(1))
     assert abs(s_abs[0] - (k * 40 - k ** 4 * abs(100 + 40j) ** 2 / (6 * np.pi))) < 1e-13
     assert abs(s_rad[0] - k ** 4 * abs(100 + 40j) ** 2 / (6 * np.pi)) < 1e-13
+
+
+def test_sommerfeld_accuracy_is_reported_and_tightening_it_changes_nothing_beyond_it():
+    # The doubling test reports the achieved accuracy (relative to k^3/6pi + |Gamma|); a run at
+    # rtol = 1e-5 must agree with one at 1e-11 to its own reported error (times a safety factor 10).
+    wl = np.array([450.0, 800.0])
+    stack = [np.ones(2) + 0j, np.full(2, 2.1 + 0j), np.full(2, 15.0 + 0.2j)]
+    loose, _, e_loose = reflected_dyadic(stack, [20.0], wl, 12.0, rtol=1e-5)
+    tight, _, e_tight = reflected_dyadic(stack, [20.0], wl, 12.0, rtol=1e-11)
+    assert np.all(e_loose < 1e-5) and np.all(e_tight < 1e-11)
+    k = 2 * np.pi / wl
+    scale = k ** 3 / (6 * np.pi) + np.max(np.abs(tight), axis=(1, 2))
+    assert np.all(np.max(np.abs(loose - tight), axis=(1, 2)) < 10 * np.maximum(e_loose, 1e-12) * scale)
