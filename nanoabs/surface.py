@@ -239,8 +239,8 @@ def image_dyadic(eps, thickness_nm, height_nm, *, n_nodes=64):
 def dressed_dipole(alpha, gamma, e_drive):
     """Dipole q = p/(eps0 eps_h) [nm^3] of a particle driven by e_drive and its own reflected field.
 
-    q = (1 - alpha Gamma)^-1 alpha E_drive (Novotny & Hecht 2012, eq. 8.xx for coupled
-    dipoles; Wind et al. 1987, eq. 3.1, from memory).
+    q = (1 - alpha Gamma)^-1 alpha E_drive: the dipole in the field of its own image
+    (Wind, Vlieger & Bedeaux 1987, Sec. 3; Novotny & Hecht 2012, ch. 10; from memory).
 
     Parameters
     ----------
@@ -427,7 +427,7 @@ def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, 
     Notes
     -----
     Plane-wave (angular-spectrum) route (Bobbert & Vlieger 1986, Sec. 3; Egel, Kettlitz
-    & Lemmer 2016, JOSA A 33, 698, eqs. 14-20, from memory): the outgoing wave is
+    & Lemmer 2016, J. Opt. Soc. Am. A 33, 698, Sec. 2, from memory): the outgoing wave is
     written as downward plane waves (Weyl identity, far-field pattern F(k_hat):
     (i/2pi) int F e^{ik.r} / k_z d^2k_par), each is reflected with r_s or r_p of the
     stack and the phase exp(2 i k_z h), and expanded in regular waves about the centre
@@ -497,7 +497,7 @@ def multipole_response(environment, tmatrix, wavelength_nm, *, half_height_nm, n
     -------
     dict
         ``sigma_abs_nm2`` (W,): (n_h/n_inc) k_h^-2 sum(-Re(conj(e) b) - |b|^2), e = a + R b
-        the exciting coefficients, b = T e (Bobbert & Vlieger 1986, eq. 3.x; the power
+        the exciting coefficients, b = T e (Bobbert & Vlieger 1986, Sec. 3, from memory; the power
         flux of `nanoabs.vswf`); ``sigma_drive_nm2`` (W,): work of the drive field,
         (n_h/n_inc) k_h^-2 sum(-Re(conj(a) b)), = absorbed + all scattered power;
         ``field_factor``; ``integration_error`` (W,); ``n_max``; ``b`` and ``e`` (dict
@@ -594,7 +594,7 @@ def scattered_powers(environment, result, wavelength_nm, *, half_height_nm, n_no
         when the far medium absorbs. Power per plane wave n |E|^2 cos(theta)/(2 Z0)
         (Born & Wolf 1999, Sec. 1.5.3); the angular spectrum of an outgoing wave is
         its far-field pattern F as (i/2 pi) F e^{ik.r}/k_z (Weyl identity, Novotny &
-        Hecht 2012, eq. 2.xx, from memory).
+        Hecht 2012, ch. 3, angular spectrum representation, from memory).
     """
     wl = np.atleast_1d(np.asarray(wavelength_nm, float))
     res = environment.resolve(wl)

@@ -174,7 +174,7 @@ def test_far_from_interface_tends_to_free_particle_times_field_factor():
 
 def test_energy_identity_and_positivity_on_silicon():
     # Work done by the drive field = absorbed + emitted power (Poynting's theorem for the dipole,
-    # Novotny & Hecht 2012, eq. 8.xx): sigma_drive = (k0 n_h^2/n_inc) Im(E_d^* . q); tolerance 1e-10.
+    # Novotny & Hecht 2012, ch. 8, from memory): sigma_drive = (k0 n_h^2/n_inc) Im(E_d^* . q); tolerance 1e-10.
     wl = np.linspace(450.0, 800.0, 8)
     sp = nanoabs.Sphere("Au", 30.0)
     for env in (on_substrate("Si", gap_nm=1.0), on_substrate("Si", gap_nm=1.0, incidence="back", angle_deg=0.0)):
