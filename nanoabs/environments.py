@@ -334,6 +334,15 @@ def apply_planar(env, solver, problem):
                  "multipole_order": out["n_max"], "multipole_order_change": out["n_max_change"],
                  "multipole_converged": out["converged"],
                  "sommerfeld_error": float(np.max(out["integration_error"]))}
+        if not out["converged"]:
+            from .validity import Caution, emit
+
+            c = Caution("multipole-order", f"multipole order {out['n_max']} (the cap) still changes sigma_abs by "
+                        f"{out['n_max_change']:.1g} when 4 degrees lower: a small gap to a strongly reflecting "
+                        "substrate; treat the result as approximate or increase the gap",
+                        (float(wl.min()), float(wl.max())))
+            meta["environment_cautions"] = [c.to_dict()]
+            emit([c], stacklevel=5)
     meta["field_factor"] = np.asarray(out["field_factor"]).tolist()
     return Response(s_abs, s_ext - s_abs, s_ext, metadata=meta)
 

@@ -135,3 +135,16 @@ def test_bare_stack_reflectance_and_sparse_layer():
     np.testing.assert_allclose(A, 5.0 * 1e-6 * 5000.0, rtol=1e-12)
     assert sparse
     assert not sparse_layer_absorptance(np.array([5000.0]), 100.0, sigma_ext_nm2=np.array([3e4]))[1]
+
+
+def test_touching_sphere_warns_when_the_order_cap_is_reached():
+    # A sphere touching Si (gap 0): its image touches it too, the multipole series converges
+    # only algebraically (Bobbert & Vlieger 1986, Sec. 5, from memory), so the order cap is
+    # reached and a caution is issued and recorded.
+    import nanoabs
+    from nanoabs.validity import NanoabsWarning
+
+    with pytest.warns(NanoabsWarning, match="multipole order"):
+        s = nanoabs.spectrum(nanoabs.Sphere("Ag", 40.0), np.array([370.0]), environment=on_substrate("Si"))
+    assert not s.metadata["multipole_converged"]
+    assert s.metadata["environment_cautions"][0]["code"] == "multipole-order"
