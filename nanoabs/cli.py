@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import sys
 import warnings
+from pathlib import Path
 
 import numpy as np
 
@@ -28,28 +29,66 @@ class _Parser(argparse.ArgumentParser):
         raise NanoabsError(f"{self.prog}: {message}")
 
 
+#: Most wavelengths (or values) one argument may expand to: bounds memory and work.
+MAX_POINTS = 200_000
+
+
 def parse_range(text: str, name: str = "--wl", *, need_step: bool = True):
-    """Parse 'START:STOP:STEP' (or 'START:STOP' when need_step is False) in nm."""
-    parts = str(text).split(":")
+    """Parse 'START:STOP:STEP' in nm (inclusive of STOP when it lies on the grid to within
+    1e-9 of a step), a list 'V1,V2,...' (strictly increasing, e.g. '1310,1550'), or, with
+    need_step False, 'START:STOP' (returned as a pair)."""
+    t = str(text).strip()
+    if need_step and ":" not in t:
+        vals = _parse_list(t, name, increasing=True)
+        if np.any(vals <= 0):
+            raise NanoabsError(f"{name} = {_short(t)}: every value must be > 0 nm")
+        return vals
+    parts = t.split(":")
     want = 3 if need_step else 2
     if len(parts) != want:
-        form = "START:STOP:STEP" if need_step else "START:STOP"
-        raise NanoabsError(f"{name} = {text!r}: expected {form} in nm, e.g. "
+        form = "START:STOP:STEP or a list V1,V2,..." if need_step else "START:STOP"
+        raise NanoabsError(f"{name} = {_short(t)}: expected {form} in nm, e.g. "
                            f"{'400:900:1' if need_step else '400:1000'}")
+    vals = _parse_list(",".join(parts), name, increasing=False, shown=t)
+    if vals[0] <= 0 or vals[1] <= vals[0]:
+        raise NanoabsError(f"{name} = {_short(t)}: need 0 < START < STOP")
+    if not need_step:
+        return float(vals[0]), float(vals[1])
+    start, stop, step = (float(v) for v in vals)
+    span = (stop - start) / step if step > 0 else -1.0
+    if span > MAX_POINTS:
+        raise NanoabsError(f"{name} = {_short(t)}: {span + 1:.3g} points; at most {MAX_POINTS} allowed")
+    # a span a rounding error short of a whole number of steps still includes STOP
+    n = int(np.floor(span + 1e-9)) + 1 if span > 0 else 0
+    if n < 2:
+        raise NanoabsError(f"{name} = {_short(t)}: STEP must be > 0 and no larger than STOP - START")
+    out = start + step * np.arange(n)
+    if abs(out[-1] - stop) <= 1e-9 * step:
+        out[-1] = stop  # exactly STOP, not STOP minus a rounding error
+    return out
+
+
+def _short(text) -> str:
+    t = str(text)
+    return repr(t if len(t) <= 40 else t[:37] + "...")
+
+
+def _parse_list(text: str, name: str, *, increasing: bool, shown: str | None = None) -> np.ndarray:
+    """'V1,V2,...' -> finite float array (at most MAX_POINTS values); ``shown`` is the text
+    quoted in messages (default ``text``)."""
+    items = str(text).split(",")
+    text = text if shown is None else shown
+    if len(items) > MAX_POINTS:
+        raise NanoabsError(f"{name}: {len(items)} values; at most {MAX_POINTS} allowed")
     try:
-        vals = [float(p) for p in parts]
+        vals = np.array([float(v) for v in items])
     except ValueError:
-        raise NanoabsError(f"{name} = {text!r}: every field must be a number") from None
-    if not all(np.isfinite(vals)) or vals[0] <= 0 or vals[1] <= vals[0]:
-        raise NanoabsError(f"{name} = {text!r}: need 0 < START < STOP")
-    if need_step:
-        if vals[2] <= 0 or vals[2] > vals[1] - vals[0]:
-            raise NanoabsError(f"{name} = {text!r}: STEP must be > 0 and no larger than STOP - START")
-        n = int(np.floor((vals[1] - vals[0]) / vals[2] + 1e-9)) + 1
-        if n > 200_000:
-            raise NanoabsError(f"{name} = {text!r}: {n} points; at most 200000 allowed")
-        return vals[0] + vals[2] * np.arange(n)
-    return vals[0], vals[1]
+        raise NanoabsError(f"{name} = {_short(text)}: every field must be a number") from None
+    if not np.all(np.isfinite(vals)):
+        raise NanoabsError(f"{name} = {_short(text)}: values must be finite")
+    if increasing and np.any(np.diff(vals) <= 0):
+        raise NanoabsError(f"{name} = {_short(text)}: values must be strictly increasing")
+    return vals
 
 
 # -- materials -----------------------------------------------------------------
@@ -153,6 +192,15 @@ def _material_arg(text, option):
 
 
 def _particle_from_args(args):
+    with warnings.catch_warnings(record=True) as caught:  # plausibility warnings of the constructors
+        warnings.simplefilter("always", NanoabsWarning)
+        particle = _build_particle(args)
+    for w in caught:
+        print(f"warning: {w.message}", file=sys.stderr)
+    return particle
+
+
+def _build_particle(args):
     from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid
 
     shape = args.shape
@@ -311,31 +359,54 @@ def _illumination_from_args(args):
 def _cmd_hot_carriers(args) -> int:
     from .detector import hot_carrier_estimate
     from .export import check_writable
-    from .hotcarriers import SAFETY_CAUTION, schottky_barrier
+    from .hotcarriers import SAFETY_CAUTION
 
     if args.output:
         check_writable(args.output, force=args.force)
+    if args.plot and Path(args.plot).exists() and not args.force:
+        raise NanoabsError(f"--plot {args.plot!r} exists; give --force to overwrite")
     if (args.barrier is None) == (args.schottky is None):
-        raise NanoabsError("give exactly one of --barrier EV or --schottky METAL/SEMICONDUCTOR (e.g. Au/Si)")
-    if args.schottky is not None:
-        barrier, barrier_src = schottky_barrier(args.schottky)
-    else:
-        barrier, barrier_src = args.barrier, "user value"
+        raise NanoabsError("give exactly one of --barrier EV or --schottky METAL/SEMICONDUCTOR (e.g. Au/Si, Au/p-Si)")
+    if args.barrier is not None and args.area is not None:
+        raise NanoabsError("--area needs --schottky (dark current uses the semiconductor's Richardson constant)")
     illum = _illumination_from_args(args)
     particle, spec = _spectrum_from_args(args)
-    res = hot_carrier_estimate(spec, particle, illum, barrier_eV=barrier,
-                               fermi_energy_eV=args.fermi_energy,
-                               attenuation_length_nm=args.attenuation_length,
-                               yield_model=args.yield_model, momentum_factor=args.momentum_factor,
-                               contact_fraction=args.contact_fraction, density_per_um2=args.density,
+    res = hot_carrier_estimate(spec, particle, illum, barrier_eV=args.barrier, contact=args.schottky,
+                               carrier=args.carrier if args.barrier is not None else None,
+                               fermi_energy_eV=args.fermi_energy, attenuation_length_nm=args.attenuation_length,
+                               yield_model=args.yield_model, geometry=args.geometry, generation=args.generation,
+                               momentum_factor=args.momentum_factor, contact_fraction=args.contact_fraction,
+                               density_per_um2=args.density, area_um2=args.area, temperature_K=args.temperature,
+                               bias_V=args.bias, doping_cm3=args.doping, load_ohm=args.load,
                                thermal_conductivity_W_mK=args.thermal_conductivity)
-    res.metadata["schottky"]["barrier_source"] = barrier_src
     _print_warnings(res.metadata)
-    t = res.totals
-    print(f"barrier {float(barrier):.3g} eV ({barrier_src}); illumination: {illum.description}")
+    _print_hot_carrier_summary(res, illum)
+    print("caution: " + " ".join(SAFETY_CAUTION.split()))
+    if args.output:
+        res.write(args.output, force=args.force)
+        print(f"wrote {args.output}")
+    if args.plot:
+        from .plotting import plot_detector, save_figure
+
+        save_figure(plot_detector(res).figure, args.plot, force=args.force)
+        print(f"wrote {args.plot}")
+    return 0
+
+
+def _print_hot_carrier_summary(res, illum):
+    t, sch = res.totals, res.metadata["schottky"]
+    carrier = sch["carrier"]
+    name = sch.get("contact", "barrier")
+    print(f"{name}: {sch['barrier_eV']:.3g} eV for {carrier}s ({sch['barrier_source']}); cut-off "
+          f"{t['cutoff_wavelength_nm']:.0f} nm; illumination: {illum.description}")
     if "absorbed_power_W" in t:
         print(f"band-integrated absorbed power per particle: {t['absorbed_power_W']:.4g} W; "
               f"photocurrent per particle: {t['photocurrent_A']:.4g} A")
+        rates = {k: t.get(f"injected_{carrier}_rate_{k}_per_s", np.nan)
+                 for k in ("intraband_bulk", "intraband_surface", "interband")}
+        chans = ", ".join(f"{k} {v:.3g}" for k, v in rates.items() if np.isfinite(v))
+        if chans:
+            print(f"injected {carrier}s per second by channel: {chans}")
     else:
         print(f"peak absorbed power per particle: {t['peak_absorbed_power_W']:.4g} W at "
               f"{t['peak_absorbed_power_wavelength_nm']:g} nm; peak photocurrent {t['peak_photocurrent_A']:.4g} A")
@@ -344,17 +415,19 @@ def _cmd_hot_carriers(args) -> int:
     if "peak_responsivity_A_W" in t:
         print(f"responsivity at peak: {t['peak_responsivity_A_W']:.4g} A/W at "
               f"{t['peak_responsivity_wavelength_nm']:g} nm")
+    if "dark_current_A" in t:
+        print(f"dark current {t['dark_current_A']:.4g} A (saturation current {t['saturation_current_A']:.4g} A) "
+              f"at {sch['bias_V']:g} V, {sch['temperature_K']:g} K")
+    if "peak_specific_detectivity_Jones" in t:
+        print(f"peak D* {t['peak_specific_detectivity_Jones']:.4g} Jones at "
+              f"{t['peak_specific_detectivity_wavelength_nm']:g} nm (NEP "
+              f"{t['noise_equivalent_power_at_peak_W_Hz05']:.4g} W/Hz^0.5)")
     if "temperature_rise_K" in t:
         print(f"steady-state temperature rise of one particle: {t['temperature_rise_K']:.3g} K "
               f"({t['temperature_rise_basis']})")
     else:
         print("temperature rise: not estimated (no thermal conductivity for this medium; "
               "give --thermal-conductivity)")
-    print("caution: " + " ".join(SAFETY_CAUTION.split()))
-    if args.output:
-        res.write(args.output, force=args.force)
-        print(f"wrote {args.output}")
-    return 0
 
 
 def _add_particle_options(p):
@@ -371,7 +444,8 @@ def _add_particle_options(p):
     g.add_argument("--semi-axes", help="ellipsoid: A,B,C semi-axes along x,y,z [nm]")
     g.add_argument("--polarization", help="spheroid: long|short|random; ellipsoid: x|y|z|random")
     g.add_argument("--medium", default="water", help="medium name or refractive index (default water)")
-    g.add_argument("--wl", default="400:1000:2", help="wavelengths START:STOP:STEP [nm] (default 400:1000:2)")
+    g.add_argument("--wl", default="400:1000:2",
+                   help="wavelengths START:STOP:STEP or a list V1,V2,... [nm] (default 400:1000:2)")
     g.add_argument("--method", default="auto", help="auto|mie|miepython|quasistatic|mlwa")
     g.add_argument("--no-surface-damping", action="store_true", help="turn the size correction off")
     g.add_argument("--damping-a", type=float, default=1.0, help="surface-scattering parameter A (default 1)")
@@ -385,25 +459,42 @@ def _register_particle_commands(sub):
     s.add_argument("--plot", help="save a plot of the cross-sections (.png or .svg)")
     s.set_defaults(func=_cmd_spectrum)
 
-    h = sub.add_parser("hot-carriers", help="absorbed power, hot-electron injection and photocurrent")
+    h = sub.add_parser("hot-carriers", help="absorbed power, hot-carrier injection, photocurrent, noise")
     _add_particle_options(h)
     g = h.add_argument_group("illumination")
-    g.add_argument("--irradiance", type=float, help="monochromatic irradiance [W/m^2] at every wavelength")
+    g.add_argument("--irradiance", type=_irradiance_arg,
+                   help="monochromatic irradiance at every wavelength: W/m^2, or with a unit (1mW/cm2)")
     g.add_argument("--laser-power", type=float, help="laser power [W] (Gaussian beam, peak irradiance)")
     g.add_argument("--beam-radius", type=float, help="1/e^2 intensity radius of the beam [nm]")
     g.add_argument("--spectrum", help="am1.5g | am1.5d | am0 | blackbody:T_K | flat:W_m2_nm | FILE.csv")
     g.add_argument("--total-irradiance", type=float, help="blackbody: scale to this total [W/m^2]")
     g.add_argument("--band", help="keep only START:STOP [nm] of the illumination (band filter)")
     d = h.add_argument_group("detector")
-    d.add_argument("--barrier", type=float, help="Schottky barrier height [eV]")
-    d.add_argument("--schottky", help="tabulated metal/semiconductor pair, e.g. Au/Si")
+    d.add_argument("--barrier", type=float, help="Schottky barrier height [eV], used as given")
+    d.add_argument("--carrier", default="electron", choices=["electron", "hole"],
+                   help="with --barrier: carriers that cross (electron: n-type, hole: p-type)")
+    d.add_argument("--schottky", help="tabulated metal/semiconductor pair: Au/Si (= Au/n-Si), Au/p-Si, PtSi/p-Si, "
+                   "Au/GaAs, Au/TiO2, Au/ZnO, ...")
     d.add_argument("--fermi-energy", type=float, help="Fermi energy of the metal [eV] (default tabulated)")
-    d.add_argument("--attenuation-length", type=float, help="hot-electron attenuation length [nm]")
+    d.add_argument("--attenuation-length", type=float,
+                   help="constant hot-carrier attenuation length [nm] (default: tabulated, energy dependent)")
     d.add_argument("--yield-model", default="escape-cone", choices=["escape-cone", "fowler"])
+    d.add_argument("--geometry", default="particle", choices=["particle", "flat"],
+                   help="escape cone at the curved particle wall (default) or the flat-interface form")
+    d.add_argument("--generation", default="band-edges", choices=["band-edges", "flat"],
+                   help="interband carriers from the d-band edge (default) or all carriers flat over [0, hv]")
     d.add_argument("--momentum-factor", type=float, default=1.0, help="empirical emission multiplier")
-    d.add_argument("--contact-fraction", type=float, default=1.0, help="fraction of surface on the semiconductor")
+    d.add_argument("--contact-fraction", type=float, default=1.0,
+                   help="fraction of surface on the semiconductor (ellipsoids: the facet with the lowest z)")
     d.add_argument("--density", type=float, help="particles per um^2 (adds array columns)")
+    d.add_argument("--area", type=float, help="device area [um^2]: adds dark current, NEP and D* (needs --density)")
+    d.add_argument("--temperature", type=float, default=300.0, help="device temperature [K] (default 300)")
+    d.add_argument("--bias", type=float, default=0.0,
+                   help="bias [V]: negative = reverse bias, positive = forward (default 0)")
+    d.add_argument("--doping", type=float, default=1e15, help="semiconductor doping [cm^-3] (default 1e15)")
+    d.add_argument("--load", type=float, help="load resistance [ohm] (adds its Johnson noise)")
     d.add_argument("--thermal-conductivity", type=float, help="of the surroundings [W/(m K)]")
+    d.add_argument("--plot", help="save responsivity and D* vs wavelength with the cut-off (.png or .svg)")
     h.set_defaults(func=_cmd_hot_carriers)
 
     x = sub.add_parser("export-generation", help="carrier generation rate G(r) inside a sphere, for a "
@@ -413,6 +504,14 @@ def _register_particle_commands(sub):
                    help="incident irradiance: W/m^2, or with a unit (1mW/cm2, 10W/m2)")
     x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50)")
     x.set_defaults(func=_cmd_export_generation)
+
+
+def _irradiance_arg(text):
+    """argparse type: an irradiance with an optional unit, in W/m^2 (errors become one line)."""
+    try:
+        return parse_irradiance(text)
+    except NanoabsError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def _cmd_export_generation(args) -> int:
@@ -448,10 +547,7 @@ def _parse_values(text, name):
     t = str(text)
     if t.count(":") == 2:
         return parse_range(t, name)
-    try:
-        return np.array([float(v) for v in t.split(",")])
-    except ValueError:
-        raise NanoabsError(f"{name} = {text!r}: expected START:STOP:STEP or comma-separated numbers") from None
+    return _parse_list(t, name, increasing=False)
 
 
 def _sweep_params(items):
@@ -487,7 +583,7 @@ def _cmd_sweep(args) -> int:
     from .export import check_writable
 
     if args.output:
-        check_writable(args.output, force=args.force)
+        check_writable(args.output, force=args.force, netcdf=True)
     params = _sweep_params(args.param)
     wl = parse_range(args.wl)
     kw = dict(material=_table_or_material(args.material), medium=_medium_arg(args.medium), method=args.method,
@@ -499,7 +595,12 @@ def _cmd_sweep(args) -> int:
         kw["polarization"] = args.polarization
     if args.max_points is not None:
         kw["max_points"] = args.max_points
-    res = design.sweep(args.shape, params, wl, out=args.output, force=args.force, **kw)
+    netcdf = bool(args.output) and args.output.lower().endswith(".nc")
+    res = design.sweep(args.shape, params, wl, out=None if netcdf else args.output, force=args.force, **kw)
+    if netcdf:
+        from .dataset import sweep_dataset, write_netcdf
+
+        write_netcdf(sweep_dataset(res), args.output, force=args.force)
     if args.output:
         print(f"wrote {args.output}")
     if hasattr(res, "columns"):
@@ -516,16 +617,20 @@ def _report_sweep(res, args):
         label = key.replace("_nm", " [nm]")
     else:  # several parameters vary: one line (and one map row) per design
         key, label = "design_id", f"design_id ({' x '.join(swept)}; first varies slowest)"
+    from .optics import _peak, _peak_status
+
     grid = res.pivot_table(index=key, columns="wavelength_nm", values="sigma_abs_m2").sort_index()
-    peaks = grid.columns.values[np.argmax(grid.values, axis=1)]
+    wl = grid.columns.values
+    peaks = [f"absorption peak {p:.1f} nm" if p == p else _peak_status(wl, row)
+             for p, row in zip((_peak(wl, row) for row in grid.values), grid.values)]
     if key == "design_id" and swept:
         first = res.drop_duplicates("design_id").set_index("design_id")
         for v, pk in zip(grid.index, peaks):
             what = ", ".join(f"{n} = {_fmt_value(first.at[v, n])}" for n in swept)
-            print(f"design {v} ({what}): absorption peak {pk:g} nm")
+            print(f"design {v} ({what}): {pk}")
     else:
         for v, pk in zip(grid.index, peaks):
-            print(f"{key} = {v:g}: absorption peak {pk:g} nm")
+            print(f"{key} = {v:g}: {pk}")
     if args.plot:
         from .plotting import plot_map, save_figure
 
@@ -546,12 +651,14 @@ def _cmd_search(args) -> int:
     if args.output:
         check_writable(args.output, force=args.force)
     if args.band and (args.center or args.width):
-        raise NanoabsError("give either --band LO:HI or --center and --width")
+        raise NanoabsError("give either --band LO:HI (repeatable) or --center and --width")
     if args.band:
-        lo, hi = parse_range(args.band, "--band", need_step=False)
-        b = design.band(lo_nm=lo, hi_nm=hi)
+        b = []
+        for text in args.band:
+            lo, hi = parse_range(text, "--band", need_step=False)
+            b.append(design.band(lo_nm=lo, hi_nm=hi))
     else:
-        b = design.band(center_nm=args.center, width_nm=args.width)
+        b = [design.band(center_nm=args.center, width_nm=args.width)]
     barrier = None
     if args.schottky:
         barrier = float(schottky_barrier(args.schottky)[0])
@@ -570,12 +677,17 @@ def _cmd_search(args) -> int:
                            objective=args.objective, materials=[m.strip() for m in args.materials.split(",")],
                            medium=_medium_arg(args.medium), illumination=illum, barrier_eV=barrier,
                            max_size_nm=args.max_size, min_shell_nm=args.min_shell, top=args.top,
-                           progress=not args.quiet and sys.stderr.isatty())
+                           progress=not args.quiet and sys.stderr.isatty(), combine=args.combine,
+                           peak_in_band=not args.any_peak)
     fom = ranked.attrs.get("figure_of_merit", {})
-    print(f"band {b[0]:g}-{b[1]:g} nm; objective {args.objective} [{fom.get('unit', '')}]")
+    bands = ", ".join(f"{lo:g}-{hi:g}" for lo, hi in b)
+    print(f"band(s) {bands} nm; objective {args.objective} [{fom.get('unit', '')}]"
+          + (f", {args.combine} band" if len(b) > 1 else ""))
+    _print_warnings(ranked.attrs.get("metadata", {}))
     cols = [c for c in ("rank", "family", "material", "radius_nm", "core_radius_nm", "thickness_nm",
                         "length_nm", "diameter_nm", "peak_wavelength_nm", "figure_of_merit",
-                        "absorbed_fraction") if c in ranked.columns]
+                        "absorbed_fraction", "validity", "recheck_method", "recheck_peak_wavelength_nm")
+            if c in ranked.columns]
     with __import__("pandas").option_context("display.width", 160, "display.max_columns", 20):
         print(ranked[cols].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
     if args.output:
@@ -597,22 +709,26 @@ def _register_design_commands(sub):
     w.add_argument("--polarization")
     w.add_argument("--method", default="auto")
     w.add_argument("--no-surface-damping", action="store_true")
-    w.add_argument("--wl", default="400:1000:2", help="START:STOP:STEP [nm]")
+    w.add_argument("--wl", default="400:1000:2", help="START:STOP:STEP or a list V1,V2,... [nm]")
     w.add_argument("--processes", action="store_true", help="run chunks on two local processes")
     w.add_argument("--max-points", type=int, help="allow a sweep of more than 1e8 designs x wavelengths")
     w.add_argument("--plot", help="save a wavelength x parameter map (.png/.svg)")
-    w.add_argument("-o", "--output", help="stream the table to this CSV (+ JSON); resumes if interrupted")
+    w.add_argument("-o", "--output", help="stream the table to this CSV (+ JSON; resumes if interrupted), or "
+                                          "write an N-D netCDF file (.nc, needs the xarray extra)")
     w.add_argument("--force", action="store_true")
     w.add_argument("--quiet", action="store_true", help="no progress bar")
     w.set_defaults(func=_cmd_sweep)
 
     q = sub.add_parser("search", help="ranked particle designs for a target band")
-    q.add_argument("--band", help="band edges LO:HI [nm]")
+    q.add_argument("--band", action="append", help="band edges LO:HI [nm]; repeat for several bands")
     q.add_argument("--center", type=float, help="band centre [nm] (with --width)")
     q.add_argument("--width", type=float, help="band width [nm]")
     q.add_argument("--families", default="sphere,shell,rod", help="comma list: sphere, shell, rod, disc")
     q.add_argument("--objective", default="sigma_abs",
-                   help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection")
+                   help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection | selectivity")
+    q.add_argument("--combine", default="worst", help="several bands: worst | mean (default worst)")
+    q.add_argument("--any-peak", action="store_true",
+                   help="also rank designs whose absorption peak lies outside the band(s)")
     q.add_argument("--materials", default="Au", help="comma list of metals")
     q.add_argument("--medium", default="water")
     q.add_argument("--max-size", type=float, default=150.0, help="largest outer dimension [nm]")
@@ -620,7 +736,8 @@ def _register_design_commands(sub):
     q.add_argument("--barrier", type=float, help="injection: Schottky barrier [eV]")
     q.add_argument("--schottky", help="injection: tabulated pair, e.g. Au/Si")
     q.add_argument("--spectrum", help="injection: am1.5g | am1.5d | am0 | blackbody:T | flat:V | FILE.csv")
-    q.add_argument("--irradiance", type=float, help="injection: monochromatic irradiance [W/m^2]")
+    q.add_argument("--irradiance", type=_irradiance_arg,
+                   help="injection: monochromatic irradiance, W/m^2 or with a unit (1mW/cm2)")
     q.add_argument("--top", type=int, default=10)
     q.add_argument("-o", "--output", help="write the ranked table (CSV + JSON)")
     q.add_argument("--force", action="store_true")
@@ -690,6 +807,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _run(argv) -> int:
+    from . import export
+
+    export.COMMAND_LINE = ["nanoabs", *argv]
     parser = build_parser()
     args = parser.parse_args(argv)
     if getattr(args, "func", None) is None:

@@ -15,7 +15,7 @@ import numpy as np
 
 from ._errors import NanoabsError
 
-__all__ = ["spectrum_dataset", "write_netcdf", "read_netcdf"]
+__all__ = ["spectrum_dataset", "sweep_dataset", "write_netcdf", "read_netcdf"]
 
 #: Units of the spectrum variables in CF / UDUNITS spelling.
 CF_UNITS = {"wavelength_nm": "nm", "sigma_abs_m2": "m2", "sigma_sca_m2": "m2", "sigma_ext_m2": "m2",
@@ -37,8 +37,15 @@ def spectrum_dataset(spec, dims=None):
     Parameters
     ----------
     spec : Spectrum
+        The spectrum; cross-sections [m²] of shape (..., W) on ``wavelength_nm`` [nm].
     dims : sequence of str, optional
         Names of the leading family dimensions (default ``index_0``, ``index_1``, ...).
+
+    Returns
+    -------
+    xarray.Dataset
+        One variable per spectrum column with a CF ``units`` attribute (``m2``, ``1``,
+        ``m-1``), coordinate ``wavelength_nm`` [nm], provenance in the attributes.
     """
     from .optics import FRAME_COLUMNS
 
@@ -60,8 +67,64 @@ def spectrum_dataset(spec, dims=None):
     return xr.Dataset(data, coords=coords, attrs=attrs)
 
 
+def sweep_dataset(frame):
+    """:class:`xarray.Dataset` of a sweep table (:func:`nanoabs.design.sweep`) on its Cartesian grid.
+
+    Dims are the swept parameters (those with more than one value, in the sweep's order) and
+    ``wavelength_nm``; parameters held fixed become scalar coordinates. Units come from
+    ``frame.attrs["units"]`` (CF spelling), the sweep metadata goes into the attributes.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        A table returned by :func:`nanoabs.design.sweep` (with its ``attrs``).
+    """
+    xr = _xarray()
+    meta = frame.attrs.get("metadata", {})
+    units = frame.attrs.get("units", {})
+    params = meta.get("parameters", {})
+    dims = [n for n, v in params.items() if len(v) > 1 and n in frame.columns]
+    fixed = [n for n, v in params.items() if len(v) == 1 and n in frame.columns]
+    design_cols = [c for c in frame.columns if c not in dims + fixed and c != "wavelength_nm"
+                   and (c == "design_id" or c not in CF_UNITS)]
+    data = frame.drop(columns=design_cols).set_index(dims + ["wavelength_nm"])
+    if not data.index.is_unique:
+        raise NanoabsError("sweep table: the swept parameters do not identify the rows uniquely")
+    ds = data.drop(columns=fixed).to_xarray()
+    for n in fixed:
+        ds = ds.assign_coords({n: frame[n].iloc[0]})
+    for name in list(ds.variables):
+        u = units.get(name)
+        if u is not None:
+            ds[name].attrs["units"] = CF_UNITS.get(name, _cf(u))
+            ds[name].attrs["long_name"] = name.replace("_", " ")
+    ds.attrs.update({"title": "nanoabs sweep", "Conventions": "CF-1.10",
+                     "nanoabs_metadata_json": json.dumps(meta, default=str)})
+    return ds
+
+
+def _cf(unit: str) -> str:
+    """A nanoabs unit string in UDUNITS spelling ("m^2" -> "m2", "m^-1" -> "m-1", "text" -> "")."""
+    return "" if unit in ("text", "", None) else str(unit).replace("^", "").replace(" ", " ")
+
+
 def write_netcdf(ds, path, *, force: bool = False):
-    """Write a Dataset to a netCDF-4 file atomically (never overwrites unless ``force``)."""
+    """Write a Dataset to a netCDF-4 file atomically (never overwrites unless ``force``).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        The data, e.g. from :func:`spectrum_dataset`.
+    path : str or os.PathLike
+        Output file (``.nc``).
+    force : bool, keyword-only
+        Replace an existing file.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
     from .export import write_file_atomic
 
     _xarray()
@@ -71,7 +134,17 @@ def write_netcdf(ds, path, *, force: bool = False):
 
 
 def read_netcdf(path):
-    """Read a netCDF file written by :func:`write_netcdf` (fully loaded, file closed)."""
+    """Read a netCDF file written by :func:`write_netcdf` (fully loaded, file closed).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The netCDF file.
+
+    Returns
+    -------
+    xarray.Dataset
+    """
     xr = _xarray()
     with xr.open_dataset(path, engine=_engine()) as ds:
         return ds.load()

@@ -33,6 +33,23 @@ def nested_eps(eps_layers, radii):
     A coated sphere polarises like a homogeneous sphere of its outer radius with
     ε_eq = ε₂ [ε₁ + 2ε₂ + 2f(ε₁ − ε₂)] / [ε₁ + 2ε₂ − f(ε₁ − ε₂)], f = (r₁/r₂)³, which is
     B&H (1983) eq. 5.36 rewritten; applied outward layer by layer.
+
+    Parameters
+    ----------
+    eps_layers : sequence of complex array_like
+        Relative permittivity of each layer [1], core first (broadcast together).
+    radii : sequence of array_like
+        Outer radius of each layer [nm], core first.
+
+    Returns
+    -------
+    complex ndarray
+        Equivalent permittivity [1] of a homogeneous sphere of radius ``radii[-1]``.
+
+    References
+    ----------
+    C. F. Bohren, D. R. Huffman, *Absorption and Scattering of Light by Small
+    Particles*, Wiley (1983), eq. 5.36.
     """
     e_in, r_in = eps_layers[0], radii[0]
     for e_out, r_out in zip(eps_layers[1:], radii[1:]):
@@ -49,6 +66,20 @@ def field_axes(pol, core_axes, shell_axes=None):
     principal cross-sections with weight 1/3 each (see
     :func:`~nanoabs.quasistatic.orientation_average`); a spheroid's two equal
     axes give equal cross-sections, so each distinct axis is computed once.
+
+    Parameters
+    ----------
+    pol : str
+        Field axis ("x", "y", "z") or "random".
+    core_axes : tuple of three array_like
+        Semi-axes of the core [nm].
+    shell_axes : tuple of three array_like, optional
+        Outer semi-axes of a confocal shell [nm].
+
+    Returns
+    -------
+    list of (str, float)
+        Axis names and weights [1] summing to 1.
     """
     if pol != "random":
         return [(pol, 1.0)]
@@ -76,7 +107,22 @@ class StaticDipole(Solver):
     advice = "use method='mie' for spheres; treat ellipsoid results as indicative"
 
     def polarizability(self, problem, axis):
-        """Polarisability [nm³] along principal axis ``axis`` (p = ε₀ ε_host α E)."""
+        """Polarisability [nm³] along principal axis ``axis`` (p = ε₀ ε_host α E).
+
+        Parameters
+        ----------
+        problem : Problem
+            The resolved problem (damped layer permittivities [1], host permittivity [1],
+            wavenumber [1/nm]).
+        axis : str
+            Principal axis "x", "y" or "z" (ignored for spheres).
+
+        Returns
+        -------
+        complex ndarray
+            α [nm³], shape (..., W): B&H (1983) eqs. 5.7, 5.32, 5.35, 5.36, with the
+            Meier & Wokaun (1983) corrections when ``corrected``.
+        """
         p, eps, em, k = problem.particle, problem.eps_layers, problem.eps_medium, problem.k
         c = self.corrected
         if p.shape != "ellipsoid":
@@ -96,6 +142,19 @@ class StaticDipole(Solver):
                 else qs.polarizability_coated_ellipsoid(eps[0], eps[1], em, core, shell, axis=axis))
 
     def solve(self, problem) -> Response:
+        """Cross-sections from the polarisability along each sampled field axis.
+
+        Parameters
+        ----------
+        problem : Problem
+            The resolved problem.
+
+        Returns
+        -------
+        Response
+            σ_abs, σ_sca, σ_ext [nm²] (B&H 1983 sec. 5.2, via
+            :func:`nanoabs.quasistatic.cross_sections`), orientation-averaged for "random".
+        """
         p = problem.particle
         axes = [("x", 1.0)]
         if p.shape == "ellipsoid":
@@ -120,6 +179,18 @@ class CorrectedDipole(StaticDipole):
     advice = "use method='mie' for spheres; treat ellipsoid results as indicative"
 
     def solve(self, problem) -> Response:
+        """As :meth:`StaticDipole.solve`; a homogeneous ellipsoid family uses the compiled kernel.
+
+        Parameters
+        ----------
+        problem : Problem
+            The resolved problem.
+
+        Returns
+        -------
+        Response
+            σ_abs, σ_sca, σ_ext [nm²]; ``backend`` says whether the compiled kernel ran.
+        """
         p = problem.particle
         if p.shape == "ellipsoid" and p.shell is None:
             fast = _compiled_map(problem)

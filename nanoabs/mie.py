@@ -97,6 +97,11 @@ def _fmt_c(v) -> str:
     return f"{v.real:g}{v.imag:+g}j"
 
 
+#: Largest size parameter accepted [1]: the series needs ~x orders, ~40 us per order and
+#: wavelength here; 2e4 is ~1 s per wavelength (a 1e7 nm radius took 45 s per spectrum).
+MAX_SIZE_PARAMETER = 2.0e4
+
+
 def _prepare(m, x):
     """Validate and broadcast (m, x) to shape (L, *grid); return (m, x, grid)."""
     try:
@@ -139,6 +144,9 @@ def _prepare(m, x):
     bad = ~np.isfinite(x) | (x <= 0)
     if np.any(bad):
         raise NanoabsError(f"x = {float(x[bad].flat[0]):g}: size parameter must be a finite number > 0")
+    if np.any(x > MAX_SIZE_PARAMETER):
+        raise NanoabsError(f"x = {float(np.max(x)):g}: the Mie series here accepts size parameters up to "
+                           f"{MAX_SIZE_PARAMETER:g} (about as many multipole orders per wavelength)")
     if n_layers > 1:
         dx = np.diff(x, axis=0)
         if np.any(dx < 0):

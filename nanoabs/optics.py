@@ -26,9 +26,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import __version__
-from ._errors import NanoabsError, check_finite_array
+from ._errors import NanoabsError, check_finite_array, check_flag
 from .drude_lorentz import surface_damping_eV
-from .particles import _plain, resolve_polarization
+from .particles import _plain, check_size_family, resolve_polarization
 from .solvers import METHODS, Homogeneous, Problem, choose
 from .validity import Caution, emit
 
@@ -107,14 +107,14 @@ class Spectrum:
     @property
     def sigma_abs_per_metal_volume_m_1(self):
         """σ_abs per metal volume [m⁻¹] (absorption per unit of metal used)."""
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(self.metal_volume_m3 > 0, self.sigma_abs_m2 / self.metal_volume_m3, np.nan)
+        with np.errstate(divide="ignore", invalid="ignore"):  # 0 for a particle without metal, never NaN
+            return np.where(self.metal_volume_m3 > 0, self.sigma_abs_m2 / self.metal_volume_m3, 0.0)
 
     @property
     def absorbed_fraction(self):
         """σ_abs / σ_ext: the part of the removed light a detector keeps as absorption."""
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(self.sigma_ext_m2 > 0, self.sigma_abs_m2 / self.sigma_ext_m2, np.nan)
+        with np.errstate(divide="ignore", invalid="ignore"):  # nothing removed: nothing absorbed (0, not NaN)
+            return np.where(self.sigma_ext_m2 > 0, self.sigma_abs_m2 / self.sigma_ext_m2, 0.0)
 
     @property
     def dipole_bound_ratio(self):
@@ -413,6 +413,8 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
     if np.any(wl <= 0):
         raise NanoabsError(f"wavelength = {wl.min():g} nm: must be > 0")
     _check_particle(particle)
+    check_size_family(particle, wl)
+    surface_damping = check_flag("surface_damping", surface_damping)
     env = _environment(medium, environment)
     solver, reason = choose(method, particle, env)
     pol = resolve_polarization(particle, polarization)
@@ -431,7 +433,8 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
     if nonfinite is None:
         nonfinite = not (np.isfinite(np.sum(sa)) and np.isfinite(np.sum(se)))  # one pass, no temporaries
     if nonfinite:
-        cautions.append(Caution("non-finite", "non-finite cross-sections at some wavelengths (check inputs)"))
+        raise NanoabsError("spectrum: non-finite cross-sections at some wavelengths; no result is returned "
+                           "(check the inputs; report it if they are physical)")
     geo, ref_area = particle.reference_area_nm2(pol)
     meta = {
         "particle": particle.describe(),

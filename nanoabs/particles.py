@@ -1,7 +1,14 @@
 """Particle geometries: sphere, layered sphere, ellipsoid (optionally with a confocal shell), spheroid.
 
-Sizes are in nm and may be numpy arrays (they broadcast against the wavelength
-grid in the solvers, e.g. radius of shape (P, 1) against W wavelengths).
+Sizes are in nm. A size is a real number, or an explicitly shaped array of two or
+more axes: a *family* with a last axis of length 1 (e.g. radius of shape (P, 1)),
+which the solvers broadcast against the W wavelengths to a (P, W) result, or a
+geometry that deliberately varies with wavelength (shape (1, W)). A 1-D array of
+several sizes is refused, because against a grid of as many wavelengths it would
+broadcast into a "diagonal" spectrum (size i at wavelength i) instead of a family;
+write ``sizes[:, None]``. Every size must lie in (0, ``MAX_SIZE_NM``]; a size below
+``MONOLAYER_NM`` is accepted with a :class:`~nanoabs.validity.NanoabsWarning`
+(it usually means metres or micrometres were typed as nanometres).
 Materials are names, numbers (constant index) or :class:`~nanoabs.materials.Material`.
 
 Orientation convention for non-spherical particles: semi-axes (a, b, c) lie
@@ -14,19 +21,27 @@ along z. "long" and "short" pick the field along the long or a short axis.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
 
-from ._errors import NanoabsError, check_choice, check_positive
+from ._errors import NanoabsError, _fmt, check_choice, check_positive
 
-__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "MONOLAYER_NM"]
+__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "MONOLAYER_NM", "MAX_SIZE_NM",
+           "check_size_family"]
 
 #: Thinnest shell accepted [nm]: about one atomic monolayer of gold/silver
 #: (lattice constant 0.408 nm; (111) spacing 0.236 nm; common practice to call
 #: ~0.2-0.3 nm a monolayer). Thinner "shells" are outside any continuum model.
 MONOLAYER_NM = 0.2
+
+#: Largest size accepted [nm] (radius, thickness, semi-axis): 10 um. nanoabs is for nano- and
+#: sub-micron particles; at 10 um the Mie series already needs ~1e3 orders per wavelength in a
+#: high-index host (cost grows linearly with size; 1e7 nm took 45 s per spectrum), and ray
+#: optics is the right model well before. A documented bound, not a physical limit.
+MAX_SIZE_NM = 1.0e4
 
 
 def _mat(value):
@@ -35,6 +50,75 @@ def _mat(value):
     if isinstance(value, Material) or hasattr(value, "permittivity"):
         return value
     return material(value)
+
+
+def _size(name: str, value) -> np.ndarray:
+    """A size [nm]: real, finite, in (0, MAX_SIZE_NM], scalar or a family with a last axis of 1."""
+    arr = check_positive(name, value, unit="nm")
+    if arr.size == 0:
+        raise NanoabsError(f"{name}: an empty array; give a size in nm or a family of shape (P, 1)")
+    if arr.ndim == 1 and arr.size > 1:
+        raise NanoabsError(
+            f"{name}: a 1-D array of {arr.size} sizes is ambiguous (against {arr.size} wavelengths it "
+            "would pair size i with wavelength i); give a scalar or a family of shape (P, 1), "
+            "e.g. sizes[:, None]")
+    if np.any(arr > MAX_SIZE_NM):
+        raise NanoabsError(f"{name} = {float(np.max(arr)):g} nm: allowed range is 0 to {MAX_SIZE_NM:g} nm "
+                           "(nanoabs models nano- and sub-micron particles)")
+    if np.any(arr < MONOLAYER_NM):
+        from .validity import NanoabsWarning
+
+        warnings.warn(f"{name} = {float(np.min(arr)):g} nm is below one atomic monolayer "
+                      f"({MONOLAYER_NM:g} nm): sizes are in nanometres (were metres or micrometres "
+                      "typed?)", NanoabsWarning, stacklevel=4)
+    return arr
+
+
+def _common_shape(what: str, *sizes) -> None:
+    """Refuse size families that do not broadcast together (e.g. (3, 1) with (4, 1))."""
+    try:
+        np.broadcast_shapes(*(np.shape(v) for v in sizes))
+    except ValueError:
+        shapes = ", ".join(str(np.shape(v)) for v in sizes)
+        raise NanoabsError(f"{what}: size families of shapes {shapes} do not broadcast together; "
+                           "give equal family lengths P (each of shape (P, 1)) or scalars") from None
+
+
+def _check_outer(name: str, value) -> None:
+    """The outer size of a coated particle obeys the same bound as every size."""
+    if np.any(np.asarray(value) > MAX_SIZE_NM):
+        raise NanoabsError(f"{name} = {float(np.max(value)):g} nm: allowed range is 0 to {MAX_SIZE_NM:g} nm")
+
+
+def _pair(name: str, item) -> tuple:
+    """A (material, thickness_nm) pair; a one-line error for anything else."""
+    if isinstance(item, (str, bytes, dict)) or not hasattr(item, "__len__") or len(item) != 2:
+        raise NanoabsError(f"{name} = {_fmt(item)}: must be a (material, thickness_nm) pair")
+    mat, t = item
+    return _mat(mat), _check_thickness(f"{name} thickness", t)
+
+
+def check_size_family(particle, wavelength_nm) -> None:
+    """Refuse sizes that would broadcast against the wavelength grid into a "diagonal".
+
+    The rule (module docstring): a size is a scalar or an explicitly shaped array of two or
+    more axes whose last axis is 1 (a family, shape (P, 1)) or the number of wavelengths W
+    (a geometry that deliberately varies with wavelength, shape (1, W) or (P, W)). A 1-D array
+    of several sizes is refused. The constructors enforce the 1-D part; this re-checks a
+    particle (attributes may be changed after construction) against the grid it is about to
+    be evaluated on: call it at the top of ``spectrum()``.
+    """
+    n = np.size(wavelength_nm)
+    for label, size in zip(particle.layer_labels(), particle.damping_lengths_nm()):
+        shape = np.shape(size)
+        if len(shape) == 1 and shape[0] > 1:
+            raise NanoabsError(
+                f"particle {label} size: a 1-D array of shape {shape} against {n} wavelengths is "
+                "ambiguous; give a scalar or a family of shape (P, 1), e.g. sizes[:, None]")
+        if len(shape) > 1 and shape[-1] not in (1, n):
+            raise NanoabsError(
+                f"particle {label} size: shape {shape} has a last axis of {shape[-1]}, neither 1 (a "
+                f"family of shape (P, 1)) nor the number of wavelengths ({n})")
 
 
 class _Spherical:
@@ -94,7 +178,7 @@ class Sphere(_Spherical):
 
     def __post_init__(self):
         self.material = _mat(self.material)
-        self.radius_nm = check_positive("radius", self.radius_nm, unit="nm")
+        self.radius_nm = _size("radius", self.radius_nm)
 
     shape = "sphere"
 
@@ -118,16 +202,14 @@ class LayeredSphere(_Spherical):
 
     def __post_init__(self):
         self.core = _mat(self.core)
-        self.core_radius_nm = check_positive("core radius", self.core_radius_nm, unit="nm")
+        self.core_radius_nm = _size("core radius", self.core_radius_nm)
+        if isinstance(self.shells, (str, bytes, dict)) or not hasattr(self.shells, "__len__"):
+            raise NanoabsError(f"shells = {_fmt(self.shells)}: give a list of (material, thickness_nm) pairs")
         if len(self.shells) == 0:
             raise NanoabsError("shells: give at least one (material, thickness_nm) pair")
-        out = []
-        for i, item in enumerate(self.shells, 1):
-            if isinstance(item, str) or not hasattr(item, "__len__") or len(item) != 2:
-                raise NanoabsError(f"shell {i} = {item!r}: must be a (material, thickness_nm) pair")
-            mat, t = item
-            out.append((_mat(mat), _check_thickness(f"shell {i} thickness", t)))
-        self.shells = out
+        self.shells = [_pair(f"shell {i}", item) for i, item in enumerate(self.shells, 1)]
+        _common_shape("layered sphere", self.core_radius_nm, *(t for _, t in self.shells))
+        _check_outer("outer radius", self.outer_radius_nm)
 
     shape = "layered sphere"
 
@@ -151,7 +233,7 @@ def _check_thickness(name, t):
     if np.any(t < MONOLAYER_NM):
         raise NanoabsError(f"{name} = {float(np.min(t)):g} nm: must be at least "
                            f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
-    return t
+    return _size(name, t)
 
 
 @dataclass
@@ -170,18 +252,16 @@ class Ellipsoid:
 
     def __post_init__(self):
         self.material = _mat(self.material)
-        try:
-            axes = tuple(self.semi_axes_nm)
-        except TypeError:
-            raise NanoabsError(f"semi-axes = {self.semi_axes_nm!r}: give three lengths a,b,c in nm") from None
-        if len(axes) != 3:
-            raise NanoabsError(f"semi-axes = {self.semi_axes_nm!r}: give exactly three lengths a,b,c in nm")
-        self.semi_axes_nm = tuple(check_positive(f"semi-axis {n}", v, unit="nm") for n, v in zip("abc", axes))
+        axes = self.semi_axes_nm
+        if isinstance(axes, (str, bytes, dict, set)) or not hasattr(axes, "__len__") or len(axes) != 3:
+            raise NanoabsError(f"semi-axes = {_fmt(axes)}: give exactly three lengths a,b,c in nm")
+        self.semi_axes_nm = tuple(_size(f"semi-axis {n}", v) for n, v in zip("abc", axes))
+        _common_shape("ellipsoid semi-axes", *self.semi_axes_nm)
         if self.shell is not None:
-            if isinstance(self.shell, str) or not hasattr(self.shell, "__len__") or len(self.shell) != 2:
-                raise NanoabsError(f"shell = {self.shell!r}: must be a (material, thickness_nm) pair")
-            mat, t = self.shell
-            self.shell = (_mat(mat), _check_thickness("shell thickness", t))
+            self.shell = _pair("shell", self.shell)
+            _common_shape("ellipsoid with shell", *self.semi_axes_nm, self.shell[1])
+            for n, v in zip("abc", self.shell_axes_nm()):
+                _check_outer(f"outer semi-axis {n}", v)
 
     shape = "ellipsoid"
 
@@ -273,8 +353,9 @@ def spheroid(material, length_nm, diameter_nm, *, shell=None) -> Ellipsoid:
     diameter_nm : float
         Extent across it [nm].
     """
-    L = check_positive("length", length_nm, unit="nm")
-    D = check_positive("diameter", diameter_nm, unit="nm")
+    L = _size("length", length_nm)
+    D = _size("diameter", diameter_nm)
+    _common_shape("spheroid", L, D)
     if np.ndim(L) == 0 and np.ndim(D) == 0 and float(L) < float(D):
         return Ellipsoid(material, (D / 2, D / 2, L / 2), shell, kind="disc")
     if np.ndim(L) or np.ndim(D):

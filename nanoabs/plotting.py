@@ -15,7 +15,8 @@ import numpy as np
 
 from ._errors import NanoabsError
 
-__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "spectrum_axes", "save_figure"]
+__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "plot_detector", "spectrum_axes",
+           "save_figure"]
 
 #: Plot label and scale of each spectrum quantity (one table: values, labels and units never disagree).
 QUANTITY_LABELS = {
@@ -37,6 +38,22 @@ def spectrum_axes(spec, quantity="sigma_abs_m2", *, ax=None, **line_kw):
 
     The title names the particle, host or environment, method and polarisation; a family
     of sizes is drawn as one line per member.
+
+    Parameters
+    ----------
+    spec : Spectrum
+        The spectrum (wavelengths [nm], cross-sections [m²]).
+    quantity : str
+        A spectrum column (a key of ``QUANTITY_LABELS``); cross-sections are drawn in
+        [nm²], σ_abs per metal volume in [µm⁻¹], efficiencies and ratios in [1].
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes; default new Axes through pyplot (shown inline in notebooks).
+    **line_kw
+        Passed to :meth:`matplotlib.axes.Axes.plot` (``label=`` also adds a legend).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
     """
     from ._errors import check_choice
 
@@ -71,7 +88,24 @@ def _figure(nrows=1, ncols=1, ax=None, **kw):
 
 
 def save_figure(fig, path, *, force: bool = False, dpi: int = 150) -> Path:
-    """Save ``fig`` to ``path`` (.png or .svg) atomically; never overwrite unless ``force``."""
+    """Save ``fig`` to ``path`` (.png or .svg) atomically; never overwrite unless ``force``.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure.
+    path : str or os.PathLike
+        Output file; the suffix (``.png`` or ``.svg``) chooses the format.
+    force : bool, keyword-only
+        Replace an existing file.
+    dpi : int, keyword-only
+        Resolution of a PNG [dots per inch].
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
     from .export import write_file_atomic
 
     p = Path(path)
@@ -83,7 +117,22 @@ def save_figure(fig, path, *, force: bool = False, dpi: int = 150) -> Path:
 
 
 def plot_material(mat, wavelength_nm=None, *, ax=None):
-    """n, k and ε′, ε″ of a material against wavelength [nm]; tabulated points marked."""
+    """n, k and ε′, ε″ of a material against wavelength [nm]; tabulated points marked.
+
+    Parameters
+    ----------
+    mat : Material
+        The material (from :func:`nanoabs.material`).
+    wavelength_nm : array_like, optional
+        Vacuum wavelengths [nm]; default 400 points over the data range (at most a
+        factor 20 in wavelength, 300–2000 nm for a constant index).
+    ax : sequence of two matplotlib.axes.Axes, optional
+        Draw n, k into the first and ε′, ε″ into the second; default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     if wavelength_nm is None:
         lo, hi = mat.range_nm
         if not np.isfinite(hi):
@@ -92,7 +141,12 @@ def plot_material(mat, wavelength_nm=None, *, ax=None):
         wavelength_nm = np.geomspace(lo, hi, 400)
     wl = np.asarray(wavelength_nm, dtype=float)
     n = np.atleast_1d(mat.refractive_index(wl))
-    fig, (a1, a2) = _figure(1, 2, ax=ax, figsize=(9.0, 3.8))  # ax: a pair of Axes
+    if ax is not None:  # a pair of Axes: (n and k, permittivity)
+        if not (isinstance(ax, (tuple, list)) and len(ax) == 2):
+            raise NanoabsError("plot_material: ax must be a pair of Axes (index panel, permittivity panel)")
+        (a1, a2), fig = ax, ax[0].figure
+    else:
+        fig, (a1, a2) = _figure(1, 2, figsize=(9.0, 3.8))
     a1.plot(wl, n.real, label="n", color="#1b6ca8")
     a1.plot(wl, n.imag, label="k", color="#c8553d")
     eps = n**2
@@ -116,7 +170,27 @@ def plot_material(mat, wavelength_nm=None, *, ax=None):
 
 def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None, band=None,
                  scale=1.0, ax=None):
-    """Overlay of spectra: ``curves`` is a list of (label, wavelength_nm, values)."""
+    """Overlay of spectra: ``curves`` is a list of (label, wavelength_nm, values).
+
+    Parameters
+    ----------
+    curves : list of (str, array_like, array_like)
+        Label, vacuum wavelengths [nm] and values (in the unit of ``ylabel`` after ``scale``).
+    ylabel : str, keyword-only
+        Axis label, with its unit in brackets.
+    title : str, optional
+        Axes title.
+    band : (float, float), optional
+        Target band [nm], shaded.
+    scale : float, keyword-only
+        Factor applied to the values (e.g. 1e18 for m² → nm²) [1].
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     import matplotlib
 
     fig, ax = _figure(ax=ax)
@@ -138,7 +212,34 @@ def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None
 
 def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=True, band=None,
              title=None, ax=None):
-    """Wavelength × parameter map (values shape (len(param), len(wavelength))) with the peak ridge."""
+    """Wavelength × parameter map (values shape (len(param), len(wavelength))) with the peak ridge.
+
+    Parameters
+    ----------
+    wavelength_nm : (W,) array_like
+        Vacuum wavelengths [nm].
+    param : (P,) array_like
+        Values of the swept parameter (in the unit named by ``param_label``, e.g. [nm]).
+    values : (P, W) array_like
+        Quantity to colour (in the unit named by ``value_label``).
+    param_label : str, keyword-only
+        Label of the parameter axis, with its unit in brackets.
+    value_label : str, keyword-only
+        Label of the colour bar, with its unit in brackets.
+    ridge : bool, keyword-only
+        Draw the wavelength of the maximum of each row; a maximum on the first or last
+        wavelength is not a peak and is not drawn.
+    band : sequence of float, optional
+        Band edges [nm], drawn as vertical lines.
+    title : str, optional
+        Axes title.
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     wl = np.asarray(wavelength_nm, dtype=float)
     p = np.asarray(param, dtype=float)
     v = np.asarray(values, dtype=float)
@@ -162,7 +263,29 @@ def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=Tr
 
 
 def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False, ax=None):
-    """Simple line plot: ``curves`` is a list of (label, y) against a shared x."""
+    """Simple line plot: ``curves`` is a list of (label, y) against a shared x.
+
+    Parameters
+    ----------
+    x : array_like
+        Shared abscissa (in the unit named by ``xlabel``).
+    curves : list of (str, array_like)
+        Label and ordinate values (in the unit named by ``ylabel``).
+    xlabel : str, keyword-only
+        Abscissa label, with its unit in brackets.
+    ylabel : str, keyword-only
+        Ordinate label, with its unit in brackets.
+    title : str, optional
+        Axes title.
+    logy : bool, keyword-only
+        Logarithmic ordinate (e.g. for emission probabilities).
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     import matplotlib
 
     fig, ax = _figure(ax=ax)
@@ -178,3 +301,46 @@ def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False, ax=None):
     if title:
         ax.set_title(title)
     return fig
+
+
+def plot_detector(result, ax=None):
+    """Responsivity [mA/W] and, with a device area, D* [Jones] against wavelength; cut-off marked.
+
+    Parameters
+    ----------
+    result : HotCarrierResult
+        From :func:`nanoabs.hot_carrier_estimate` with ``density_per_um2`` (and ``area_um2`` for D*).
+    ax : matplotlib Axes, optional
+        Axes to draw on (a new figure otherwise); D* goes on a twin axis (log scale).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The responsivity axes.
+    """
+    f = result.frame
+    if "responsivity_A_W" not in f:
+        raise NanoabsError("plot_detector: the result has no responsivity (give density_per_um2)")
+    if ax is None:
+        ax = _figure()[1]
+    wl = f["wavelength_nm"].to_numpy()
+    ax.plot(wl, f["responsivity_A_W"].to_numpy() * 1e3, color="C0", label="responsivity")
+    ax.set_xlabel("wavelength [nm]")
+    ax.set_ylabel("responsivity [mA/W]", color="C0")
+    lam_c = result.totals.get("cutoff_wavelength_nm")
+    if lam_c is not None and wl.min() <= lam_c <= wl.max():
+        ax.axvline(lam_c, color="0.4", ls="--", lw=1)
+        ax.annotate(f"cut-off {lam_c:.0f} nm", (lam_c, 0.95), xycoords=("data", "axes fraction"),
+                    ha="right", va="top", rotation=90, fontsize=8, color="0.3")
+    elif lam_c is not None:
+        ax.annotate(f"cut-off {lam_c:.0f} nm (outside the plot)", (0.02, 0.95), xycoords="axes fraction",
+                    ha="left", va="top", fontsize=8, color="0.3")
+    if "specific_detectivity_Jones" in f:
+        d = f["specific_detectivity_Jones"].to_numpy()
+        tw = ax.twinx()
+        tw.plot(wl, np.where(d > 0, d, np.nan), color="C1", label="D*")
+        tw.set_ylabel("D* [cm Hz$^{1/2}$ W$^{-1}$]", color="C1")
+        if np.any(d > 0):
+            tw.set_yscale("log")
+    ax.set_title(result.metadata.get("schottky", {}).get("contact", "hot-carrier detector"))
+    return ax

@@ -52,6 +52,18 @@ class Homogeneous:
 
         Cross-sections in an absorbing host are ill-defined (the incident wave decays);
         a weakly absorbing one (k < 1e-2 n) is used with its real index and a caution.
+
+        Parameters
+        ----------
+        wavelength_nm : (W,) array_like
+            Vacuum wavelengths [nm].
+
+        Returns
+        -------
+        n_host : (W,) ndarray
+            Real refractive index of the host [1].
+        cautions : list of Caution
+            A ``medium-absorbs`` caution where k > 1e-5, else empty.
         """
         n = np.atleast_1d(self.medium.refractive_index(wavelength_nm)).astype(complex)
         worst = float(np.max(n.imag))
@@ -69,10 +81,24 @@ class Homogeneous:
         return n.real, cautions
 
     def apply(self, solver, problem) -> "Response":
-        """The particle's cross-sections in this host: the solver's own answer."""
+        """The particle's cross-sections in this host: the solver's own answer.
+
+        Parameters
+        ----------
+        solver : Solver
+            The method to apply.
+        problem : Problem
+            The resolved problem.
+
+        Returns
+        -------
+        Response
+            Cross-sections [nm²].
+        """
         return solver.solve(problem)
 
     def describe(self) -> dict:
+        """The environment for the metadata: its ``kind`` and the medium's provenance."""
         return {"kind": self.kind, "medium": self.medium.metadata()}
 
 
@@ -80,19 +106,23 @@ class Homogeneous:
 class Problem:
     """Everything a solver needs, resolved on the wavelength grid.
 
-    Attributes
+    Parameters
     ----------
     particle : Sphere, LayeredSphere or Ellipsoid
+        The particle (sizes [nm]).
     wavelength_nm : (W,) ndarray
         Vacuum wavelengths [nm].
     n_medium : (W,) ndarray
-        Real refractive index of the particle's host.
+        Real refractive index of the particle's host [1].
     polarization : str
         Resolved field axis ("x", "y", "z") or "random"; "x" for spheres.
     environment : object
         The environment (``kind`` attribute, ``apply(solver, problem)``).
     damping_eV : list
         Extra Drude damping of each layer [eV] (core first), or None where none applies.
+    clipped : list of str
+        Filled while evaluating: labels of the layers whose surface-damped ε″ was
+        clipped at 0 (reported as a ``damping-clipped`` caution).
     """
 
     particle: object
@@ -111,6 +141,7 @@ class Problem:
 
     @property
     def eps_medium(self):
+        """Relative permittivity of the host n_medium² [1]."""
         return self.n_medium**2
 
     @property
@@ -138,7 +169,20 @@ class Problem:
 
 @dataclass
 class Response:
-    """Cross-sections [nm²] of one particle (or a family), shape (..., W), and how they were made."""
+    """Cross-sections [nm²] of one particle (or a family), shape (..., W), and how they were made.
+
+    Parameters
+    ----------
+    sigma_abs_nm2, sigma_sca_nm2, sigma_ext_nm2 : ndarray
+        Absorption, scattering and extinction cross-sections [nm²], shape (..., W).
+    backend : str
+        What computed them ("numpy", "compiled (numba)", ...), for the metadata.
+    nonfinite : bool or None
+        Whether any value is NaN or infinite; None when not known yet
+        (:func:`nanoabs.spectrum` then checks).
+    metadata : dict
+        Extra facts for the spectrum's metadata (e.g. an environment's cross-section reference).
+    """
 
     sigma_abs_nm2: np.ndarray
     sigma_sca_nm2: np.ndarray
@@ -159,13 +203,31 @@ class Solver:
     advice = ""
 
     def accepts(self, particle) -> str | None:
-        """None if the solver can treat ``particle``, else the reason it cannot (one phrase)."""
+        """None if the solver can treat ``particle``, else the reason it cannot (one phrase).
+
+        Parameters
+        ----------
+        particle : Sphere, LayeredSphere or Ellipsoid
+            The particle; its ``shape`` is compared with the solver's ``shapes``.
+
+        Returns
+        -------
+        str or None
+        """
         if particle.shape not in self.shapes:
             return f"it treats {', '.join(sorted(self.shapes))} particles only"
         return None
 
     def check(self, particle, environment) -> None:
-        """Raise :class:`NanoabsError` if the particle or the environment is not accepted."""
+        """Raise :class:`NanoabsError` if the particle or the environment is not accepted.
+
+        Parameters
+        ----------
+        particle : Sphere, LayeredSphere or Ellipsoid
+            The particle (see :meth:`accepts`).
+        environment : object
+            The environment; its ``kind`` must be in the solver's ``environments``.
+        """
         reason = self.accepts(particle)
         if reason is None and environment.kind not in self.environments:
             reason = f"it handles {', '.join(sorted(self.environments))} environments only"
@@ -174,13 +236,37 @@ class Solver:
                                f"{environment.kind} environment: {reason}")
 
     def validity(self, problem) -> list:
-        """Cautions for the parts of the problem outside the method's validity."""
+        """Cautions for the parts of the problem outside the method's validity.
+
+        Parameters
+        ----------
+        problem : Problem
+            The resolved problem (outer semi-axes [nm], wavelengths [nm], host index [1]).
+
+        Returns
+        -------
+        list of Caution
+            A ``size-beyond-method`` caution where k a_max > ``max_ka``
+            (:func:`nanoabs.validity.size_check`), else empty.
+        """
         if not math.isfinite(self.max_ka):
             return []
         return size_check(self.name, problem.particle.outer_semi_axes_nm(), problem.wavelength_nm,
                           problem.n_medium, self.max_ka, self.advice)
 
     def solve(self, problem) -> Response:  # pragma: no cover - every solver overrides it
+        """Cross-sections of the particle in a homogeneous host.
+
+        Parameters
+        ----------
+        problem : Problem
+            The resolved problem; ``problem.eps_layers`` [1] and ``problem.k`` [1/nm].
+
+        Returns
+        -------
+        Response
+            σ_abs, σ_sca, σ_ext [nm²] of shape (..., W).
+        """
         raise NotImplementedError
 
 
@@ -205,6 +291,28 @@ def choose(method: str, particle, environment) -> tuple:
     the particle and the environment: full Mie for spheres and layered spheres,
     the corrected quasi-static model for ellipsoids. The reason is recorded in
     the metadata.
+
+    Parameters
+    ----------
+    method : str
+        ``"auto"`` or a key of :data:`METHODS` (case-insensitive).
+    particle : Sphere, LayeredSphere or Ellipsoid
+        The particle.
+    environment : object
+        The environment (its ``kind`` must be served by the solver).
+
+    Returns
+    -------
+    solver : Solver
+        The chosen solver.
+    reason : str
+        Why it was chosen (for ``metadata["method_reason"]``).
+
+    Raises
+    ------
+    NanoabsError
+        If the method is unknown, cannot treat the particle or the environment, or no
+        method can ("auto").
     """
     names = ["auto", *METHODS]
     method = check_choice("method", method, names)

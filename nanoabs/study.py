@@ -11,6 +11,7 @@ Markdown summary into an output folder. The schema is documented in the README
 
 from __future__ import annotations
 
+import glob
 import math
 import os
 import shutil
@@ -422,9 +423,11 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
     job = _prepare(doc)
     with exclusive_lock(out, "report folder"):
         out = _output_dir(out_dir, force)  # again, now that no one else writes it
+        name, parent = out.resolve().name, out.resolve().parent
+        for stale in parent.glob(f".{glob.escape(name)}.*.partial"):  # left by a killed run
+            shutil.rmtree(stale, ignore_errors=True)
         try:
-            tmp = Path(tempfile.mkdtemp(prefix=f".{out.resolve().name}.", suffix=".partial",
-                                        dir=out.resolve().parent))
+            tmp = Path(tempfile.mkdtemp(prefix=f".{name}.", suffix=".partial", dir=parent))
         except OSError as exc:
             raise NanoabsError(f"output folder {str(out)!r}: cannot write beside it ({exc.__class__.__name__})") \
                 from None
@@ -467,12 +470,44 @@ def _write_report(job, rep, progress):
         _search_section(job, rep, progress)
     if job["figures"] and barrier[0]:
         _yield_figure(job, rep)
+    L += _data_sources(job)
     L += ["## Cautions", "", " ".join(SAFETY_CAUTION.split()), "",
           "These are model estimates (sparse arrays, isolated-particle heating, escape-cone emission) for "
           "comparing designs; they do not replace measurement or a safety review.", "",
-          "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files + ["summary.md"]))]
+          "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files))]
     text = "\n".join(L) + "\n"
     write_file_atomic(rep.path("summary.md"), lambda fh: fh.write(text), force=True)
+
+
+def _data_sources(job) -> list:
+    """'## Data sources': the citation of every optical-constant dataset the study used."""
+    found = {}
+
+    def visit(obj, depth=0):
+        if depth > 4:
+            return
+        if hasattr(obj, "layer_materials"):
+            for m in obj.layer_materials():
+                visit(m, depth + 1)
+        elif hasattr(obj, "permittivity") and callable(getattr(obj, "metadata", None)):
+            meta = obj.metadata()
+            if isinstance(meta, dict) and meta.get("reference"):
+                found.setdefault(obj.label, meta)
+        elif isinstance(obj, dict):
+            for v in obj.values():
+                visit(v, depth + 1)
+        elif isinstance(obj, (list, tuple)):
+            for v in obj:
+                visit(v, depth + 1)
+
+    visit(job)
+    if not found:
+        return []
+    lines = ["## Data sources", ""]
+    for label, meta in sorted(found.items()):
+        doi = f" doi:{meta['doi']}" if meta.get("doi") else ""
+        lines.append(f"- {label}: {meta['reference']}.{doi} {meta.get('dataset', '')}".rstrip())
+    return lines + [""]
 
 
 def _particles_section(job, rep):
@@ -506,7 +541,8 @@ def _particles_section(job, rep):
         tot = res.totals
         cur = tot.get("photocurrent_A", tot.get("peak_photocurrent_A"))
         dT = tot.get("temperature_rise_K")
-        L.append(f"| {t['name']} | {spec.metadata['method']} | {sm['peak_wavelength_nm']:.0f} | "
+        peak = _f(sm["peak_wavelength_nm"], ".0f") if sm["peak_status"] == "peak" else sm["peak_status"]
+        L.append(f"| {t['name']} | {spec.metadata['method']} | {peak} | "
                  f"{_f(sm['fwhm_nm'], '.0f')} | {sm['peak_sigma_abs_m2']:.3g} | "
                  f"{sm['absorbed_fraction_at_peak']:.2f} | {cur:.3g} | {_f(dT, '.2g')} |")
         curves.append((t["name"], wl, spec.sigma_abs_m2))
@@ -545,7 +581,8 @@ def _sweep_reduced(path, param, n, wl, band):
     inb = (wl >= band[0]) & (wl <= band[1]) if band else np.zeros(W, bool)
     step = max(1, -(-n // _MAP_ROWS))
     vals, peaks, foms, map_ids, map_rows = [], [], [], [], []
-    for chunk in pd.read_csv(path, usecols=["design_id", param, "sigma_abs_m2"], chunksize=W * 512):
+    for chunk in pd.read_csv(path, usecols=["design_id", param, "sigma_abs_m2"], chunksize=W * 512,
+                             float_precision="round_trip"):
         sa = chunk["sigma_abs_m2"].to_numpy(dtype=float).reshape(-1, W)
         ids = chunk["design_id"].to_numpy()[::W]
         vals.append(chunk[param].to_numpy(dtype=float)[::W])

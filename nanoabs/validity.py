@@ -34,7 +34,7 @@ class NanoabsWarning(UserWarning):
 class Caution:
     """One thing a user should know about a result.
 
-    Attributes
+    Parameters
     ----------
     code : str
         Short machine-readable code (see the module docstring).
@@ -49,6 +49,7 @@ class Caution:
     wavelength_nm: tuple | None = None
 
     def to_dict(self) -> dict:
+        """JSON-ready form for ``metadata["cautions"]`` (wavelengths [nm] as a 2-list)."""
         d = {"code": self.code, "message": self.message}
         if self.wavelength_nm is not None:
             d["wavelength_nm"] = [float(self.wavelength_nm[0]), float(self.wavelength_nm[1])]
@@ -56,13 +57,30 @@ class Caution:
 
 
 def emit(cautions, *, stacklevel: int = 3) -> None:
-    """Issue each caution once through :func:`warnings.warn` as a :class:`NanoabsWarning`."""
+    """Issue each caution once through :func:`warnings.warn` as a :class:`NanoabsWarning`.
+
+    Parameters
+    ----------
+    cautions : iterable of Caution
+        The cautions to issue (their ``message`` is the warning text).
+    stacklevel : int, keyword-only
+        Passed to :func:`warnings.warn`: 3 points at the caller of the function that
+        calls ``emit``.
+    """
     for c in cautions:
         warnings.warn(c.message, NanoabsWarning, stacklevel=stacklevel)
 
 
 def emit_messages(messages, *, stacklevel: int = 3) -> None:
-    """Issue already-collected caution messages (e.g. the collapsed list of a sweep) as warnings."""
+    """Issue already-collected caution messages (e.g. the collapsed list of a sweep) as warnings.
+
+    Parameters
+    ----------
+    messages : iterable of str
+        One line each.
+    stacklevel : int
+        Passed to :func:`warnings.warn` (3: the caller of the function that emits).
+    """
     for m in messages:
         warnings.warn(m, NanoabsWarning, stacklevel=stacklevel)
 
@@ -82,9 +100,9 @@ def size_check(method: str, semi_axes_nm, wavelength_nm, n_medium, limit_ka: flo
     wavelength_nm : (W,) ndarray
         Vacuum wavelengths [nm].
     n_medium : (W,) ndarray
-        Real refractive index of the host.
+        Real refractive index of the host [1].
     limit_ka : float
-        Largest ``k a_max = 2π n a_max / λ`` the method is trusted for.
+        Largest ``k a_max = 2π n a_max / λ`` the method is trusted for [1].
     advice : str
         What to use instead (appended to the message).
 

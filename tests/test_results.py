@@ -56,3 +56,30 @@ def test_xarray_dataset_and_netcdf_round_trip(tmp_path):
         write_netcdf(ds, tmp_path / "s.nc")  # never overwrite unless asked
     with pytest.raises(NanoabsError, match="dims"):
         s.to_xarray(dims=["a", "b"])
+
+
+def test_sweep_as_dataset_and_cli_netcdf(tmp_path):
+    pytest.importorskip("xarray")
+    from nanoabs import design
+    from nanoabs.cli import main
+    from nanoabs.dataset import read_netcdf
+
+    wl = np.linspace(500.0, 1200.0, 71)
+    frame = design.sweep("spheroid", {"diameter_nm": [20.0], "length_nm": [40.0, 80.0, 120.0]}, wl,
+                         polarization="long", progress=False)
+    ds = design.sweep("spheroid", {"diameter_nm": [20.0], "length_nm": [40.0, 80.0, 120.0]}, wl,
+                      polarization="long", progress=False, as_dataset=True)
+    assert ds.sigma_abs_m2.dims == ("length_nm", "wavelength_nm") and float(ds.diameter_nm) == 20.0
+    for L in (40.0, 80.0, 120.0):  # the same numbers as the tidy table
+        rows = frame[frame.length_nm == L].sort_values("wavelength_nm")
+        np.testing.assert_array_equal(ds.sigma_abs_m2.sel(length_nm=L).values, rows.sigma_abs_m2.values)
+    assert ds.sigma_abs_m2.attrs["units"] == "m2"
+    out = tmp_path / "rods.nc"
+    code = main(["sweep", "--shape", "spheroid", "--material", "Au", "--param", "diameter_nm=20", "--param",
+                 "length_nm=40:120:40", "--medium", "water", "--polarization", "long", "--wl", "500:1200:10",
+                 "-o", str(out), "--quiet"])
+    assert code == 0
+    back = read_netcdf(out)
+    assert back.sigma_abs_m2.shape == (3, 71) and back.wavelength_nm.attrs["units"] == "nm"
+    assert main(["sweep", "--shape", "sphere", "--param", "radius_nm=10", "--wl", "500:600:10", "-o",
+                 str(out), "--quiet"]) == 2  # exists: never overwritten without --force

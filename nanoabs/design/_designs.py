@@ -60,6 +60,24 @@ def _material_meta(value) -> dict:
     return meta if isinstance(meta, dict) else {"description": str(meta)}
 
 
+def _material_list(what, value):
+    """One material (name, index or object) or a list/tuple of them, as a list."""
+    if isinstance(value, (str, int, float)) or hasattr(value, "permittivity"):
+        return [value]
+    if isinstance(value, (list, tuple, np.ndarray)) and all(
+            isinstance(v, (str, int, float)) or hasattr(v, "permittivity") for v in list(value)):
+        return list(value)
+    raise NanoabsError(f"{what} = {type(value).__name__}: give a material name (or index, or material object) "
+                       "or a list of them")
+
+
+def check_flag(name, value) -> bool:
+    """``value`` if it is a bool (numpy bools too); strings such as "no" are refused, not read as true."""
+    if not isinstance(value, (bool, np.bool_)):
+        raise NanoabsError(f"{name} = {value!r}: must be True or False")
+    return bool(value)
+
+
 def _allowed_names(shape):
     extra = ["material", "medium_index"] + (["core_material"] if shape == "shell" else [])
     return list(_GEOMETRY[shape]) + extra
@@ -81,7 +99,7 @@ def _canonical_params(shape, params, *, what="params"):
         if name in out:
             raise NanoabsError(f"{what}: {name!r} is given twice (also as an alias); give it once")
         if name in ("material", "core_material"):
-            vals = [value] if isinstance(value, str) or hasattr(value, "permittivity") else list(value)
+            vals = _material_list(f"{what}[{key!r}]", value)
             if not vals:
                 raise NanoabsError(f"{what}[{key!r}] is empty: give at least one material")
             for v in vals:
@@ -141,7 +159,8 @@ def _make_plan(shape, params, wavelength_nm, *, material, core, medium, polariza
         "shape": shape, "names": names, "values": [canon[n] for n in names], "lengths": lengths,
         "n_designs": math.prod(lengths), "wavelength_nm": wl,
         "material": material, "core": core, "medium": medium, "polarization": polarization,
-        "method": method, "surface_damping": bool(surface_damping), "chunk_size": int(chunk_size),
+        "method": method, "surface_damping": check_flag("surface_damping", surface_damping),
+        "chunk_size": int(chunk_size),
     }
     return plan
 

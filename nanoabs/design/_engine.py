@@ -116,9 +116,11 @@ def run_chunks(executor, fn, plan, todo):
         if executor not in ("processes", "process"):
             raise NanoabsError(f"executor = {executor!r}: allowed are None, 'processes' or an object with "
                                ".submit(fn, *args) (concurrent.futures executor, dask.distributed.Client)")
+        import os
         from concurrent.futures import ProcessPoolExecutor
 
-        executor, own = ProcessPoolExecutor(max_workers=2), True
+        executor = ProcessPoolExecutor(max_workers=2, initializer=_exit_with_parent, initargs=(os.getpid(),))
+        own = True
     elif not callable(getattr(executor, "submit", None)):
         raise NanoabsError(f"executor = {type(executor).__name__}: must be None, 'processes' or an object with "
                            ".submit(fn, *args) returning futures with .result()")
@@ -144,6 +146,20 @@ def run_chunks(executor, fn, plan, todo):
                     pass
         if own:
             executor.shutdown(wait=True, cancel_futures=True)
+
+
+def _exit_with_parent(parent_pid, period_s=1.0):
+    """In a pool worker: exit when the process that started the pool is gone (killed, not shut down)."""
+    import os
+    import threading
+    import time
+
+    def watch():
+        while os.getppid() == parent_pid:
+            time.sleep(period_s)
+        os._exit(1)
+
+    threading.Thread(target=watch, daemon=True, name="nanoabs-parent-watch").start()
 
 
 def executor_name(executor):

@@ -11,14 +11,16 @@ from .. import __version__
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
-from ._designs import _evaluate, _material_label, _material_meta, _resolve_material
+from ._designs import _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
 from ._engine import collapse, progress_bar, unique
 from ._sweep import _TEXT_UNIT
 
 #: Particle families of :func:`search`.
 FAMILIES = ("sphere", "shell", "rod", "disc")
 #: Figures of merit of :func:`search`.
-OBJECTIVES = ("sigma_abs", "sigma_abs_per_volume", "q_abs", "absorbed_fraction", "injection")
+OBJECTIVES = ("sigma_abs", "sigma_abs_per_volume", "q_abs", "absorbed_fraction", "injection", "selectivity")
+#: How the figures of merit of several bands combine into one.
+COMBINE = ("worst", "mean")
 
 def band(center_nm=None, width_nm=None, lo_nm=None, hi_nm=None):
     """A target band (lo, hi) [nm] from its centre and width, or from its edges.
@@ -40,23 +42,24 @@ def band(center_nm=None, width_nm=None, lo_nm=None, hi_nm=None):
     if by_centre == by_edges:
         raise NanoabsError("band: give either center_nm and width_nm, or lo_nm and hi_nm")
     if by_centre:
-        if center_nm is None or width_nm is None:
-            raise NanoabsError("band: give both center_nm and width_nm")
-        c = float(check_finite_array("center_nm", center_nm)[0])
-        w = float(check_finite_array("width_nm", width_nm)[0])
+        c, w = _two_numbers(center_nm=center_nm, width_nm=width_nm)
         if w <= 0:
             raise NanoabsError(f"width_nm = {w:g} nm: must be > 0")
         lo, hi = c - w / 2, c + w / 2
     else:
-        if lo_nm is None or hi_nm is None:
-            raise NanoabsError("band: give both lo_nm and hi_nm")
-        lo = float(check_finite_array("lo_nm", lo_nm)[0])
-        hi = float(check_finite_array("hi_nm", hi_nm)[0])
+        lo, hi = _two_numbers(lo_nm=lo_nm, hi_nm=hi_nm)
     if lo <= 0:
         raise NanoabsError(f"band lower edge = {lo:g} nm: must be > 0")
     if hi <= lo:
         raise NanoabsError(f"band upper edge = {hi:g} nm: must be above the lower edge {lo:g} nm")
     return lo, hi
+
+
+def _two_numbers(**given):
+    """The two keyword values as finite floats; both must be given."""
+    if any(v is None for v in given.values()):
+        raise NanoabsError(f"band: give both {' and '.join(given)}")
+    return tuple(float(check_finite_array(k, v)[0]) for k, v in given.items())
 
 
 _FAMILY_SHAPE = {"sphere": "sphere", "shell": "shell", "rod": "spheroid", "disc": "spheroid"}
@@ -66,7 +69,7 @@ _FAMILY_DIMS = {"sphere": ("radius_nm",), "shell": ("core_radius_nm", "thickness
                 "rod": ("length_nm", "diameter_nm"), "disc": ("length_nm", "diameter_nm")}
 _GRID = {"sphere": (64,), "shell": (18, 18), "rod": (32, 8), "disc": (24, 10)}
 _FOM_UNITS = {"sigma_abs": "m^2", "sigma_abs_per_volume": "m^-1", "q_abs": "1", "absorbed_fraction": "1",
-              "injection": "s^-1"}
+              "injection": "s^-1", "selectivity": "1"}
 _FOM_TEXT = {
     "sigma_abs": "band average of sigma_abs",
     "sigma_abs_per_volume": "band average of sigma_abs per metal volume",
@@ -74,6 +77,8 @@ _FOM_TEXT = {
     "absorbed_fraction": "band average of sigma_abs / sigma_ext",
     "injection": "band-integrated injected-electron rate per particle, integral of "
                  "sigma_abs E_lambda lambda/(h c) eta(lambda) d lambda, escape-cone yield eta, transport factor 1",
+    "selectivity": "band average of sigma_abs divided by its average over the rest of the window "
+                   "(in-band absorption relative to out-of-band absorption)",
 }
 
 
@@ -120,13 +125,27 @@ def _outer_size(family, g):
 
 
 class _Problem:
-    """Evaluates a family's designs for the search: spectra, figure of merit, band averages."""
+    """Evaluates a family's designs for the search: spectra, figure of merit per band, peak position.
 
-    def __init__(self, family, mat, core, medium, settings, band_wl, lo, hi, objective, injection):
+    ``bands`` is a list of (lo, hi, band grid, injection inputs or None); the spectra are computed
+    once on the union of the band grids and a coarse grid over the whole window (for the peak
+    position and the out-of-band average of the selectivity objective).
+    """
+
+    def __init__(self, family, mat, core, medium, settings, bands, window, objective, combine, peak_in_band):
         self.family, self.mat, self.core, self.medium = family, mat, core, medium
         self.shape = _FAMILY_SHAPE[family]
-        self.settings, self.band_wl, self.lo, self.hi = settings, band_wl, lo, hi
-        self.objective, self.injection = objective, injection
+        self.settings, self.bands, self.objective = settings, bands, objective
+        self.combine, self.peak_in_band = combine, peak_in_band
+        coarse = np.linspace(window[0], window[-1], 161)
+        self.grid = np.unique(np.concatenate([coarse] + [b[2] for b in bands]))
+        self.band_idx = [np.searchsorted(self.grid, b[2]) for b in bands]
+        self.coarse_idx = np.searchsorted(self.grid, coarse)
+        self.step = float(coarse[1] - coarse[0])
+        in_any = np.zeros(coarse.size, bool)
+        for lo, hi, _, _ in bands:
+            in_any |= (coarse >= lo) & (coarse <= hi)
+        self.out_idx = self.coarse_idx[~in_any]
         self.warnings = set()
 
     def table(self, g):
@@ -144,30 +163,62 @@ class _Problem:
         self.warnings.update(res["warnings"])
         return res
 
-    def fom(self, g):
-        """(figure of merit, band-average absorbed fraction) of designs g."""
+    def _band_values(self, res, idx, injection):
+        """(objective values on one band's grid, absorbed fraction there)."""
+        sa = res["sigma_abs_m2"][:, idx]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            af = np.where(res["sigma_ext_m2"][:, idx] > 0, sa / res["sigma_ext_m2"][:, idx], np.nan)
+            if self.objective in ("sigma_abs", "selectivity"):
+                return sa, af
+            if self.objective == "sigma_abs_per_volume":
+                return sa / res["metal_volume_m3"][:, None], af
+            if self.objective == "q_abs":
+                return sa / res["geometric_cross_section_m2"][:, idx], af
+            if self.objective == "absorbed_fraction":
+                return af, af
+        E, eta = injection
+        return sa * E * (self.grid[idx] * 1e-9) / _HC_J_M * eta, af  # [s^-1 nm^-1]
+
+    def evaluate(self, g):
+        """Figures of merit of designs g: dict with the combined value, one per band, the band-average
+        absorbed fraction, the coarse peak [nm] and whether it lies in a band."""
         from scipy.integrate import trapezoid
 
-        res = self.spectra(g, self.band_wl)
-        wl, sa = self.band_wl, res["sigma_abs_m2"]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            af = np.where(res["sigma_ext_m2"] > 0, sa / res["sigma_ext_m2"], np.nan)
-            if self.objective == "sigma_abs":
-                y = sa
-            elif self.objective == "sigma_abs_per_volume":
-                y = sa / res["metal_volume_m3"][:, None]
-            elif self.objective == "q_abs":
-                y = sa / res["geometric_cross_section_m2"]
-            elif self.objective == "absorbed_fraction":
-                y = af
-            else:
-                E, eta = self.injection
-                y = sa * E * (wl * 1e-9) / _HC_J_M * eta  # [s^-1 nm^-1]
-        width = self.hi - self.lo
-        af_avg = trapezoid(af, wl, axis=-1) / width
-        if self.objective == "injection":
-            return trapezoid(y, wl, axis=-1), af_avg
-        return trapezoid(y, wl, axis=-1) / width, af_avg
+        res = self.spectra(g, self.grid)
+        per_band, afs = [], []
+        for (lo, hi, _, inj), idx in zip(self.bands, self.band_idx):
+            y, af = self._band_values(res, idx, inj)
+            wl = self.grid[idx]
+            scale = 1.0 if self.objective == "injection" else hi - lo
+            per_band.append(trapezoid(y, wl, axis=-1) / scale)
+            afs.append(trapezoid(af, wl, axis=-1) / (hi - lo))
+        per_band = np.stack(per_band, axis=-1)
+        if self.objective == "selectivity":
+            outside = res["sigma_abs_m2"][:, self.out_idx].mean(axis=-1) if self.out_idx.size else np.nan
+            with np.errstate(divide="ignore", invalid="ignore"):
+                per_band = per_band / np.asarray(outside)[..., None]
+        fom = per_band.min(axis=-1) if self.combine == "worst" else per_band.mean(axis=-1)
+        peak, in_band = self._coarse_peak(res["sigma_abs_m2"][:, self.coarse_idx])
+        if self.peak_in_band:
+            fom = np.where(in_band, fom, -np.inf)
+        return {"fom": fom, "per_band": per_band, "absorbed_fraction": np.mean(afs, axis=0),
+                "peak_nm": peak, "in_band": in_band}
+
+    def fom(self, g):
+        """(figure of merit, band-average absorbed fraction) of designs g."""
+        r = self.evaluate(g)
+        return r["fom"], r["absorbed_fraction"]
+
+    def _coarse_peak(self, sa):
+        """Peak [nm] on the coarse window grid (NaN at the window edge) and whether it is in a band
+        (within one coarse step of a band edge)."""
+        coarse = self.grid[self.coarse_idx]
+        j = np.argmax(sa, axis=-1)
+        peak = np.where((j > 0) & (j < coarse.size - 1), coarse[j], np.nan)
+        in_band = np.zeros(peak.shape, bool)
+        for lo, hi, _, _ in self.bands:
+            in_band |= (peak >= lo - self.step) & (peak <= hi + self.step)
+        return peak, in_band
 
 
 _HC_J_M = 6.62607015e-34 * 299792458.0  # h c [J m] (exact SI values)
@@ -197,8 +248,9 @@ def _ranges(*materials):
 def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs", bounds=None,
            materials=("Au",), core="SiO2", medium="water", illumination=None, barrier_eV=None,
            fermi_energy_eV=None, min_shell_nm=2.0, max_size_nm=150.0, polarization="random",
-           method="auto", surface_damping=True, wavelength_nm=None, n_starts=2, top=10, progress=None):
-    """Rank particle designs by a figure of merit averaged over a target band.
+           method="auto", surface_damping=True, wavelength_nm=None, n_starts=2, top=10, progress=None,
+           combine="worst", peak_in_band=True, recheck=True):
+    """Rank particle designs by a figure of merit averaged over one or several target bands.
 
     Algorithm: per family and material, (1) one vectorised spectrum call over a
     coarse grid (log-spaced in each variable within ``bounds``, infeasible
@@ -212,8 +264,9 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
 
     Parameters
     ----------
-    band_nm : (float, float)
-        Target band edges [nm] (see :func:`band` for centre/width).
+    band_nm : (float, float) or sequence of them
+        Target band edges [nm] (see :func:`band` for centre/width); several bands (e.g.
+        ``[(1260, 1360), (1530, 1565)]``) are scored separately and combined by ``combine``.
     families : sequence of {"sphere", "shell", "rod", "disc"}, keyword-only
         "sphere": radius; "shell": dielectric core radius + metal shell
         thickness; "rod": prolate spheroid (aspect ratio length/diameter ≥ 1,
@@ -227,7 +280,9 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         (band integral of σ_abs E_λ λ/(hc) η(λ) [s⁻¹]: injected electrons per
         second per particle with the escape-cone yield η of
         :func:`nanoabs.hotcarriers.escape_cone_yield` and transport factor 1,
-        i.e. every hot carrier reaches the interface — an upper bound).
+        i.e. every hot carrier reaches the interface — an upper bound),
+        "selectivity" (band average of σ_abs divided by its average over the rest of
+        the window [1]: in-band relative to out-of-band absorption).
     bounds : dict, keyword-only
         ``{family: {variable: (lo, hi)}}`` overriding the defaults: sphere
         radius_nm (2.5, max_size/2); shell core_radius_nm (5, max_size/2 −
@@ -265,6 +320,18 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     progress : bool or None, keyword-only
         Progress bar on stderr for searches longer than ~0.5 s: True always,
         False never, None (default) only when stderr is a terminal.
+    combine : {"worst", "mean"}, keyword-only
+        Several bands: rank by the worst band's figure of merit (default: the design must
+        serve every band) or by their mean.
+    peak_in_band : bool, keyword-only
+        True (default): a design counts only if its absorption peak (the maximum of σ_abs
+        inside the window, not at its edge) lies in one of the bands; designs that merely
+        have a tail in the band are left out. False: rank every design, and say in the
+        ``peak_in_band`` column where each peaks.
+    recheck : bool, keyword-only
+        True (default): recompute each ranked row with the best available solver (the
+        ``"auto"`` rule of :func:`nanoabs.solvers.choose`, exact methods first) and report
+        it in the ``recheck_*`` columns beside the coarse method's values.
 
     Returns
     -------
@@ -275,7 +342,11 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         ``aspect_ratio`` (NaN where not applicable), ``outer_size_nm``,
         ``peak_wavelength_nm`` (global σ_abs maximum in the window, refined on
         a 0.1 nm grid; NaN when it sits at the window edge), ``fwhm_nm``,
-        ``figure_of_merit``, ``absorbed_fraction`` (band average),
+        ``figure_of_merit``, ``figure_of_merit_band_<i>`` (one per band when there are
+        several), ``absorbed_fraction`` (band average), ``peak_in_band`` ("yes"/"no"),
+        ``method`` (the coarse method), ``validity`` ("ok" or the caution codes of that
+        method for this design), ``recheck_method``, ``recheck_peak_wavelength_nm``,
+        ``recheck_figure_of_merit`` (NaN when ``recheck`` is False),
         ``dpeak_d_<dimension>`` (d peak / d dimension [nm/nm] by a central
         difference of ±1 nm, other dimensions fixed; for rods and discs the
         dimensions are length and diameter), ``stage`` ("refined" or "grid").
@@ -287,7 +358,9 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
                          core=core, medium=medium, illumination=illumination, barrier_eV=barrier_eV,
                          fermi_energy_eV=fermi_energy_eV, min_shell_nm=min_shell_nm, max_size_nm=max_size_nm,
                          polarization=polarization, method=method, surface_damping=surface_damping,
-                         wavelength_nm=wavelength_nm, n_starts=n_starts, top=top)
+                         wavelength_nm=wavelength_nm, n_starts=n_starts, top=top, combine=combine,
+                         peak_in_band=peak_in_band)
+    cfg["recheck"] = bool(recheck)
     n_tasks = len(cfg["families"]) * len(cfg["mats"]) * (1 + n_starts) + top
     bar = progress_bar(n_tasks, "search", progress)
     candidates, problems = [], {}
@@ -302,6 +375,13 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
             bar.update()
     finally:
         bar.close()
+    if cfg["peak_in_band"]:
+        rows = [r for r in rows if r["peak_in_band"] == "yes"]  # the refined peak decides
+    if not rows:
+        problems_w = {"no design peaks inside the band(s) within the bounds; widen the bounds, change the "
+                      "families or pass peak_in_band=False to see the nearest designs"}
+        for p in problems.values():
+            p.warnings |= problems_w
     rows.sort(key=lambda r: -r["figure_of_merit"])  # stable; the recomputed values decide the rank
     for rank, row in enumerate(rows, 1):
         row["rank"] = rank
@@ -309,23 +389,45 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     return _ranked_frame(rows, cfg, warnings)
 
 
+def _bands(band_nm):
+    """Sorted, non-overlapping list of (lo, hi) [nm] from one band or a sequence of bands."""
+    def is_pair(b):
+        return isinstance(b, (tuple, list, np.ndarray)) and len(b) == 2 and not any(
+            isinstance(x, (tuple, list, np.ndarray)) for x in b)
+
+    items = [band_nm] if is_pair(band_nm) else band_nm
+    if not isinstance(items, (tuple, list)) or not items or not all(is_pair(b) for b in items):
+        raise NanoabsError(f"band_nm = {band_nm!r}: give (lo, hi) in nm or a list of such bands, "
+                           "e.g. [(1260, 1360), (1530, 1565)]")
+    if len(items) > 10:
+        raise NanoabsError(f"band_nm: {len(items)} bands given; allowed range is 1 to 10")
+    out = sorted(band(lo_nm=b[0], hi_nm=b[1]) for b in items)
+    for (a_lo, a_hi), (b_lo, b_hi) in zip(out, out[1:]):
+        if b_lo < a_hi:
+            raise NanoabsError(f"bands ({a_lo:g}, {a_hi:g}) and ({b_lo:g}, {b_hi:g}) nm overlap: give "
+                               "separate bands or one band that covers both")
+    return out
+
+
 def search_inputs(band_nm, *, families, objective, bounds, materials, core, medium, illumination, barrier_eV,
                    fermi_energy_eV, min_shell_nm, max_size_nm, polarization, method, surface_damping,
-                   wavelength_nm, n_starts, top):
+                   wavelength_nm, n_starts, top, combine="worst", peak_in_band=True):
     """The validated inputs of :func:`search` as one dict; raises before any spectrum is computed."""
-    if not (isinstance(band_nm, (tuple, list, np.ndarray)) and len(band_nm) == 2):
-        raise NanoabsError(f"band_nm = {band_nm!r}: give (lo, hi) in nm, e.g. band(center_nm=..., width_nm=...)")
-    lo, hi = band(lo_nm=band_nm[0], hi_nm=band_nm[1])
+    bands = _bands(band_nm)
+    lo, hi = bands[0][0], bands[-1][1]
     objective = check_choice("objective", objective, OBJECTIVES)
+    combine = check_choice("combine", combine, COMBINE)
+    if not isinstance(peak_in_band, (bool, np.bool_)):
+        raise NanoabsError(f"peak_in_band = {peak_in_band!r}: must be True or False")
     if isinstance(families, str):
         families = [families]
+    if not isinstance(families, (list, tuple)):
+        raise NanoabsError(f"families = {families!r}: give a list of {', '.join(FAMILIES)}")
     families = [check_choice("family", f, FAMILIES) for f in families]
     if not families:
         raise NanoabsError("families is empty: give at least one of " + ", ".join(FAMILIES))
     families = unique(families)
-    if isinstance(materials, str) or hasattr(materials, "permittivity"):
-        materials = [materials]
-    materials = list(materials)
+    materials = _material_list("materials", materials)
     if not materials:
         raise NanoabsError("materials is empty: give at least one metal")
     mats = [_resolve_material(m) for m in materials]
@@ -351,16 +453,21 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
         if lo < window[0] or hi > window[-1]:
             raise NanoabsError(f"band = ({lo:g}, {hi:g}) nm lies outside wavelength_nm, {window[0]:g} to "
                                f"{window[-1]:g} nm")
-    band_wl = np.linspace(lo, hi, int(min(max(41, math.ceil((hi - lo) / 2.0) + 1), 201)))
-    inj, inj_meta = {}, None
-    if objective == "injection":
-        band_wl, inj, inj_meta = _injection_inputs(lo, hi, band_wl, mats, illumination, barrier_eV,
-                                                   fermi_energy_eV)
-    return {"lo": lo, "hi": hi, "objective": objective, "families": families, "materials": materials,
+    band_grids, inj_meta = [], None
+    for b_lo, b_hi in bands:
+        band_wl = np.linspace(b_lo, b_hi, int(min(max(41, math.ceil((b_hi - b_lo) / 2.0) + 1), 201)))
+        inj = {}
+        if objective == "injection":
+            band_wl, inj, inj_meta = _injection_inputs(b_lo, b_hi, band_wl, mats, illumination, barrier_eV,
+                                                       fermi_energy_eV)
+        band_grids.append((b_lo, b_hi, band_wl, inj))
+    return {"lo": lo, "hi": hi, "bands": band_grids, "objective": objective, "combine": combine,
+            "peak_in_band": bool(peak_in_band), "families": families, "materials": materials,
             "mats": mats, "core": core, "core_m": core_m, "medium": medium, "med": med, "min_shell": min_shell,
-            "max_size": max_size, "n_starts": n_starts, "window": window, "band_wl": band_wl, "inj": inj,
+            "max_size": max_size, "n_starts": n_starts, "window": window,
+            "band_wl": np.concatenate([b[2] for b in band_grids]),
             "inj_meta": inj_meta, "fam_bounds": _family_bounds(bounds, families, min_shell, max_size),
-            "settings": {"method": method, "polarization": polarization, "surface_damping": bool(surface_damping)}}
+            "settings": {"method": method, "polarization": polarization, "surface_damping": check_flag("surface_damping", surface_damping)}}
 
 
 def _injection_inputs(lo, hi, band_wl, mats, illumination, barrier_eV, fermi_energy_eV):
@@ -428,11 +535,21 @@ def _family_bounds(bounds, families, min_shell, max_size):
     return fam_bounds
 
 
-def _problem(cfg, fam, mi):
+#: The fast method of each family for the coarse stage of a search when method = "auto".
+_COARSE_METHOD = {"sphere": "mie", "shell": "mie", "rod": "mlwa", "disc": "mlwa"}
+
+
+def _problem(cfg, fam, mi, method=None):
     m = cfg["mats"][mi]
-    return _Problem(fam, m, cfg["core_m"] if fam == "shell" else None, cfg["med"], cfg["settings"],
-                    cfg["band_wl"], cfg["lo"], cfg["hi"], cfg["objective"],
-                    cfg["inj"][id(m)] if cfg["objective"] == "injection" else None)
+    settings = dict(cfg["settings"])
+    if method is not None:
+        settings["method"] = method
+    elif settings["method"] == "auto":
+        settings["method"] = _COARSE_METHOD[fam]
+    bands = [(lo, hi, wl, inj[id(m)] if cfg["objective"] == "injection" else None)
+             for lo, hi, wl, inj in cfg["bands"]]
+    return _Problem(fam, m, cfg["core_m"] if fam == "shell" else None, cfg["med"], settings, bands,
+                    cfg["window"], cfg["objective"], cfg["combine"], cfg["peak_in_band"])
 
 
 def _to_v(cfg, fam, u):
@@ -500,20 +617,63 @@ def _refine(cfg, prob, u0, scale):
 
 
 def _design_row(cfg, prob, c):
-    """One row of the ranked table: dimensions, peak report, figure of merit of candidate ``c``."""
+    """One row of the ranked table: dimensions, peak report, figures of merit, validity and the
+    recheck by the best available solver for candidate ``c``."""
     fam = c["family"]
     g = _geometry_of(fam, _to_v(cfg, fam, c["u"])[None, :])
-    fom, af = prob.fom(g)
+    ev = prob.evaluate(g)
     row = {"rank": 0, "family": fam, "material": _material_label(cfg["materials"][c["mi"]]),
            "core_material": _material_label(cfg["core"]) if fam == "shell" else ""}
     for d in ("radius_nm", "core_radius_nm", "thickness_nm", "length_nm", "diameter_nm", "aspect_ratio"):
         row[d] = float(g[d][0]) if d in g else float("nan")
     row["outer_size_nm"] = float(_outer_size(fam, g)[0])
     row.update(_peak_report(prob, fam, g, cfg["window"]))
-    row["figure_of_merit"] = float(fom[0])
-    row["absorbed_fraction"] = float(af[0])
+    peak = row["peak_wavelength_nm"]
+    row["peak_in_band"] = "yes" if any(lo <= peak <= hi for lo, hi, _, _ in cfg["bands"]) else "no"
+    per_band = ev["per_band"][0]
+    row["figure_of_merit"] = float(per_band.min() if cfg["combine"] == "worst" else per_band.mean())
+    for i, v in enumerate(per_band, 1):
+        row[f"figure_of_merit_band_{i}"] = float(v)
+    row["absorbed_fraction"] = float(ev["absorbed_fraction"][0])
+    row["method"] = prob.settings["method"]
+    row["validity"] = _validity(prob, g, cfg["window"])
+    row.update(_recheck(cfg, c, g) if cfg["recheck"] else
+               {"recheck_method": "", "recheck_peak_wavelength_nm": float("nan"),
+                "recheck_figure_of_merit": float("nan")})
     row["stage"] = c["stage"]
     return row
+
+
+def _one_particle(prob, g):
+    from ._designs import _particle
+
+    return _particle(prob.shape, prob.table(g), np.array([0]), prob.mat, prob.core)
+
+
+def _validity(prob, g, window):
+    """"ok", or the codes of the coarse method's size cautions for design ``g`` on the window."""
+    from ..solvers import METHODS, Problem
+
+    solver = METHODS[prob.settings["method"]]
+    n_med = np.atleast_1d(prob.medium.refractive_index(window)).real
+    prb = Problem(_one_particle(prob, g), window, n_med, "x", None, [])
+    codes = sorted({c.code for c in solver.validity(prb)})
+    return ";".join(codes) if codes else "ok"
+
+
+def _recheck(cfg, c, g):
+    """Peak and figure of merit of design ``g`` with the best available solver ("auto" rule)."""
+    from ..solvers import Homogeneous, choose
+
+    prob0 = _problem(cfg, c["family"], c["mi"])
+    best, _ = choose("auto", _one_particle(prob0, g), Homogeneous(prob0.medium))
+    prob = _problem(cfg, c["family"], c["mi"], method=best.name)
+    ev = prob.evaluate(g)
+    per_band = ev["per_band"][0]
+    res = prob.spectra(g, cfg["window"])
+    return {"recheck_method": best.name,
+            "recheck_peak_wavelength_nm": float(_peak(cfg["window"], res["sigma_abs_m2"][0])),
+            "recheck_figure_of_merit": float(per_band.min() if cfg["combine"] == "worst" else per_band.mean())}
 
 
 def _ranked_frame(rows, cfg, warnings):
@@ -521,29 +681,37 @@ def _ranked_frame(rows, cfg, warnings):
     import pandas as pd
 
     objective = cfg["objective"]
+    band_cols = [f"figure_of_merit_band_{i}" for i in range(1, len(cfg["bands"]) + 1)] if len(cfg["bands"]) > 1 \
+        else []
+    text_cols = ("family", "material", "core_material", "stage", "peak_in_band", "method", "validity",
+                 "recheck_method")
     cols = ["rank", "family", "material", "core_material", "radius_nm", "core_radius_nm", "thickness_nm",
             "length_nm", "diameter_nm", "aspect_ratio", "outer_size_nm", "peak_wavelength_nm", "fwhm_nm",
-            "figure_of_merit", "absorbed_fraction"] + [f"dpeak_d_{d}" for d in _SENS_DIMS] + ["stage"]
+            "peak_in_band", "figure_of_merit", *band_cols, "absorbed_fraction", "method", "validity",
+            "recheck_method", "recheck_peak_wavelength_nm", "recheck_figure_of_merit"] + \
+        [f"dpeak_d_{d}" for d in _SENS_DIMS] + ["stage"]
     frame = pd.DataFrame(rows, columns=cols)
     for c in cols:
-        if c in ("family", "material", "core_material", "stage"):
+        if c in text_cols:
             frame[c] = frame[c].astype(str)
         elif c == "rank":
             frame[c] = frame[c].astype(np.int64)
         else:
             frame[c] = frame[c].astype(float)
     units = {c: "nm" for c in cols if c.endswith("_nm")}
-    units.update({"rank": "1", "family": _TEXT_UNIT, "material": _TEXT_UNIT, "core_material": _TEXT_UNIT,
-                  "aspect_ratio": "1", "figure_of_merit": _FOM_UNITS[objective], "absorbed_fraction": "1",
-                  "stage": _TEXT_UNIT})
+    units.update({"rank": "1", "aspect_ratio": "1", "figure_of_merit": _FOM_UNITS[objective],
+                  "recheck_figure_of_merit": _FOM_UNITS[objective], "absorbed_fraction": "1"})
+    units.update({c: _TEXT_UNIT for c in text_cols})
+    units.update({c: _FOM_UNITS[objective] for c in band_cols})
     units.update({f"dpeak_d_{d}": "1" for d in _SENS_DIMS})
     frame.attrs["figure_of_merit"] = {"objective": objective, "name": _FOM_TEXT[objective],
                                       "unit": _FOM_UNITS[objective]}
     frame.attrs["units"] = {c: units[c] for c in cols}
     families, window = cfg["families"], cfg["window"]
     frame.attrs["metadata"] = {
-        "study": "search", "band_nm": [cfg["lo"], cfg["hi"]], "band_grid_points": int(cfg["band_wl"].size),
-        "objective": objective, "figure_of_merit": _FOM_TEXT[objective], "families": families,
+        "study": "search", "band_nm": [cfg["lo"], cfg["hi"]], "bands_nm": [[lo, hi] for lo, hi, _, _ in cfg["bands"]],
+        "combine": cfg["combine"], "peak_in_band": cfg["peak_in_band"],
+        "band_grid_points": int(cfg["band_wl"].size), "objective": objective, "figure_of_merit": _FOM_TEXT[objective], "families": families,
         "bounds": {f: {k: list(v) for k, v in b.items()} for f, b in cfg["fam_bounds"].items()},
         "limits": {"min_shell_nm": cfg["min_shell"], "max_size_nm": cfg["max_size"]},
         "materials": [_material_meta(m) for m in cfg["materials"]],

@@ -173,8 +173,9 @@ def _sweep_metadata(plan, n_chunks, warnings, methods, executor_name):
 
 def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="water",
           polarization="random", method="auto", surface_damping=True, executor=None, chunk_size=64,
-          progress=None, out=None, force=False, memory_budget_MB=256.0, max_points=MAX_POINTS):
-    """Spectra of the Cartesian product of design parameters, as one tidy table.
+          progress=None, out=None, force=False, memory_budget_MB=256.0, max_points=MAX_POINTS,
+          as_dataset=False):
+    """Spectra of the Cartesian product of design parameters, as one tidy table (or an N-D dataset).
 
     Parameters
     ----------
@@ -245,6 +246,10 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
         Largest number of designs x wavelengths allowed (default
         :data:`MAX_POINTS`, 1e8, about 10 GB of CSV); a larger sweep is refused
         unless this is raised explicitly.
+    as_dataset : bool, keyword-only
+        Return an :class:`xarray.Dataset` with dims ``wavelength_nm`` plus the swept
+        parameters and CF ``units`` attributes (:func:`nanoabs.dataset.sweep_dataset`;
+        needs the ``xarray`` extra). Not with ``out``.
 
     Returns
     -------
@@ -270,6 +275,16 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
     >>> df = sweep("sphere", {"radius_nm": [10, 20, 40]}, np.linspace(400, 800, 201), progress=False)
     >>> peaks = df.groupby("radius_nm").apply(lambda g: g.wavelength_nm[g.sigma_abs_m2.idxmax()])
     """
+    if as_dataset:
+        if out is not None:
+            raise NanoabsError("as_dataset=True returns the sweep in memory; write it with "
+                               "nanoabs.dataset.write_netcdf instead of out=")
+        from ..dataset import sweep_dataset
+
+        return sweep_dataset(sweep(shape, params, wavelength_nm, material=material, core=core, medium=medium,
+                                   polarization=polarization, method=method, surface_damping=surface_damping,
+                                   chunk_size=chunk_size, executor=executor, progress=progress,
+                                   max_points=max_points))
     plan, rows = validated_plan(shape, params, wavelength_nm, material=material, core=core, medium=medium,
                                 polarization=polarization, method=method, surface_damping=surface_damping,
                                 chunk_size=chunk_size, max_points=max_points)
