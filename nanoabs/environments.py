@@ -55,7 +55,25 @@ def _transparent(name, mat, wl, role):
 
 
 class Resolved(NamedTuple):
-    """An environment on a wavelength grid (arrays of shape (W,))."""
+    """An environment on a wavelength grid (arrays of shape (W,)).
+
+    Parameters
+    ----------
+    n_host : ndarray
+        Real index of the medium around the particle [1].
+    n_inc : ndarray
+        Real index of the incidence medium [1].
+    host_stack : list of ndarray
+        Permittivities seen from the particle, host first [1].
+    host_thickness_nm : list of float
+        Inner-layer thicknesses in that order [nm].
+    light_stack : list of ndarray
+        Permittivities seen from the incident light, incidence medium first [1].
+    light_thickness_nm : list of float
+        Inner-layer thicknesses in that order [nm].
+    particle_in_incidence_medium : bool
+        True when the particle sits on the side the light comes from.
+    """
 
     n_host: np.ndarray            # real index of the medium around the particle
     n_inc: np.ndarray             # real index of the incidence medium
@@ -77,31 +95,79 @@ class _Planar:
     """Shared behaviour of the planar environments (see module docstring)."""
 
     def host_index(self, wavelength_nm) -> tuple:
-        """(real index of the medium around the particle (W,), cautions) for `nanoabs.spectrum`."""
+        """(real index of the medium around the particle (W,), cautions) for `nanoabs.spectrum`.
+
+        Parameters
+        ----------
+        wavelength_nm : float array_like
+            Vacuum wavelengths [nm].
+        """
         host = self.substrate if self.kind == "buried" else self.superstrate
         self.resolve(wavelength_nm)                      # validates every medium that must be transparent
         return _transparent("host", _mat(host), np.atleast_1d(np.asarray(wavelength_nm, float)), "host")
 
     def apply(self, solver, problem):
-        """Cross-sections of the particle here (see `apply_planar`)."""
+        """Cross-sections of the particle here (see `apply_planar`).
+
+        Parameters
+        ----------
+        solver : nanoabs.solvers.Solver
+            The chosen method.
+        problem : nanoabs.solvers.Problem
+            Particle, wavelengths, host index and permittivities.
+        """
         return apply_planar(self, solver, problem)
 
     def field_factor(self, wavelength_nm, half_height_nm=0.0):
-        """|E_drive/E_inc|^2 at the particle centre without the particle, shape (W,)."""
+        """|E_drive/E_inc|^2 at the particle centre without the particle, shape (W,).
+
+        Parameters
+        ----------
+        wavelength_nm : float array_like
+            Vacuum wavelengths [nm].
+        half_height_nm : float
+            Particle extent below (on_substrate) or above (buried) its centre [nm].
+        """
         return np.sum(np.abs(self.drive_field(wavelength_nm, half_height_nm)) ** 2, -1)
 
     def drive_field(self, wavelength_nm, half_height_nm=0.0, res=None):
-        """E without the particle at the particle centre per unit incident amplitude, (W, 3)."""
+        """E without the particle at the particle centre per unit incident amplitude, (W, 3).
+
+        Parameters
+        ----------
+        wavelength_nm : float array_like
+            Vacuum wavelengths [nm].
+        half_height_nm : float
+            Particle extent below (on_substrate) or above (buried) its centre [nm].
+        res : Resolved, optional
+            This environment already resolved on ``wavelength_nm``.
+        """
         return sum(E for _, E in self.drive_waves(wavelength_nm, half_height_nm, res))
 
     def bare_RT(self, wavelength_nm):
-        """Reflectance R and transmittance T (W,) of the bare stack for the incident wave (`stack.stack_RT`)."""
+        """Reflectance R and transmittance T (W,) of the bare stack for the incident wave (`stack.stack_RT`).
+
+        Parameters
+        ----------
+        wavelength_nm : float array_like
+            Vacuum wavelengths [nm].
+        """
         wl = np.atleast_1d(np.asarray(wavelength_nm, float))
         res = self.resolve(wl)
         return stack_RT(res.light_stack, res.light_thickness_nm, wl, angle_deg=self.angle_deg, pol=self.polarization)
 
     def drive_waves(self, wavelength_nm, half_height_nm=0.0, res=None):
-        """Plane waves (direction, amplitude at the centre) making up the drive field (`stack.plane_waves`)."""
+        """Plane waves (direction, amplitude at the centre) making up the drive field (`stack.plane_waves`).
+
+        Parameters
+        ----------
+        wavelength_nm : float array_like
+            Vacuum wavelengths [nm].
+        half_height_nm : float
+            Particle extent below (on_substrate) or above (buried) its centre [nm].
+        res : Resolved, optional
+            This environment already resolved on ``wavelength_nm``.
+        """
         wl = np.atleast_1d(np.asarray(wavelength_nm, float))
         res = res or self.resolve(wl)
         h = self.center_height_nm(half_height_nm)
@@ -117,7 +183,25 @@ class _Planar:
 
 @dataclass(frozen=True)
 class OnSubstrate(_Planar):
-    """Particle in the superstrate, resting ``gap_nm`` above a substrate or a spacer layer on it."""
+    """Particle in the superstrate, resting ``gap_nm`` above a substrate or a spacer layer on it.
+
+    Made by `on_substrate`, which validates the inputs.
+
+    Parameters
+    ----------
+    substrate, superstrate : str, float or Material
+        Media below and above the surface.
+    gap_nm : float
+        Particle's lowest point to the top surface [nm].
+    spacer : (material, thickness_nm) or None
+        Planar layer between superstrate and substrate.
+    incidence : {"front", "back"}
+        Light from the superstrate side or through the substrate.
+    angle_deg : float
+        Angle of incidence in the incidence medium [deg].
+    polarization : {"s", "p"}
+        Polarisation of oblique light (plane of incidence x-z).
+    """
 
     substrate: object
     superstrate: object = "air"
@@ -130,9 +214,23 @@ class OnSubstrate(_Planar):
     kind = "on_substrate"
 
     def center_height_nm(self, half_height_nm):
+        """Height of the particle centre above the top surface [nm].
+
+        Parameters
+        ----------
+        half_height_nm : float
+            Particle extent below its centre [nm].
+        """
         return self.gap_nm + float(half_height_nm)
 
     def resolve(self, wavelength_nm) -> Resolved:
+        """The environment on a wavelength grid (see `Resolved`).
+
+        Parameters
+        ----------
+        wavelength_nm : float array_like
+            Vacuum wavelengths [nm].
+        """
         wl = np.atleast_1d(np.asarray(wavelength_nm, float))
         sup, sub = _mat(self.superstrate), _mat(self.substrate)
         n_h, _ = _transparent("superstrate", sup, wl, "medium around the particle")
@@ -157,7 +255,23 @@ class OnSubstrate(_Planar):
 
 @dataclass(frozen=True)
 class Buried(_Planar):
-    """Particle inside the substrate, its centre ``depth_nm`` below the planar surface."""
+    """Particle inside the substrate, its centre ``depth_nm`` below the planar surface.
+
+    Made by `buried`, which validates the inputs.
+
+    Parameters
+    ----------
+    substrate, superstrate : str, float or Material
+        Media below and above the surface.
+    depth_nm : float
+        Depth of the particle centre below the surface [nm].
+    incidence : {"front", "back"}
+        Light from the superstrate side or through the substrate.
+    angle_deg : float
+        Angle of incidence in the incidence medium [deg].
+    polarization : {"s", "p"}
+        Polarisation of oblique light (plane of incidence x-z).
+    """
 
     substrate: object
     superstrate: object = "air"
@@ -169,12 +283,26 @@ class Buried(_Planar):
     kind = "buried"
 
     def center_height_nm(self, half_height_nm):
+        """Depth of the particle centre below the surface [nm]; the particle must lie below it.
+
+        Parameters
+        ----------
+        half_height_nm : float
+            Particle extent above its centre [nm].
+        """
         if self.depth_nm <= half_height_nm:
             raise NanoabsError(f"depth_nm = {self.depth_nm:g} nm: the particle (half-height {half_height_nm:g} nm) "
                                f"must lie below the surface; allowed: depth > {half_height_nm:g} nm")
         return self.depth_nm
 
     def resolve(self, wavelength_nm) -> Resolved:
+        """The environment on a wavelength grid (see `Resolved`).
+
+        Parameters
+        ----------
+        wavelength_nm : float array_like
+            Vacuum wavelengths [nm].
+        """
         wl = np.atleast_1d(np.asarray(wavelength_nm, float))
         sup, sub = _mat(self.superstrate), _mat(self.substrate)
         n_h, _ = _transparent("substrate", sub, wl, "medium around the particle (buried)")
@@ -197,9 +325,16 @@ def _light_meta(env) -> dict:
 
 
 def homogeneous(medium="water"):
-    """Particle in one infinite medium (a store name, a number for a constant index, or a Material).
+    """Particle in one infinite medium: the default environment of `nanoabs.spectrum`.
 
-    Returns the default environment of `nanoabs.spectrum`, :class:`nanoabs.solvers.Homogeneous`.
+    Parameters
+    ----------
+    medium : str, float or Material
+        A store name, a number for a constant index, or a Material.
+
+    Returns
+    -------
+    nanoabs.solvers.Homogeneous
     """
     from .solvers import Homogeneous
 
@@ -216,6 +351,10 @@ def _check_spacer(spacer):
         name, t = spacer
     except (TypeError, ValueError):
         raise NanoabsError(f"spacer = {spacer!r}: must be (material, thickness_nm) or 'MATERIAL:THICKNESS_NM'") from None
+    try:
+        t = float(t)
+    except (TypeError, ValueError):
+        raise NanoabsError(f"spacer thickness = {t!r}: must be a number of nm (1e-3 to {MAX_LENGTH_NM:g})") from None
     t = float(check_range("spacer thickness", t, 1e-3, MAX_LENGTH_NM, unit="nm"))
     _mat(name)
     return (name, t)
@@ -250,7 +389,18 @@ def buried(substrate, *, superstrate="air", depth_nm, incidence="front", angle_d
            polarization="s") -> Buried:
     """Particle inside ``substrate``, its centre ``depth_nm`` [nm] below the surface.
 
-    Parameters are those of `on_substrate`; ``depth_nm`` must exceed the particle's half-height.
+    Parameters
+    ----------
+    substrate, superstrate : str, float or Material
+        The medium around the particle (must be transparent) and the one above the surface.
+    depth_nm : float, keyword-only
+        Depth of the particle centre [nm]; must exceed the particle's half-height.
+    incidence : {"front", "back"}, keyword-only
+        Light from the superstrate side or from inside the substrate.
+    angle_deg : float, keyword-only
+        Angle of incidence in the incidence medium [deg], 0 to 89.
+    polarization : {"s", "p"}, keyword-only
+        For oblique light (plane of incidence x-z; s: E along y).
     """
     _mat(substrate), _mat(superstrate)
     depth = float(check_positive("depth_nm", depth_nm, unit="nm"))

@@ -169,7 +169,20 @@ def _plane_wave_vector(eps, kz_signed, k_par, k0, pol):
 def plane_waves(eps, thickness_nm, wavelength_nm, z_nm, *, angle_deg=0.0, pol="s"):
     """The plane waves that make up the field without the particle at a point of an end half-space.
 
-    Parameters are those of `drive_field`.
+    Parameters
+    ----------
+    eps : sequence of complex array_like, shape (W,) each
+        Permittivities of media 0..N, incidence side first [1] (medium 0: real part used).
+    thickness_nm : sequence of float
+        Inner-layer thicknesses [nm].
+    wavelength_nm : float array_like, shape (W,)
+        Vacuum wavelength [nm].
+    z_nm : float
+        Height above the first interface (>= 0) or minus the depth below the last one [nm].
+    angle_deg : float, keyword-only
+        Angle of incidence in medium 0 [deg].
+    pol : {"s", "p"}, keyword-only
+        Polarisation.
 
     Returns
     -------

@@ -35,7 +35,15 @@ __all__ = ["angular", "plane_wave_coefficients", "sphere_tmatrix", "orders"]
 
 
 def orders(m, n_max):
-    """Degrees n = max(1, |m|) .. n_max carried for azimuthal order m."""
+    """Degrees n = max(1, |m|) .. n_max carried for azimuthal order m.
+
+    Parameters
+    ----------
+    m : int
+        Azimuthal order.
+    n_max : int
+        Largest degree.
+    """
     return np.arange(max(1, abs(m)), n_max + 1)
 
 

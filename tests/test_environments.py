@@ -116,7 +116,7 @@ def test_array_of_sizes_refused_on_substrate():
     import nanoabs
 
     with pytest.raises(NanoabsError, match="one size per call"):
-        nanoabs.spectrum(nanoabs.Sphere("Au", np.array([10.0, 20.0])), np.array([500.0, 600.0]),
+        nanoabs.spectrum(nanoabs.Sphere("Au", np.array([[10.0], [20.0]])), np.array([500.0, 600.0]),
                          environment=on_substrate("Si"))
 
 
