@@ -91,8 +91,15 @@ def _check_common(incidence, angle_deg, polarization):
     return incidence, angle, pol
 
 
+@dataclass(frozen=True, kw_only=True)
 class _Planar:
-    """Shared behaviour of the planar environments (see module docstring)."""
+    """Shared fields and behaviour of the planar environments (see module docstring)."""
+
+    substrate: object
+    superstrate: object = "air"
+    incidence: str = "front"
+    angle_deg: float = 0.0
+    polarization: str = "s"
 
     def host_index(self, wavelength_nm) -> tuple:
         """(real index of the medium around the particle (W,), cautions) for `nanoabs.spectrum`.
@@ -181,7 +188,7 @@ class _Planar:
         return (n_top if front else n_bottom), stack, (list(thick) if front else list(thick)[::-1])
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class OnSubstrate(_Planar):
     """Particle in the superstrate, resting ``gap_nm`` above a substrate or a spacer layer on it.
 
@@ -203,13 +210,8 @@ class OnSubstrate(_Planar):
         Polarisation of oblique light (plane of incidence x-z).
     """
 
-    substrate: object
-    superstrate: object = "air"
     gap_nm: float = 0.0
     spacer: tuple | None = None
-    incidence: str = "front"
-    angle_deg: float = 0.0
-    polarization: str = "s"
 
     kind = "on_substrate"
 
@@ -253,7 +255,7 @@ class OnSubstrate(_Planar):
         return d | _light_meta(self)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class Buried(_Planar):
     """Particle inside the substrate, its centre ``depth_nm`` below the planar surface.
 
@@ -273,12 +275,7 @@ class Buried(_Planar):
         Polarisation of oblique light (plane of incidence x-z).
     """
 
-    substrate: object
-    superstrate: object = "air"
     depth_nm: float = 0.0
-    incidence: str = "front"
-    angle_deg: float = 0.0
-    polarization: str = "s"
 
     kind = "buried"
 
@@ -382,7 +379,8 @@ def on_substrate(substrate, *, superstrate="air", gap_nm=0.0, spacer=None, incid
     _mat(substrate), _mat(superstrate)
     gap = float(check_range("gap_nm", gap_nm, 0.0, MAX_LENGTH_NM, unit="nm"))
     inc, angle, pol = _check_common(incidence, angle_deg, polarization)
-    return OnSubstrate(substrate, superstrate, gap, _check_spacer(spacer), inc, angle, pol)
+    return OnSubstrate(substrate=substrate, superstrate=superstrate, gap_nm=gap, spacer=_check_spacer(spacer),
+                       incidence=inc, angle_deg=angle, polarization=pol)
 
 
 def buried(substrate, *, superstrate="air", depth_nm, incidence="front", angle_deg=0.0,
@@ -407,7 +405,8 @@ def buried(substrate, *, superstrate="air", depth_nm, incidence="front", angle_d
     if depth > MAX_LENGTH_NM:
         raise NanoabsError(f"depth_nm = {depth:g} nm: allowed range is 0 to {MAX_LENGTH_NM:g} nm")
     inc, angle, pol = _check_common(incidence, angle_deg, polarization)
-    return Buried(substrate, superstrate, depth, inc, angle, pol)
+    return Buried(substrate=substrate, superstrate=superstrate, depth_nm=depth, incidence=inc, angle_deg=angle,
+                  polarization=pol)
 
 
 def _scalar_sizes(particle):
