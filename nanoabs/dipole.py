@@ -101,6 +101,7 @@ class StaticDipole(Solver):
     name = "quasistatic"
     reference = "dipole limit, Bohren & Huffman (1983) eqs. 5.7, 5.32, 5.35, 5.36"
     shapes = frozenset({"sphere", "layered sphere", "ellipsoid"})
+    environments = frozenset({"homogeneous", "on_substrate", "buried"})  # planar: nanoabs.surface
     corrected = False
     max_ka = STRICT_VALIDITY * np.pi / 10.0  # largest dimension = a tenth of the wavelength in the host
     advice = "use method='mie' for spheres; treat ellipsoid results as indicative"
