@@ -22,6 +22,7 @@ from .drude_lorentz import DrudeLorentz, Oscillator, fit_drude_lorentz, rakic_19
 from .materials import Material, load_table, material  # noqa: E402
 from .particles import CappedRod, Cylinder, Ellipsoid, LayeredSphere, RoundedDisc, Sphere, spheroid  # noqa: E402
 from .optics import Spectrum, spectrum  # noqa: E402
+from .environments import buried, homogeneous, on_substrate  # noqa: E402
 from .detector import HotCarrierResult, hot_carrier_estimate  # noqa: E402
 from .export import read_export, write_export  # noqa: E402
 from . import design, illumination  # noqa: E402
@@ -45,6 +46,9 @@ __all__ = [
     "RoundedDisc",
     "Spectrum",
     "spectrum",
+    "homogeneous",
+    "on_substrate",
+    "buried",
     "HotCarrierResult",
     "hot_carrier_estimate",
     "read_export",

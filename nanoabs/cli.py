@@ -256,16 +256,49 @@ def _medium_arg(text):
     return material(text)
 
 
-def _spectrum_from_args(args):
+def _spectrum_from_args(args, particle=None):
     from .optics import spectrum
 
-    particle = _particle_from_args(args)
+    particle = _particle_from_args(args) if particle is None else particle
     wl = parse_range(args.wl)
-    pol = args.polarization or ("long" if args.shape in _AXIAL_SHAPES else "x")
-    spec = spectrum(particle, wl, medium=_medium_arg(args.medium), method=args.method,
-                    polarization=pol, surface_damping=not args.no_surface_damping,
-                    damping_A=args.damping_a)
+    where, pol = _where_from_args(args)
+    spec = spectrum(particle, wl, method=args.method, polarization=pol,
+                    surface_damping=not args.no_surface_damping, damping_A=args.damping_a, **where)
     return particle, spec
+
+
+def _where_from_args(args):
+    """({"medium": ...} or {"environment": ...}, particle polarization) from the CLI options.
+
+    ``--polarization s|p`` is the polarisation of oblique light in a planar environment; any
+    other value is the particle's (rods: long|short|random).
+    """
+    from . import environments as env
+
+    pol = args.polarization
+    light = pol if pol in ("s", "p") else None
+    particle_pol = (pol if light is None and pol else ("long" if args.shape in _AXIAL_SHAPES else "x"))
+    planar = {k: getattr(args, k) for k in ("substrate", "superstrate", "gap", "depth", "spacer", "incidence",
+                                             "angle") if getattr(args, k, None) is not None}
+    if not planar:
+        if light is not None:
+            raise NanoabsError(f"--polarization {pol}: s or p is the polarisation of oblique light on a substrate; "
+                               "give --substrate (and --angle)")
+        return {"medium": _medium_arg(args.medium or "water")}, particle_pol
+    if args.medium is not None:
+        raise NanoabsError("--medium and --substrate: give one (the substrate options describe the host)")
+    if "substrate" not in planar:
+        raise NanoabsError(f"--{next(iter(planar))} needs --substrate MATERIAL")
+    if "depth" in planar and "gap" in planar:
+        raise NanoabsError("--depth (buried particle) and --gap (particle on the surface): give one")
+    kw = {"superstrate": planar.get("superstrate", "air"), "incidence": planar.get("incidence", "front"),
+          "angle_deg": planar.get("angle", 0.0), "polarization": light or "s"}
+    if "depth" in planar:
+        if "spacer" in planar:
+            raise NanoabsError("--spacer applies to a particle on the surface (--gap), not to a buried one")
+        return {"environment": env.buried(planar["substrate"], depth_nm=planar["depth"], **kw)}, particle_pol
+    return {"environment": env.on_substrate(planar["substrate"], gap_nm=planar.get("gap", 0.0),
+                                            spacer=planar.get("spacer"), **kw)}, particle_pol
 
 
 def _print_warnings(meta):
@@ -454,10 +487,20 @@ def _add_particle_options(p):
     g.add_argument("--semi-axes", help="ellipsoid: A,B,C semi-axes along x,y,z [nm]")
     g.add_argument("--polarization", help="spheroid, cylinder, capped-rod, rounded-disc: long|short|random; "
                    "ellipsoid: x|y|z|random")
-    g.add_argument("--medium", default="water", help="medium name or refractive index (default water)")
+    g.add_argument("--medium", help="homogeneous host: name or refractive index (default water)")
     g.add_argument("--wl", default="400:1000:2",
                    help="wavelengths START:STOP:STEP or a list V1,V2,... [nm] (default 400:1000:2)")
     g.add_argument("--method", default="auto", help="auto|mie|miepython|quasistatic|mlwa|tmatrix")
+    e = p.add_argument_group("device environment (instead of --medium; lengths in nm)")
+    e.add_argument("--substrate", help="planar substrate material, e.g. Si, GaAs, SiO2, TiO2")
+    e.add_argument("--superstrate", help="medium above the substrate (default air)")
+    e.add_argument("--gap", type=float, help="particle on the substrate: its lowest point this far above the "
+                                             "surface (or the spacer) [nm]")
+    e.add_argument("--depth", type=float, help="particle buried in the substrate: centre this deep [nm]")
+    e.add_argument("--spacer", help="thin planar layer on the substrate, MATERIAL:THICKNESS_NM (e.g. SiO2:3)")
+    e.add_argument("--incidence", help="light from the superstrate (front, default) or through the substrate (back)")
+    e.add_argument("--angle", type=float, help="angle of incidence in the incidence medium [deg] (default 0); "
+                                               "give --polarization s or p with it")
     g.add_argument("--no-surface-damping", action="store_true", help="turn the size correction off")
     g.add_argument("--damping-a", type=float, default=1.0, help="surface-scattering parameter A (default 1)")
     p.add_argument("-o", "--output", help="write CSV (+ JSON sidecar) or .json")
@@ -534,12 +577,7 @@ def _cmd_export_generation(args) -> int:
     check_writable(args.output, force=args.force)
     irradiance = parse_irradiance(args.irradiance)
     particle = _particle_from_args(args)
-    wl = _parse_values(args.wl, "--wl")
-    pol = args.polarization or ("long" if args.shape in _AXIAL_SHAPES else "x")
-    from .optics import spectrum
-
-    spec = spectrum(particle, wl, medium=_medium_arg(args.medium), method=args.method, polarization=pol,
-                    surface_damping=not args.no_surface_damping, damping_A=args.damping_a)
+    _, spec = _spectrum_from_args(args, particle)
     _print_warnings(spec.metadata)
     frame = generation_profile(spec, particle, irradiance, n_points=args.points)
     meta = {"what": "carrier generation rate inside the particle (one electron-hole pair per absorbed "

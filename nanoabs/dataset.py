@@ -20,7 +20,8 @@ __all__ = ["spectrum_dataset", "sweep_dataset", "write_netcdf", "read_netcdf"]
 #: Units of the spectrum variables in CF / UDUNITS spelling.
 CF_UNITS = {"wavelength_nm": "nm", "sigma_abs_m2": "m2", "sigma_sca_m2": "m2", "sigma_ext_m2": "m2",
             "q_abs": "1", "q_sca": "1", "q_ext": "1", "q_abs_eqvol": "1",
-            "sigma_abs_per_metal_volume_m_1": "m-1", "absorbed_fraction": "1", "dipole_bound_ratio": "1"}
+            "sigma_abs_per_metal_volume_m_1": "m-1", "absorbed_fraction": "1", "dipole_bound_ratio": "1",
+            "field_factor": "1"}
 
 
 def _xarray():

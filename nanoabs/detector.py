@@ -516,6 +516,15 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
         data.update({"absorptance": A, "photocurrent_density_A_m2": J, "responsivity_A_W": Rr,
                      "external_quantum_efficiency": hc.external_quantum_efficiency(Rr, wl)})
         cols += ARRAY_COLUMNS
+        if "incidence_index" in spec.metadata:  # a planar environment: name both references
+            drive = spec.field_factor * spec.n_medium / np.asarray(spec.metadata["incidence_index"], dtype=float)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                data["responsivity_internal_A_W"] = np.where(drive > 0, Rr / drive, 0.0)
+            cols.append("responsivity_internal_A_W")
+            notes.append("responsivity_A_W and external_quantum_efficiency are external: per irradiance of the "
+                         "light incident on the device (in the incidence medium, reflection at the surface "
+                         "included); responsivity_internal_A_W is per irradiance of the drive field at the "
+                         "particle, I_inc |E_drive/E_inc|^2 n_host/n_inc")
     data.update({"photon_energy_eV": E_ph, "power_interband_W": parts["interband"],
                  "power_intraband_bulk_W": parts["intraband_bulk"],
                  "power_intraband_surface_W": parts["intraband_surface"]})
@@ -596,6 +605,7 @@ def _units(cols, mono):
     per = "" if mono else " nm^-1"
     fixed = {"wavelength_nm": "nm", "sigma_abs_m2": "m^2", "emission_probability": "1", "transport_factor": "1",
              "absorptance": "1", "responsivity_A_W": "A W^-1", "external_quantum_efficiency": "1",
+             "responsivity_internal_A_W": "A W^-1",
              "photon_energy_eV": "eV", "noise_equivalent_power_W_Hz05": "W Hz^-1/2",
              "specific_detectivity_Jones": "cm Hz^1/2 W^-1", "irradiance_W_m2_nm": "W m^-2" + per,
              "photocurrent_density_A_m2": "A m^-2" + per, "photocurrent_A": "A" + per}

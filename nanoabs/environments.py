@@ -101,6 +101,10 @@ class _Planar:
     angle_deg: float = 0.0
     polarization: str = "s"
 
+    def host_material(self):
+        """The material around the particle: the substrate (buried) or the superstrate."""
+        return _mat(self.substrate if self.kind == "buried" else self.superstrate)
+
     def host_index(self, wavelength_nm) -> tuple:
         """(real index of the medium around the particle (W,), cautions) for `nanoabs.spectrum`.
 
@@ -484,15 +488,16 @@ def apply_planar(env, solver, problem):
                  "multipole_converged": out["converged"],
                  "sommerfeld_error": float(np.max(out["integration_error"]))}
         if not out["converged"]:
-            from .validity import Caution, emit
+            from .validity import Caution
 
             c = Caution("multipole-order", f"multipole order {out['n_max']} (the cap) still changes sigma_abs by "
                         f"{out['n_max_change']:.1g} when 4 degrees lower: a small gap to a strongly reflecting "
                         "substrate; treat the result as approximate or increase the gap",
                         (float(wl.min()), float(wl.max())))
-            meta["environment_cautions"] = [c.to_dict()]
-            emit([c], stacklevel=5)
+            meta["environment_cautions"] = [c]  # spectrum() adds them to its cautions
     meta["field_factor"] = np.asarray(out["field_factor"]).tolist()
+    incident = env.superstrate if env.incidence == "front" else env.substrate
+    meta["incidence_index"] = np.real(np.atleast_1d(_mat(incident).refractive_index(wl))).tolist()
     return Response(s_abs, s_ext - s_abs, s_ext, metadata=meta)
 
 

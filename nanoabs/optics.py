@@ -36,11 +36,11 @@ __all__ = ["Spectrum", "spectrum", "METHODS", "FRAME_COLUMNS", "UNITS"]
 
 FRAME_COLUMNS = ["wavelength_nm", "sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2",
                  "q_abs", "q_sca", "q_ext", "q_abs_eqvol", "sigma_abs_per_metal_volume_m_1",
-                 "absorbed_fraction", "dipole_bound_ratio"]
+                 "absorbed_fraction", "dipole_bound_ratio", "field_factor"]
 UNITS = {"wavelength_nm": "nm", "sigma_abs_m2": "m^2", "sigma_sca_m2": "m^2",
          "sigma_ext_m2": "m^2", "q_abs": "1", "q_sca": "1", "q_ext": "1", "q_abs_eqvol": "1",
          "sigma_abs_per_metal_volume_m_1": "m^-1", "absorbed_fraction": "1",
-         "dipole_bound_ratio": "1"}
+         "dipole_bound_ratio": "1", "field_factor": "1"}
 
 NM2_TO_M2 = 1e-18
 
@@ -126,6 +126,15 @@ class Spectrum:
         """
         lam_m = self.wavelength_nm * 1e-9 / self.n_medium
         return self.sigma_abs_m2 / (3.0 * lam_m**2 / (8.0 * np.pi))
+
+    @property
+    def field_factor(self):
+        """Field factor ``|E_drive/E_inc|^2`` at the particle centre without the particle [1] (W,).
+
+        1 in a homogeneous host; the standing-wave or transmission factor of a planar environment.
+        """
+        ff = self.metadata.get("field_factor")
+        return np.ones(self.wavelength_nm.shape) if ff is None else np.asarray(ff, dtype=float)
 
     def peak_wavelength_nm(self):
         """Wavelength of maximum σ_abs [nm], refined by a parabola through the top 3 points.
@@ -429,6 +438,7 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
     sa, ss, se = (np.asarray(x) * NM2_TO_M2 for x in (resp.sigma_abs_nm2, resp.sigma_sca_nm2,
                                                       resp.sigma_ext_nm2))
     cautions += [Caution("damping-clipped", _CLIP_NOTE.format(label)) for label in problem.clipped]
+    cautions += resp.metadata.pop("environment_cautions", [])
     cautions += solver.validity(problem)
     nonfinite = resp.nonfinite
     if nonfinite is None:
@@ -447,7 +457,7 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
         "efficiency_reference_area": ref_area,
         "q_abs_eqvol_reference_area": "pi r_v^2 of the equal-volume sphere",
         "environment": env.describe(),
-        "medium": env.medium.metadata() if hasattr(env, "medium") else None,
+        "medium": env.host_material().metadata(),
         "materials": [m.metadata() for m in particle.layer_materials()],
         "surface_damping": notes["surface_damping"] if surface_damping else "off",
         "warnings": [c.message for c in cautions],

@@ -80,6 +80,10 @@ class Homogeneous:
                                     (float(bad.min()), float(bad.max()))))
         return n.real, cautions
 
+    def host_material(self):
+        """The material around the particle (the medium)."""
+        return self.medium
+
     def apply(self, solver, problem) -> "Response":
         """The particle's cross-sections in this host: the solver's own answer.
 
