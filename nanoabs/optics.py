@@ -251,15 +251,9 @@ def _eps_with_damping(mat, wl, length_nm, on, A, notes, label):
 
 
 def _mie_layers(eps_layers, radii, n_med, wl):
-    from .mie import mie_layered
+    from .mie import mie_cross_sections_nm2
 
-    k = 2 * np.pi * n_med / wl  # [1/nm]
-    m = np.stack(np.broadcast_arrays(*[np.sqrt(e) / n_med for e in eps_layers]))
-    x = np.stack(np.broadcast_arrays(*[k * r for r in radii]))
-    m, x = np.broadcast_arrays(m, x)
-    res = mie_layered(m, x)
-    area = np.pi * radii[-1] ** 2
-    return res.qabs * area, res.qsca * area, res.qext * area
+    return mie_cross_sections_nm2(eps_layers, radii, n_med, wl)
 
 
 def _miepython_sphere(eps, radius, n_med, wl):
@@ -473,7 +467,7 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
         if method == "auto":
             method = "mie"
         if method == "mie":
-            sa, ss, se = _mie_layers(eps_layers, radii, n_med, wl)
+            sa, ss, se, backend = _mie_layers(eps_layers, radii, n_med, wl)
         elif method == "miepython":
             if len(layers) != 1:
                 raise NanoabsError("method = 'miepython' handles homogeneous spheres only; use 'mie'")
