@@ -46,7 +46,6 @@ from typing import NamedTuple
 
 import numpy as np
 
-from ._compiled_mie import D1_EXTRA as _D1_EXTRA
 from ._compiled_mie import coefficients, d1_start, expm1_2iz, layer_order0, layer_step, outer_order0, outer_step
 from ._errors import NanoabsError
 
@@ -186,11 +185,11 @@ def _d1_down(z, n_store, *, ratio=False):
     """D1_n(z) = psi_n'(z)/psi_n(z) for n = 0..n_store, shape (n_store+1, *z.shape).
 
     Downward recurrence D_{n-1} = n/z - 1/(D_n + n/z) (Bohren & Huffman 1983,
-    eq. 4.89) started with D = 0 at max(n_store, |z|) + 8 |z|^(1/3) + 16.  The
-    usual start max(n_store, |z|) + 16 (Wiscombe 1980) leaves errors of 1e-6 ..
-    1e-2 for large, nearly real z: the starting error only decays once
-    n - |z| >> |z|^(1/3) (transition region of psi_n); with 8 |z|^(1/3) the
-    efficiencies agree with an independent 50-digit evaluation to ~1e-15 and
+    eq. 4.89) started with D = 0 at `nanoabs._compiled_mie.d1_start` (the
+    largest |z| of the chunk).  The usual start max(n_store, |z|) + 16 (Wiscombe
+    1980) leaves errors of 1e-6 .. 1e-2 for large, nearly real z: the starting
+    error only decays once n - |z| >> |z|^(1/3) (transition region of psi_n).
+    The start used here follows that decay step by step; the efficiencies agree
     with miepython to ~1e-11 up to |m x| = 4000.
 
     A real ``z`` (a lossless layer) runs in real arithmetic and gives a real
