@@ -39,6 +39,9 @@ from . import _compiled
 _BLOCK = 64
 
 _STATE = {"kernel": None, "error": None}
+#: Grids smaller than this use the kernel only once it is loaded in this process: importing
+#: numba and loading the cached kernel (0.5-3 s) costs more than the numpy path takes there.
+MIN_POINTS = 20_000
 
 prange = range  # numba.prange once numba is imported (see _build)
 
@@ -348,8 +351,13 @@ def _build():
     return _compiled.jit(numba, _mie_kernel, _STATE, error_model="numpy")
 
 
-def available() -> bool:
-    """Whether the compiled Mie path is enabled (``nanoabs._compiled.ENABLED``) and numba imports."""
+def available(n_points=None) -> bool:
+    """Whether the compiled Mie path is enabled (``nanoabs._compiled.ENABLED``) and numba imports.
+
+    With ``n_points``: also whether a grid of that size should use it (see `MIN_POINTS`).
+    """
+    if n_points is not None and n_points < MIN_POINTS and _STATE["kernel"] is None:
+        return False
     return _compiled.ENABLED and _build() is not None
 
 

@@ -29,8 +29,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import constants as _c
 
+from . import _si as _c
 from . import __version__
 from . import hotcarriers as hc
 from ._errors import NanoabsError, check_nonnegative, check_positive

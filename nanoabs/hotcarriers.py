@@ -26,8 +26,8 @@ from dataclasses import dataclass
 from typing import NamedTuple
 
 import numpy as np
-from scipy import constants as _c
 
+from . import _si as _c
 from ._errors import NanoabsError, check_nonnegative, check_positive, check_range, suggest
 
 __all__ = [

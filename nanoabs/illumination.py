@@ -40,9 +40,8 @@ from pathlib import Path
 from typing import Callable
 
 import numpy as np
-from scipy import constants as _c
-from scipy.integrate import trapezoid
 
+from . import _si as _c
 from ._errors import DataError, NanoabsError, check_finite_array, check_nonnegative, check_positive, suggest
 
 __all__ = [
@@ -596,4 +595,6 @@ def band_integral(wavelength_nm, values):
             f"values: last axis has length {v.shape[-1] if v.ndim else 0}, expected {wl.size} "
             "(one value per wavelength)"
         )
+    from scipy.integrate import trapezoid
+
     return trapezoid(v, wl, axis=-1)[()]

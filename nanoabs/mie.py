@@ -542,7 +542,9 @@ def mie_cross_sections_nm2(eps_layers, radii, n_med, wl):
     backend : str
         ``"compiled (numba)"`` when the compiled kernel ran
         (`nanoabs._compiled_mie`, same formulas, held to 1e-12 of the numpy
-        path by the tests), else ``"numpy"``.
+        path by the tests), else ``"numpy"``: numba is missing or
+        ``nanoabs._compiled.ENABLED`` is False, or the grid is smaller than
+        ``nanoabs._compiled_mie.MIN_POINTS`` and the kernel is not loaded yet.
 
     References
     ----------
@@ -551,13 +553,13 @@ def mie_cross_sections_nm2(eps_layers, radii, n_med, wl):
     from . import _compiled, _compiled_mie
 
     k = 2 * np.pi * n_med / wl  # [1/nm]
-    m = np.stack(np.broadcast_arrays(*[np.sqrt(e) / n_med for e in eps_layers]))
-    x = np.stack(np.broadcast_arrays(*[k * r for r in radii]))
-    m, x = np.broadcast_arrays(m, x)
+    L = len(eps_layers)
+    # one broadcast of every layer's m and x (the grid may come from the sizes alone)
+    mx = np.broadcast_arrays(*[np.sqrt(e) / n_med for e in eps_layers], *[k * r for r in radii])
+    m, x = np.stack(mx[:L]), np.stack(mx[L:])
     area = np.pi * radii[-1] ** 2
-    if _compiled_mie.available():
+    if _compiled_mie.available(m[0].size):
         m, x, grid = _prepare(m, x)
-        L = m.shape[0]
         xf = x.reshape(L, -1)
         try:
             qsca, qabs = _compiled_mie.mie_efficiencies(m.reshape(L, -1), xf, n_terms(xf[-1]))

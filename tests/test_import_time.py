@@ -1,0 +1,51 @@
+"""``import nanoabs`` stays light: heavy modules load where they are first needed.
+
+Not a timing test (speed lives in bench/): it checks, in a fresh interpreter,
+which modules the import pulls in.  The constants nanoabs keeps instead of
+importing scipy.constants are checked against scipy.constants (CODATA 2018,
+the exact SI defining constants).
+"""
+
+import json
+import os
+import subprocess
+import sys
+
+import pytest
+
+HEAVY = ("scipy.interpolate", "scipy.constants", "scipy.special", "scipy.integrate", "scipy.optimize",
+         "pandas", "matplotlib", "numba", "miepython")
+
+
+def _modules_after(code):
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    env = dict(os.environ, PYTHONPATH=root + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    probe = code + "\nimport sys, json\nprint(json.dumps(sorted(sys.modules)))\n"
+    p = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=300, env=env)
+    assert p.returncode == 0, p.stderr[-2000:]
+    return set(json.loads(p.stdout.strip().splitlines()[-1]))
+
+
+def test_import_nanoabs_loads_no_heavy_module():
+    loaded = _modules_after("import nanoabs")
+    assert "nanoabs" in loaded and "nanoabs.design" in loaded  # the probe did import the package
+    assert sorted(m for m in HEAVY if m in loaded) == []
+
+
+def test_small_sphere_spectrum_does_not_load_numba():
+    """A small grid uses the numpy Mie path unless the kernel is already loaded (MIN_POINTS)."""
+    loaded = _modules_after(
+        "import numpy as np, nanoabs\n"
+        "s = nanoabs.spectrum(nanoabs.Sphere('Au', 20.0), np.linspace(400, 900, 51))\n"
+        "assert s.metadata['solver_backend'] == 'numpy', s.metadata['solver_backend']\n")
+    assert "numba" not in loaded and "pandas" not in loaded
+
+
+@pytest.mark.parametrize("name", ["h", "c", "e", "k", "hbar", "Stefan_Boltzmann"])
+def test_constants_match_scipy(name):
+    from scipy import constants
+
+    from nanoabs import _si
+
+    # reference: scipy.constants (CODATA 2018); exact SI values, so equal to the last bit
+    assert getattr(_si, name) == pytest.approx(getattr(constants, name), rel=1e-15)
