@@ -272,51 +272,75 @@ def _mie_kernel(m, x, n_stop, qsca, qabs):
                     _d1_block_real(zr, nmx, dr[l, side], rr[l, side])
                 else:
                     _d1_block(zr, zi, nmx, dr[l, side], di[l, side], rr[l, side], ri[l, side])
-        w1 = np.empty(n_layers, dtype=np.complex128)
-        w2 = np.empty(n_layers, dtype=np.complex128)
-        q = np.empty(n_layers, dtype=np.complex128)
-        per_layer = np.empty((4, n_layers), dtype=np.complex128)  # mu, 1/mu, B_1(z1), B_1(z2)
+        _orders(m[:, lo:hi], x[:, lo:hi], n_stop[lo:hi], nmx, dr, di, rr, ri, qsca[lo:hi], qabs[lo:hi])
+
+
+def _orders(m, x, n_stop, nmx, dr, di, rr, ri, qsca, qabs):
+    """The order loop of one block of points in lockstep (orders above a point's n_stop are not summed).
+
+    The points of a block advance together, order by order and layer by layer,
+    so that the divisions of different points overlap (each point's recursion
+    is a chain of dependent divisions).
+    """
+    n_layers, nb = m.shape
+    c16 = np.complex128
+    inv_x = np.empty(nb)
+    rx = np.empty(nb, dtype=c16)
+    ix = np.empty(nb, dtype=c16)
+    d3 = np.full(nb, 1j)  # D3_0 = i
+    mo = np.empty(nb, dtype=c16)
+    inv_mo = np.empty(nb, dtype=c16)
+    ha = np.empty(nb, dtype=c16)
+    hb = np.empty(nb, dtype=c16)
+    s_sca = np.zeros(nb)
+    s_abs = np.zeros(nb)
+    w1 = np.empty((n_layers, nb), dtype=c16)
+    w2 = np.empty((n_layers, nb), dtype=c16)
+    q = np.empty((n_layers, nb), dtype=c16)
+    per_layer = np.empty((4, n_layers, nb), dtype=c16)  # mu, 1/mu, B_1(z1), B_1(z2)
+    for j in range(nb):
+        xo = x[n_layers - 1, j]
+        inv_x[j] = 1.0 / xo
+        rx[j], ix[j] = outer_order0(xo)
+        mo[j] = m[n_layers - 1, j]
+        inv_mo[j] = recip(mo[j])
+        for l in range(1, n_layers):
+            ml = m[l, j]
+            z1 = ml * x[l - 1, j]
+            z2 = ml * x[l, j]
+            w1[l, j], w2[l, j], q[l, j], _ = layer_order0(z1, z2)
+            per_layer[0, l, j] = ml * recip(m[l - 1, j])
+            per_layer[1, l, j] = m[l - 1, j] * recip(ml)
+            per_layer[2, l, j] = recip(z1) - 1j  # B_1 = xi_1/xi_0 = 1/z - D3_0, D3_0 = i
+            per_layer[3, l, j] = recip(z2) - 1j
+    for n in range(1, nmx + 1):
         for j in range(nb):
-            p = lo + j
-            ns = n_stop[p]
-            xo = x[n_layers - 1, p]
-            inv_x = 1.0 / xo
-            lossless = m[0, p].imag == 0.0
-            for l in range(1, n_layers):
-                ml = m[l, p]
-                lossless = lossless and ml.imag == 0.0
-                z1 = ml * x[l - 1, p]
-                z2 = ml * x[l, p]
-                w1[l], w2[l], q[l], _ = layer_order0(z1, z2)
-                per_layer[0, l] = ml * recip(m[l - 1, p])
-                per_layer[1, l] = m[l - 1, p] * recip(ml)
-                per_layer[2, l] = recip(z1) - 1j  # B_1 = xi_1/xi_0 = 1/z - D3_0, D3_0 = i
-                per_layer[3, l] = recip(z2) - 1j
-            rx, inv_xix = outer_order0(xo)
-            d3x = 1j
-            s_sca = 0.0
-            s_abs = 0.0
-            mo = m[n_layers - 1, p]
-            inv_mo = recip(mo)
-            for n in range(1, ns + 1):
-                d1x = dr[0, 0, n, j]
-                d3x, rx, inv_xix = outer_step(n, inv_x, d1x, d3x, rx, inv_xix)
-                ha = complex(dr[0, 1, n, j], di[0, 1, n, j])  # core: H = D1_n(m_1 x_1)
-                hb = ha
-                for l in range(1, n_layers):
-                    out = layer_step(n, ha, hb, complex(dr[l, 0, n, j], di[l, 0, n, j]),
-                                     complex(dr[l, 1, n, j], di[l, 1, n, j]),
-                                     complex(rr[l, 0, n, j], ri[l, 0, n, j]),
-                                     complex(rr[l, 1, n, j], ri[l, 1, n, j]), w1[l], w2[l], q[l],
-                                     per_layer[0, l], per_layer[1, l], per_layer[2, l], per_layer[3, l])
-                    ha, hb, w1[l], w2[l], q[l] = out[0], out[1], out[2], out[3], out[4]
-                an, bn, t_abs, _, _ = coefficients(rx, ha * inv_mo, mo * hb, d1x, d3x, inv_xix)
-                c = 2 * n + 1
-                s_sca += c * (an.real ** 2 + an.imag ** 2 + bn.real ** 2 + bn.imag ** 2)
-                s_abs += c * t_abs
-            x2 = xo * xo
-            qsca[p] = 2.0 * s_sca / x2
-            qabs[p] = 0.0 if lossless else max(2.0 * s_abs / x2, 0.0)
+            d3[j], rx[j], ix[j] = outer_step(n, inv_x[j], dr[0, 0, n, j], d3[j], rx[j], ix[j])
+            ha[j] = complex(dr[0, 1, n, j], di[0, 1, n, j])  # core: H = D1_n(m_1 x_1)
+            hb[j] = ha[j]
+        for l in range(1, n_layers):
+            for j in range(nb):
+                out = layer_step(n, ha[j], hb[j], complex(dr[l, 0, n, j], di[l, 0, n, j]),
+                                 complex(dr[l, 1, n, j], di[l, 1, n, j]),
+                                 complex(rr[l, 0, n, j], ri[l, 0, n, j]),
+                                 complex(rr[l, 1, n, j], ri[l, 1, n, j]), w1[l, j], w2[l, j], q[l, j],
+                                 per_layer[0, l, j], per_layer[1, l, j], per_layer[2, l, j],
+                                 per_layer[3, l, j])
+                ha[j], hb[j], w1[l, j], w2[l, j], q[l, j] = out[0], out[1], out[2], out[3], out[4]
+        c = 2 * n + 1
+        for j in range(nb):
+            an, bn, t_abs, _, _ = coefficients(rx[j], ha[j] * inv_mo[j], mo[j] * hb[j], dr[0, 0, n, j], d3[j],
+                                               ix[j])
+            keep = n <= n_stop[j]  # a select, not a product: orders past n_stop may overflow
+            s_sca[j] += c * (an.real ** 2 + an.imag ** 2 + bn.real ** 2 + bn.imag ** 2) if keep else 0.0
+            s_abs[j] += c * t_abs if keep else 0.0
+    for j in range(nb):
+        x2 = x[n_layers - 1, j] ** 2
+        qsca[j] = 2.0 * s_sca[j] / x2
+        lossless = True
+        for l in range(n_layers):
+            lossless = lossless and m[l, j].imag == 0.0
+        qabs[j] = 0.0 if lossless else max(2.0 * s_abs[j] / x2, 0.0)
 
 
 def _build():
@@ -342,7 +366,7 @@ def _build():
             return lambda z: 1.0 / z
 
         for fn in (d1_start, expm1_2iz, layer_order0, outer_order0, outer_step, layer_step,
-                   coefficients, _d1_block, _d1_block_real):
+                   coefficients, _d1_block, _d1_block_real, _orders):
             register_jitable(fn)
     except Exception as exc:
         _STATE["error"] = f"{type(exc).__name__}: {exc}"
