@@ -196,26 +196,24 @@ def _d1_block(zr, zi, n_store, dr, di, rr, ri):
     d_i = np.zeros(nb)
     for n in range(d1_start(az, n_store), n_store + 1, -1):
         for j in range(nb):
-            nzr = n * izr[j]
-            nzi = n * izi[j]
-            tr = d_r[j] + nzr
-            ti = d_i[j] + nzi
-            sc = 1.0 / (tr * tr + ti * ti)
-            d_r[j] = nzr - tr * sc
-            d_i[j] = nzi + ti * sc
+            _d1_step(n, izr, izi, d_r, d_i, j)
     for n in range(n_store + 1, 0, -1):
         for j in range(nb):
-            nzr = n * izr[j]
-            nzi = n * izi[j]
-            tr = d_r[j] + nzr
-            ti = d_i[j] + nzi
-            sc = 1.0 / (tr * tr + ti * ti)
-            rr[n, j] = tr * sc
-            ri[n, j] = -ti * sc
-            d_r[j] = nzr - tr * sc
-            d_i[j] = nzi + ti * sc
+            rr[n, j], ri[n, j] = _d1_step(n, izr, izi, d_r, d_i, j)
             dr[n - 1, j] = d_r[j]
             di[n - 1, j] = d_i[j]
+
+
+def _d1_step(n, izr, izi, d_r, d_i, j):
+    """One step of `_d1_block` at point j: D_n -> D_{n-1} in place; returns R_n (real, imaginary)."""
+    nzr = n * izr[j]
+    nzi = n * izi[j]
+    tr = d_r[j] + nzr
+    ti = d_i[j] + nzi
+    sc = 1.0 / (tr * tr + ti * ti)
+    d_r[j] = nzr - tr * sc
+    d_i[j] = nzi + ti * sc
+    return tr * sc, -ti * sc
 
 
 def _d1_block_real(z, n_store, dr, rr):
@@ -368,6 +366,7 @@ def _build():
         for fn in (d1_start, expm1_2iz, layer_order0, outer_order0, outer_step, layer_step,
                    coefficients, _d1_block, _d1_block_real, _orders):
             register_jitable(fn)
+        register_jitable(inline="always")(_d1_step)  # inlined before typing: the loops still vectorise
     except Exception as exc:
         _STATE["error"] = f"{type(exc).__name__}: {exc}"
         return None

@@ -13,11 +13,7 @@ that change.  miepython (Prahl, the PyPI package, called as
 outside reference for homogeneous spheres, to 1e-10.
 """
 
-import os
 import pickle
-import subprocess
-import sys
-import threading
 
 import numpy as np
 import pytest
@@ -154,45 +150,28 @@ def test_unavailable_compiler_falls_back(monkeypatch):
     assert np.all(s.sigma_abs_m2 > 0)
 
 
-def test_concurrent_calls_from_threads():
+def test_concurrent_calls_from_threads(in_threads):
     wl = np.linspace(400, 900, 300)
     r = np.linspace(5, 100, 100)[:, None]
-    want = nanoabs.spectrum(nanoabs.LayeredSphere("SiO2", r, [("Au", 10.0)]), wl).sigma_abs_m2
-    got, errors = [], []
 
-    def work():
-        try:
-            got.append(nanoabs.spectrum(nanoabs.LayeredSphere("SiO2", r, [("Au", 10.0)]), wl).sigma_abs_m2)
-        except Exception as exc:  # pragma: no cover - reported below
-            errors.append(exc)
+    def shell():
+        return nanoabs.spectrum(nanoabs.LayeredSphere("SiO2", r, [("Au", 10.0)]), wl).sigma_abs_m2
 
-    threads = [threading.Thread(target=work) for _ in range(4)]
-    for t in threads:
-        t.start()
-    for t in threads:
-        t.join()
-    assert not errors and len(got) == 4
-    for g in got:
+    want = shell()
+    for g in in_threads(shell):
         np.testing.assert_array_equal(g, want)
 
 
-def test_forked_sweep_after_compiled_mie_call(tmp_path):
+def test_forked_sweep_after_compiled_mie_call(fresh_python):
     """A process-pool sweep (fork) after the Mie kernel ran in the parent must not be killed."""
-    code = (
+    p = fresh_python(
         "import numpy as np, nanoabs\n"
         "wl = np.linspace(400, 900, 50)\n"
         "s = nanoabs.spectrum(nanoabs.Sphere('Au', np.linspace(5, 100, 500)[:, None]), wl)\n"
         "assert s.metadata['solver_backend'] == 'compiled (numba)'\n"
         "r = nanoabs.design.sweep('sphere', {'radius_nm': np.linspace(5, 100, 40)}, wl,"
         " executor='processes', chunk_size=10, progress=False)\n"
-        "print(len(r))\n"
-    )
-    env = {k: v for k, v in os.environ.items() if k != "NUMBA_THREADING_LAYER"}
-    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
-    p = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=600,
-                       env=env, cwd=tmp_path)
-    assert p.returncode == 0, p.stderr[-2000:]
+        "print(len(r))\n")
     assert p.stdout.strip().splitlines()[-1] == str(40 * 50)
 
 

@@ -7,9 +7,6 @@ the exact SI defining constants).
 """
 
 import json
-import os
-import subprocess
-import sys
 
 import pytest
 
@@ -17,24 +14,21 @@ HEAVY = ("scipy.interpolate", "scipy.constants", "scipy.special", "scipy.integra
          "pandas", "matplotlib", "numba", "miepython")
 
 
-def _modules_after(code):
-    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    env = dict(os.environ, PYTHONPATH=root + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    probe = code + "\nimport sys, json\nprint(json.dumps(sorted(sys.modules)))\n"
-    p = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=300, env=env)
-    assert p.returncode == 0, p.stderr[-2000:]
+def _modules_after(run, code):
+    p = run(code + "\nimport sys, json\nprint(json.dumps(sorted(sys.modules)))\n")
     return set(json.loads(p.stdout.strip().splitlines()[-1]))
 
 
-def test_import_nanoabs_loads_no_heavy_module():
-    loaded = _modules_after("import nanoabs")
+def test_import_nanoabs_loads_no_heavy_module(fresh_python):
+    loaded = _modules_after(fresh_python, "import nanoabs")
     assert "nanoabs" in loaded and "nanoabs.design" in loaded  # the probe did import the package
     assert sorted(m for m in HEAVY if m in loaded) == []
 
 
-def test_small_sphere_spectrum_does_not_load_numba():
+def test_small_sphere_spectrum_does_not_load_numba(fresh_python):
     """A small grid uses the numpy Mie path unless the kernel is already loaded (MIN_POINTS)."""
     loaded = _modules_after(
+        fresh_python,
         "import numpy as np, nanoabs\n"
         "s = nanoabs.spectrum(nanoabs.Sphere('Au', 20.0), np.linspace(400, 900, 51))\n"
         "assert s.metadata['solver_backend'] == 'numpy', s.metadata['solver_backend']\n")
