@@ -193,7 +193,7 @@ FIRST_CALL = (
     "import json, time, numpy as np\n"
     "t0 = time.perf_counter(); import nanoabs; from nanoabs import _compiled_mie\n"
     "t1 = time.perf_counter(); ok = _compiled_mie.available(); t2 = time.perf_counter()\n"
-    "s = nanoabs.spectrum(nanoabs.Sphere('Au', np.array([[20.0]])), np.linspace(400, 900, 5))\n"
+    "s = nanoabs.spectrum(nanoabs.Sphere('Au', np.linspace(5, 100, 40)[:, None]), np.linspace(400, 900, 500))\n"
     "t3 = time.perf_counter()\n"
     "e = nanoabs.spectrum(nanoabs.spheroid('Au', np.array([[60.0]]), 20.0), np.linspace(500, 900, 5))\n"
     "t4 = time.perf_counter()\n"
@@ -295,7 +295,7 @@ def main(argv=None):
     # -- one-time costs, excluded from the timings ----------------------------------------------
     MIEPYTHON.efficiencies_mx(1.5 - 0.1j, 1.0)
     t0 = time.perf_counter()
-    kernel_ok = _compiled_mie.available()  # numba import and kernel load, also for small grids
+    kernel_ok = _compiled_mie.available()  # numba import; the kernel loads at the first call of case_a()
     case_a(WL_A[:5], R_A[:2])
     case_b(WL_A[:5], R_A[:2])
     case_c(WL_C[:5], L_C[:2])
@@ -408,7 +408,8 @@ def main(argv=None):
           f"{t_warm:.2f} s")
     for label, c in calls.items():
         if c:
-            print(f"  (f) first call, fresh interpreter, {label} numba cache: import nanoabs "
+            print(f"  (f) first call ({', '.join(c['backends'])}), fresh interpreter, {label} numba cache: "
+                  "import nanoabs "
                   f"{c['import_s']:.2f} s, numba import + Mie kernel build {c['numba_import_and_build_s']:.2f} s, "
                   f"first Mie call {c['mie_first_call_s']:.2f} s, first MLWA call {c['mlwa_first_call_s']:.2f} s")
         elif label == "cold" and not args.quick:

@@ -5,7 +5,17 @@ Submodules with more functions: ``nanoabs.illumination``, ``nanoabs.hotcarriers`
 ``nanoabs.quasistatic``, ``nanoabs.mie``, ``nanoabs.plotting``.
 """
 
-__version__ = "0.1.0"
+def _version() -> str:
+    """The installed distribution's version (pyproject.toml is the one source of it)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("nanoabs")
+    except PackageNotFoundError:  # a source tree on sys.path without an installation
+        return "0+unknown"
+
+
+__version__ = _version()
 
 from ._errors import NanoabsError  # noqa: E402
 from .drude_lorentz import DrudeLorentz, Oscillator, fit_drude_lorentz, rakic_1998  # noqa: E402

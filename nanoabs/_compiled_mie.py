@@ -39,8 +39,10 @@ from . import _compiled
 _BLOCK = 64
 
 _STATE = {"kernel": None, "error": None}
-#: Grids smaller than this use the kernel only once it is loaded in this process: importing
-#: numba and loading the cached kernel (0.5-3 s) costs more than the numpy path takes there.
+#: Grids smaller than this use the numpy path: importing numba and loading the cached kernel
+#: (0.5-3 s) costs more than numpy takes there. A fixed size rule, not "once the kernel is
+#: loaded", so that a result never depends on what the process ran before (a resumed sweep
+#: equals a fresh one bit for bit).
 MIN_POINTS = 20_000
 
 prange = range  # numba.prange once numba is imported (see _build)
@@ -379,7 +381,7 @@ def available(n_points=None) -> bool:
 
     With ``n_points``: also whether a grid of that size should use it (see `MIN_POINTS`).
     """
-    if n_points is not None and n_points < MIN_POINTS and _STATE["kernel"] is None:
+    if n_points is not None and n_points < MIN_POINTS:
         return False
     return _compiled.ENABLED and _build() is not None
 

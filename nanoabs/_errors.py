@@ -19,6 +19,7 @@ __all__ = [
     "check_finite_array",
     "check_choice",
     "check_range",
+    "check_flag",
     "suggest",
 ]
 
@@ -43,46 +44,51 @@ class DataError(NanoabsError):
 
 
 def _fmt(value) -> str:
+    """A short printable form of a user value (never longer than about 60 characters)."""
     if isinstance(value, float):
         return f"{value:g}"
     if isinstance(value, np.ndarray) and value.size > 6:
         return f"array(shape={value.shape})"
-    return repr(value) if isinstance(value, str) else str(value)
+    text = " ".join((repr(value) if isinstance(value, str) else str(value)).split())
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
-def check_positive(name: str, value, *, unit: str = "") -> np.ndarray:
-    """Return ``value`` as a float array; raise unless every element is finite and > 0."""
-    arr = _as_float(name, value)
+def check_positive(name: str, value, *, unit: str = "", scalar: bool = False):
+    """Return ``value`` as a float array (a float with ``scalar=True``, which refuses arrays);
+    raise unless every element is finite and > 0."""
+    arr = _as_float(name, value, scalar)
     bad = ~np.isfinite(arr) | (arr <= 0)
     if np.any(bad):
         v = arr[bad].flat[0] if arr.ndim else arr
         raise NanoabsError(
             f"{name} = {_fmt(float(v))}{' ' + unit if unit else ''}: must be a finite number > 0"
         )
-    return arr
+    return float(arr) if scalar else arr
 
 
-def check_nonnegative(name: str, value, *, unit: str = "") -> np.ndarray:
-    """Return ``value`` as a float array; raise unless every element is finite and >= 0."""
-    arr = _as_float(name, value)
+def check_nonnegative(name: str, value, *, unit: str = "", scalar: bool = False):
+    """Return ``value`` as a float array (a float with ``scalar=True``, which refuses arrays);
+    raise unless every element is finite and >= 0."""
+    arr = _as_float(name, value, scalar)
     bad = ~np.isfinite(arr) | (arr < 0)
     if np.any(bad):
         v = arr[bad].flat[0] if arr.ndim else arr
         raise NanoabsError(
             f"{name} = {_fmt(float(v))}{' ' + unit if unit else ''}: must be a finite number >= 0"
         )
-    return arr
+    return float(arr) if scalar else arr
 
 
-def check_range(name: str, value, lo: float, hi: float, *, unit: str = "") -> np.ndarray:
-    """Return ``value`` as a float array; raise unless lo <= value <= hi everywhere."""
-    arr = _as_float(name, value)
+def check_range(name: str, value, lo: float, hi: float, *, unit: str = "", scalar: bool = False):
+    """Return ``value`` as a float array (a float with ``scalar=True``, which refuses arrays);
+    raise unless lo <= value <= hi everywhere."""
+    arr = _as_float(name, value, scalar)
     bad = ~np.isfinite(arr) | (arr < lo) | (arr > hi)
     if np.any(bad):
         v = arr[bad].flat[0] if arr.ndim else arr
         u = f" {unit}" if unit else ""
         raise NanoabsError(f"{name} = {_fmt(float(v))}{u}: allowed range is {lo:g} to {hi:g}{u}")
-    return arr
+    return float(arr) if scalar else arr
 
 
 def check_finite_array(name: str, value, *, increasing: bool = False) -> np.ndarray:
@@ -119,12 +125,38 @@ def check_choice(name: str, value, choices: Iterable[str]) -> str:
     )
 
 
-def _as_float(name: str, value) -> np.ndarray:
-    try:
-        arr = np.asarray(value, dtype=float)
-    except (TypeError, ValueError):
-        raise NanoabsError(f"{name} = {_fmt(value)}: must be a number") from None
-    return arr
+def _as_float(name: str, value, scalar: bool = False) -> np.ndarray:
+    """``value`` as a float array; strict: booleans, strings, complex and non-numeric objects
+    are refused (``True`` is not a radius, ``"10"`` is not a number in the Python API);
+    with ``scalar`` anything but a single number is refused too."""
+    if not isinstance(value, (str, bytes, bool, np.bool_, dict, set)) and value is not None:
+        try:
+            arr = np.asarray(value)
+        except Exception:  # noqa: BLE001 - ragged lists, objects whose __array__ fails
+            arr = None
+        if arr is not None and arr.dtype.kind == "O" and arr.size and all(
+                isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_))
+                for v in arr.flat):
+            arr = arr.astype(float)
+        if arr is not None and arr.dtype.kind in "iuf":
+            if scalar and arr.ndim:
+                raise NanoabsError(f"{name} = {_fmt(value)}: must be a single number, not an array "
+                                   f"of shape {arr.shape}")
+            return arr.astype(float, copy=False)
+    kind = "a boolean" if isinstance(value, (bool, np.bool_)) or (
+        isinstance(value, np.ndarray) and value.dtype.kind == "b") else type(value).__name__
+    raise NanoabsError(f"{name} = {_fmt(value)}: must be a real number or an array of them (got {kind})")
+
+
+def check_flag(name: str, value) -> bool:
+    """Return ``value`` if it is a real boolean (``True``/``False``, numpy bool); else raise.
+
+    A string such as ``"no"`` or ``"off"`` is truthy in Python and would silently mean *on*;
+    call this on every on/off keyword (e.g. ``surface_damping``) before using it.
+    """
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    raise NanoabsError(f"{name} = {_fmt(value)}: must be True or False (got {type(value).__name__})")
 
 
 def isclose_or_raise(name: str, value: float, target: float, rtol: float) -> None:

@@ -9,10 +9,13 @@ from __future__ import annotations
 
 import argparse
 import sys
+import warnings
 
 import numpy as np
 
 from . import __version__
+from ._units import parse_irradiance
+from .validity import NanoabsWarning
 from ._errors import NanoabsError
 
 EXIT_INTERNAL = 1
@@ -25,28 +28,66 @@ class _Parser(argparse.ArgumentParser):
         raise NanoabsError(f"{self.prog}: {message}")
 
 
+#: Most wavelengths (or values) one argument may expand to: bounds memory and work.
+MAX_POINTS = 200_000
+
+
 def parse_range(text: str, name: str = "--wl", *, need_step: bool = True):
-    """Parse 'START:STOP:STEP' (or 'START:STOP' when need_step is False) in nm."""
-    parts = str(text).split(":")
+    """Parse 'START:STOP:STEP' in nm (inclusive of STOP when it lies on the grid to within
+    1e-9 of a step), a list 'V1,V2,...' (strictly increasing, e.g. '1310,1550'), or, with
+    need_step False, 'START:STOP' (returned as a pair)."""
+    t = str(text).strip()
+    if need_step and ":" not in t:
+        vals = _parse_list(t, name, increasing=True)
+        if np.any(vals <= 0):
+            raise NanoabsError(f"{name} = {_short(t)}: every value must be > 0 nm")
+        return vals
+    parts = t.split(":")
     want = 3 if need_step else 2
     if len(parts) != want:
-        form = "START:STOP:STEP" if need_step else "START:STOP"
-        raise NanoabsError(f"{name} = {text!r}: expected {form} in nm, e.g. "
+        form = "START:STOP:STEP or a list V1,V2,..." if need_step else "START:STOP"
+        raise NanoabsError(f"{name} = {_short(t)}: expected {form} in nm, e.g. "
                            f"{'400:900:1' if need_step else '400:1000'}")
+    vals = _parse_list(",".join(parts), name, increasing=False, shown=t)
+    if vals[0] <= 0 or vals[1] <= vals[0]:
+        raise NanoabsError(f"{name} = {_short(t)}: need 0 < START < STOP")
+    if not need_step:
+        return float(vals[0]), float(vals[1])
+    start, stop, step = (float(v) for v in vals)
+    span = (stop - start) / step if step > 0 else -1.0
+    if span > MAX_POINTS:
+        raise NanoabsError(f"{name} = {_short(t)}: {span + 1:.3g} points; at most {MAX_POINTS} allowed")
+    # a span a rounding error short of a whole number of steps still includes STOP
+    n = int(np.floor(span + 1e-9)) + 1 if span > 0 else 0
+    if n < 2:
+        raise NanoabsError(f"{name} = {_short(t)}: STEP must be > 0 and no larger than STOP - START")
+    out = start + step * np.arange(n)
+    if abs(out[-1] - stop) <= 1e-9 * step:
+        out[-1] = stop  # exactly STOP, not STOP minus a rounding error
+    return out
+
+
+def _short(text) -> str:
+    t = str(text)
+    return repr(t if len(t) <= 40 else t[:37] + "...")
+
+
+def _parse_list(text: str, name: str, *, increasing: bool, shown: str | None = None) -> np.ndarray:
+    """'V1,V2,...' -> finite float array (at most MAX_POINTS values); ``shown`` is the text
+    quoted in messages (default ``text``)."""
+    items = str(text).split(",")
+    text = text if shown is None else shown
+    if len(items) > MAX_POINTS:
+        raise NanoabsError(f"{name}: {len(items)} values; at most {MAX_POINTS} allowed")
     try:
-        vals = [float(p) for p in parts]
+        vals = np.array([float(v) for v in items])
     except ValueError:
-        raise NanoabsError(f"{name} = {text!r}: every field must be a number") from None
-    if not all(np.isfinite(vals)) or vals[0] <= 0 or vals[1] <= vals[0]:
-        raise NanoabsError(f"{name} = {text!r}: need 0 < START < STOP")
-    if need_step:
-        if vals[2] <= 0 or vals[2] > vals[1] - vals[0]:
-            raise NanoabsError(f"{name} = {text!r}: STEP must be > 0 and no larger than STOP - START")
-        n = int(np.floor((vals[1] - vals[0]) / vals[2] + 1e-9)) + 1
-        if n > 200_000:
-            raise NanoabsError(f"{name} = {text!r}: {n} points; at most 200000 allowed")
-        return vals[0] + vals[2] * np.arange(n)
-    return vals[0], vals[1]
+        raise NanoabsError(f"{name} = {_short(text)}: every field must be a number") from None
+    if not np.all(np.isfinite(vals)):
+        raise NanoabsError(f"{name} = {_short(text)}: values must be finite")
+    if increasing and np.any(np.diff(vals) <= 0):
+        raise NanoabsError(f"{name} = {_short(text)}: values must be strictly increasing")
+    return vals
 
 
 # -- materials -----------------------------------------------------------------
@@ -150,6 +191,15 @@ def _material_arg(text, option):
 
 
 def _particle_from_args(args):
+    with warnings.catch_warnings(record=True) as caught:  # plausibility warnings of the constructors
+        warnings.simplefilter("always", NanoabsWarning)
+        particle = _build_particle(args)
+    for w in caught:
+        print(f"warning: {w.message}", file=sys.stderr)
+    return particle
+
+
+def _build_particle(args):
     from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid
 
     shape = args.shape
@@ -232,9 +282,11 @@ def _cmd_spectrum(args) -> int:
             print(f"{r.wavelength_nm:13.1f} {r.sigma_abs_m2:13.4e} {r.sigma_sca_m2:13.4e} {r.q_abs:8.4f} "
                   f"{r.q_sca:8.4f}")
     fwhm = summ["fwhm_nm"]
-    print(f"method {spec.metadata['method']}; absorption peak {summ['peak_wavelength_nm']:.1f} nm, "
-          f"FWHM {'not resolved in the grid' if fwhm != fwhm else f'{fwhm:.1f} nm'}, "
-          f"sigma_abs {summ['peak_sigma_abs_m2']:.4g} m^2, Q_abs {summ['peak_q_abs']:.3g}, "
+    peak = (f"absorption peak {summ['peak_wavelength_nm']:.1f} nm" if summ["peak_status"] == "peak"
+            else f"no absorption peak in the window ({summ['peak_status']})")
+    width = f"FWHM {fwhm:.1f} nm" if fwhm == fwhm else f"FWHM not given ({summ['fwhm_status']})"
+    print(f"method {spec.metadata['method']}; {peak}, {width}, "
+          f"largest sigma_abs {summ['peak_sigma_abs_m2']:.4g} m^2, Q_abs {summ['peak_q_abs']:.3g}, "
           f"absorbed fraction {summ['absorbed_fraction_at_peak']:.3f}")
     if args.plot:
         from .plotting import plot_spectra, save_figure
@@ -275,7 +327,9 @@ def _spectrum_source(text, total_irradiance=None):
             return il.flat(float(low.split(":", 1)[1]))
         except ValueError:
             raise NanoabsError(f"--spectrum {text!r}: expected flat:W_PER_M2_PER_NM") from None
-    return il.from_csv(text)
+    from .export import check_input_file
+
+    return il.from_csv(check_input_file(text, "--spectrum file"))
 
 
 def _illumination_from_args(args):
@@ -364,7 +418,8 @@ def _add_particle_options(p):
     g.add_argument("--semi-axes", help="ellipsoid: A,B,C semi-axes along x,y,z [nm]")
     g.add_argument("--polarization", help="spheroid: long|short|random; ellipsoid: x|y|z|random")
     g.add_argument("--medium", default="water", help="medium name or refractive index (default water)")
-    g.add_argument("--wl", default="400:1000:2", help="wavelengths START:STOP:STEP [nm] (default 400:1000:2)")
+    g.add_argument("--wl", default="400:1000:2",
+                   help="wavelengths START:STOP:STEP or a list V1,V2,... [nm] (default 400:1000:2)")
     g.add_argument("--method", default="auto", help="auto|mie|miepython|quasistatic|mlwa")
     g.add_argument("--no-surface-damping", action="store_true", help="turn the size correction off")
     g.add_argument("--damping-a", type=float, default=1.0, help="surface-scattering parameter A (default 1)")
@@ -399,16 +454,77 @@ def _register_particle_commands(sub):
     d.add_argument("--thermal-conductivity", type=float, help="of the surroundings [W/(m K)]")
     h.set_defaults(func=_cmd_hot_carriers)
 
+    x = sub.add_parser("export-generation", help="carrier generation rate G(r) inside a sphere, for a "
+                                                 "device simulator")
+    _add_particle_options(x)
+    x.add_argument("--irradiance", required=True,
+                   help="incident irradiance: W/m^2, or with a unit (1mW/cm2, 10W/m2)")
+    x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50)")
+    x.set_defaults(func=_cmd_export_generation)
+
+
+def _cmd_export_generation(args) -> int:
+    from .export import check_writable, write_export
+    from .handoff import GENERATION_UNITS, absorbed_photon_rate, generation_profile
+
+    if not args.output:
+        raise NanoabsError("-o/--output FILE.csv is required for export-generation")
+    check_writable(args.output, force=args.force)
+    irradiance = parse_irradiance(args.irradiance)
+    particle = _particle_from_args(args)
+    wl = _parse_values(args.wl, "--wl")
+    pol = args.polarization or ("long" if args.shape == "spheroid" else "x")
+    from .optics import spectrum
+
+    spec = spectrum(particle, wl, medium=_medium_arg(args.medium), method=args.method, polarization=pol,
+                    surface_damping=not args.no_surface_damping, damping_A=args.damping_a)
+    _print_warnings(spec.metadata)
+    frame = generation_profile(spec, particle, irradiance, n_points=args.points)
+    meta = {"what": "carrier generation rate inside the particle (one electron-hole pair per absorbed "
+                    "photon), angle-averaged internal field",
+            "irradiance_W_m2": irradiance, "spectrum": spec.metadata,
+            "absorbed_photon_rate_per_s": absorbed_photon_rate(spec, irradiance).tolist()}
+    write_export(frame, args.output, metadata=meta, units=GENERATION_UNITS, force=args.force)
+    print(f"wrote {args.output}: G(r) at {len(spec.wavelength_nm)} wavelength(s), "
+          f"{len(frame) // len(spec.wavelength_nm)} radii; peak G {frame['generation_rate_cm3_s'].max():.3g} "
+          "cm^-3 s^-1")
+    return 0
+
 
 def _parse_values(text, name):
     """'40:100:5' (start:stop:step, inclusive) or '20' or '20,30,40' -> array [nm]."""
     t = str(text)
     if t.count(":") == 2:
         return parse_range(t, name)
-    try:
-        return np.array([float(v) for v in t.split(",")])
-    except ValueError:
-        raise NanoabsError(f"{name} = {text!r}: expected START:STOP:STEP or comma-separated numbers") from None
+    return _parse_list(t, name, increasing=False)
+
+
+def _sweep_params(items):
+    """--param NAME=VALUES (repeatable, each name once) -> {name: array}."""
+    params = {}
+    for item in items or []:
+        key, sep, val = item.partition("=")
+        key = key.strip()
+        if not sep:
+            raise NanoabsError(f"--param {item!r}: expected NAME=VALUES, e.g. length_nm=40:100:5")
+        if key in params:
+            raise NanoabsError(f"--param {key} is given twice: give each parameter once (comma-separate "
+                               "several values, e.g. radius_nm=10,20,40)")
+        if key in ("material", "core_material", "shell", "core"):
+            params[key] = [_table_or_material(v.strip()) for v in val.split(",")]
+        else:
+            params[key] = _parse_values(val, f"--param {key}")
+    if not params:
+        raise NanoabsError("give at least one --param NAME=VALUES, e.g. --param radius_nm=10:80:5")
+    return params
+
+
+def _table_or_material(text):
+    """A material name, or a user table when the text names a .csv file."""
+    from .export import check_input_file
+    from .materials import load_table
+
+    return load_table(check_input_file(text, "material table")) if str(text).lower().endswith(".csv") else text
 
 
 def _cmd_sweep(args) -> int:
@@ -416,41 +532,64 @@ def _cmd_sweep(args) -> int:
     from .export import check_writable
 
     if args.output:
-        check_writable(args.output, force=args.force)
-    params = {}
-    for item in args.param or []:
-        key, sep, val = item.partition("=")
-        if not sep:
-            raise NanoabsError(f"--param {item!r}: expected NAME=VALUES, e.g. length_nm=40:100:5")
-        params[key.strip()] = _parse_values(val, f"--param {key.strip()}")
-    if not params:
-        raise NanoabsError("give at least one --param NAME=VALUES, e.g. --param radius_nm=10:80:5")
+        check_writable(args.output, force=args.force, netcdf=True)
+    params = _sweep_params(args.param)
     wl = parse_range(args.wl)
-    kw = dict(material=args.material, medium=_medium_arg(args.medium), method=args.method,
+    kw = dict(material=_table_or_material(args.material), medium=_medium_arg(args.medium), method=args.method,
               surface_damping=not args.no_surface_damping, progress=not args.quiet and sys.stderr.isatty(),
               executor="processes" if args.processes else None)
     if args.core:
-        kw["core"] = args.core
+        kw["core"] = _table_or_material(args.core)
     if args.polarization:
         kw["polarization"] = args.polarization
-    res = design.sweep(args.shape, params, wl, out=args.output, force=args.force, **kw)
+    if args.max_points is not None:
+        kw["max_points"] = args.max_points
+    netcdf = bool(args.output) and args.output.lower().endswith(".nc")
+    res = design.sweep(args.shape, params, wl, out=None if netcdf else args.output, force=args.force, **kw)
+    if netcdf:
+        from .dataset import sweep_dataset, write_netcdf
+
+        write_netcdf(sweep_dataset(res), args.output, force=args.force)
     if args.output:
         print(f"wrote {args.output}")
     if hasattr(res, "columns"):
+        _report_sweep(res, args)
+    return 0
+
+
+def _report_sweep(res, args):
+    """Peak per design (and the map) of a sweep table; nothing is averaged over a parameter."""
+    swept = [n for n, v in res.attrs["metadata"]["parameters"].items() if len(v) > 1]
+    if len(swept) <= 1:
         pcols = [c for c in res.columns if c.endswith("_nm") and c != "wavelength_nm" and res[c].nunique() > 1]
         key = pcols[0] if pcols else "design_id"
-        grid = res.pivot_table(index=key, columns="wavelength_nm", values="sigma_abs_m2").sort_index()
-        peaks = grid.columns.values[np.argmax(grid.values, axis=1)]
-        for v, pk in zip(grid.index, peaks):
-            print(f"{key} = {v:g}: absorption peak {pk:g} nm")
-        if args.plot:
-            from .plotting import plot_map, save_figure
+        label = key.replace("_nm", " [nm]")
+    else:  # several parameters vary: one line (and one map row) per design
+        key, label = "design_id", f"design_id ({' x '.join(swept)}; first varies slowest)"
+    from .optics import _peak, _peak_status
 
-            save_figure(plot_map(grid.columns.values, grid.index.values, grid.values * 1e18,
-                                 param_label=key.replace("_nm", " [nm]"),
-                                 value_label="absorption cross-section [nm²]"), args.plot, force=args.force)
-            print(f"wrote {args.plot}")
-    return 0
+    grid = res.pivot_table(index=key, columns="wavelength_nm", values="sigma_abs_m2").sort_index()
+    wl = grid.columns.values
+    peaks = [f"absorption peak {p:.1f} nm" if p == p else _peak_status(wl, row)
+             for p, row in zip((_peak(wl, row) for row in grid.values), grid.values)]
+    if key == "design_id" and swept:
+        first = res.drop_duplicates("design_id").set_index("design_id")
+        for v, pk in zip(grid.index, peaks):
+            what = ", ".join(f"{n} = {_fmt_value(first.at[v, n])}" for n in swept)
+            print(f"design {v} ({what}): {pk}")
+    else:
+        for v, pk in zip(grid.index, peaks):
+            print(f"{key} = {v:g}: {pk}")
+    if args.plot:
+        from .plotting import plot_map, save_figure
+
+        save_figure(plot_map(grid.columns.values, grid.index.values, grid.values * 1e18, param_label=label,
+                             value_label="absorption cross-section [nm²]"), args.plot, force=args.force)
+        print(f"wrote {args.plot}")
+
+
+def _fmt_value(v):
+    return f"{v:g}" if isinstance(v, (float, np.floating)) else str(v)
 
 
 def _cmd_search(args) -> int:
@@ -461,12 +600,14 @@ def _cmd_search(args) -> int:
     if args.output:
         check_writable(args.output, force=args.force)
     if args.band and (args.center or args.width):
-        raise NanoabsError("give either --band LO:HI or --center and --width")
+        raise NanoabsError("give either --band LO:HI (repeatable) or --center and --width")
     if args.band:
-        lo, hi = parse_range(args.band, "--band", need_step=False)
-        b = design.band(lo_nm=lo, hi_nm=hi)
+        b = []
+        for text in args.band:
+            lo, hi = parse_range(text, "--band", need_step=False)
+            b.append(design.band(lo_nm=lo, hi_nm=hi))
     else:
-        b = design.band(center_nm=args.center, width_nm=args.width)
+        b = [design.band(center_nm=args.center, width_nm=args.width)]
     barrier = None
     if args.schottky:
         barrier = float(schottky_barrier(args.schottky)[0])
@@ -485,12 +626,17 @@ def _cmd_search(args) -> int:
                            objective=args.objective, materials=[m.strip() for m in args.materials.split(",")],
                            medium=_medium_arg(args.medium), illumination=illum, barrier_eV=barrier,
                            max_size_nm=args.max_size, min_shell_nm=args.min_shell, top=args.top,
-                           progress=not args.quiet and sys.stderr.isatty())
+                           progress=not args.quiet and sys.stderr.isatty(), combine=args.combine,
+                           peak_in_band=not args.any_peak)
     fom = ranked.attrs.get("figure_of_merit", {})
-    print(f"band {b[0]:g}-{b[1]:g} nm; objective {args.objective} [{fom.get('unit', '')}]")
+    bands = ", ".join(f"{lo:g}-{hi:g}" for lo, hi in b)
+    print(f"band(s) {bands} nm; objective {args.objective} [{fom.get('unit', '')}]"
+          + (f", {args.combine} band" if len(b) > 1 else ""))
+    _print_warnings(ranked.attrs.get("metadata", {}))
     cols = [c for c in ("rank", "family", "material", "radius_nm", "core_radius_nm", "thickness_nm",
                         "length_nm", "diameter_nm", "peak_wavelength_nm", "figure_of_merit",
-                        "absorbed_fraction") if c in ranked.columns]
+                        "absorbed_fraction", "validity", "recheck_method", "recheck_peak_wavelength_nm")
+            if c in ranked.columns]
     with __import__("pandas").option_context("display.width", 160, "display.max_columns", 20):
         print(ranked[cols].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
     if args.output:
@@ -505,27 +651,33 @@ def _register_design_commands(sub):
     w.add_argument("--param", action="append", help="NAME=VALUES, e.g. length_nm=40:100:5 or diameter_nm=20 "
                    "(names: radius_nm, core_radius_nm, thickness_nm, length_nm, diameter_nm, aspect_ratio, "
                    "a_nm, b_nm, c_nm, medium_index)")
-    w.add_argument("--material", default="Au", help="particle (or shell) material (default Au)")
-    w.add_argument("--core", help="shell: core material (default SiO2)")
+    w.add_argument("--material", default="Au", help="particle (or shell) material or a user table FILE.csv "
+                   "(default Au)")
+    w.add_argument("--core", help="shell: core material or FILE.csv (default SiO2)")
     w.add_argument("--medium", default="water")
     w.add_argument("--polarization")
     w.add_argument("--method", default="auto")
     w.add_argument("--no-surface-damping", action="store_true")
-    w.add_argument("--wl", default="400:1000:2", help="START:STOP:STEP [nm]")
+    w.add_argument("--wl", default="400:1000:2", help="START:STOP:STEP or a list V1,V2,... [nm]")
     w.add_argument("--processes", action="store_true", help="run chunks on two local processes")
+    w.add_argument("--max-points", type=int, help="allow a sweep of more than 1e8 designs x wavelengths")
     w.add_argument("--plot", help="save a wavelength x parameter map (.png/.svg)")
-    w.add_argument("-o", "--output", help="stream the table to this CSV (+ JSON); resumes if interrupted")
+    w.add_argument("-o", "--output", help="stream the table to this CSV (+ JSON; resumes if interrupted), or "
+                                          "write an N-D netCDF file (.nc, needs the xarray extra)")
     w.add_argument("--force", action="store_true")
     w.add_argument("--quiet", action="store_true", help="no progress bar")
     w.set_defaults(func=_cmd_sweep)
 
     q = sub.add_parser("search", help="ranked particle designs for a target band")
-    q.add_argument("--band", help="band edges LO:HI [nm]")
+    q.add_argument("--band", action="append", help="band edges LO:HI [nm]; repeat for several bands")
     q.add_argument("--center", type=float, help="band centre [nm] (with --width)")
     q.add_argument("--width", type=float, help="band width [nm]")
     q.add_argument("--families", default="sphere,shell,rod", help="comma list: sphere, shell, rod, disc")
     q.add_argument("--objective", default="sigma_abs",
-                   help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection")
+                   help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection | selectivity")
+    q.add_argument("--combine", default="worst", help="several bands: worst | mean (default worst)")
+    q.add_argument("--any-peak", action="store_true",
+                   help="also rank designs whose absorption peak lies outside the band(s)")
     q.add_argument("--materials", default="Au", help="comma list of metals")
     q.add_argument("--medium", default="water")
     q.add_argument("--max-size", type=float, default=150.0, help="largest outer dimension [nm]")
@@ -602,16 +754,27 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _run(argv) -> int:
+    from . import export
+
+    export.COMMAND_LINE = ["nanoabs", *argv]
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "func", None) is None:
+        parser.print_help()
+        return 0
+    return int(args.func(args) or 0)
+
+
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else list(argv)
     debug = "--debug" in argv
+    if debug:  # accepted before or after the command
+        argv = ["--debug"] + [a for a in argv if a != "--debug"]
     try:
-        parser = build_parser()
-        args = parser.parse_args(argv)
-        if getattr(args, "func", None) is None:
-            parser.print_help()
-            return 0
-        return int(args.func(args) or 0)
+        with warnings.catch_warnings():  # the commands print the cautions themselves ("warning: ...")
+            warnings.simplefilter("ignore", NanoabsWarning)
+            return _run(argv)
     except NanoabsError as exc:
         print(f"nanoabs: error: {exc}", file=sys.stderr)
         return exc.exit_code

@@ -34,7 +34,7 @@ from . import _si as _c
 from . import __version__
 from . import hotcarriers as hc
 from ._errors import NanoabsError, check_nonnegative, check_positive
-from .illumination import band_integral
+from .illumination import band_integral, check_illumination
 from .particles import Ellipsoid, LayeredSphere, Sphere
 
 __all__ = ["HotCarrierResult", "hot_carrier_estimate", "absorbed_power_density", "EXPORT_COLUMNS",
@@ -162,6 +162,13 @@ def _mechanism_fractions(mat, wl, extra_eV):
     return {k: np.where(tot > 0, v / np.where(tot > 0, tot, 1), 0) for k, v in im.items()}
 
 
+#: Above this single-particle temperature rise [K] the result is flagged, not trusted: the
+#: model keeps conductivity and optical constants at room temperature, and gold nanorods
+#: reshape a few hundred kelvin above room temperature (Link & El-Sayed, J. Phys. Chem. B
+#: 103, 8410 (1999); from memory). A documented choice.
+TEMPERATURE_RISE_LIMIT_K = 100.0
+
+
 def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV, fermi_energy_eV=None,
                          attenuation_length_nm=None, yield_model: str = "escape-cone",
                          momentum_factor: float = 1.0, contact_fraction: float = 1.0,
@@ -226,7 +233,7 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV, fermi_ener
     warnings = list(spec.metadata.get("warnings", []))
     notes = []
 
-    E_lam = np.asarray(illumination.spectral_irradiance(wl), dtype=float)
+    E_lam = np.asarray(check_illumination(illumination).spectral_irradiance(wl), dtype=float)
     mono = bool(getattr(illumination, "is_monochromatic", False))
     P = hc.absorbed_power(spec.sigma_abs_m2, E_lam)
     gamma = hc.photon_rate(P, wl)
@@ -267,7 +274,7 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV, fermi_ener
             "transport_factor": T, "injected_electron_rate_per_s": rate, "photocurrent_A": current}
     cols = list(EXPORT_COLUMNS)
     if density_per_um2 is not None:
-        N = float(check_positive("density", density_per_um2, unit="per um^2"))
+        N = check_positive("density", density_per_um2, unit="per um^2", scalar=True)
         A, w = hc.array_absorptance(spec.sigma_abs_m2, areal_density_per_um2=N, wavelength_nm=wl)
         warnings += list(w)
         J = hc.current_density_A_m2(current, areal_density_per_um2=N)
@@ -323,7 +330,17 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV, fermi_ener
             totals.update({"peak_responsivity_A_W": float(data["responsivity_A_W"][j]),
                            "peak_responsivity_wavelength_nm": float(wl[j])})
     if kappa is not None:
-        totals["temperature_rise_K"] = float(hc.temperature_rise(p_heat, R, kappa))
+        dT = float(hc.temperature_rise(p_heat, R, kappa))
+        if not np.isfinite(dT):
+            raise NanoabsError("temperature rise: not finite (overflowing absorbed power); check the illumination")
+        totals["temperature_rise_K"] = dT
+        if dT > TEMPERATURE_RISE_LIMIT_K:
+            totals["temperature_rise_flag"] = "beyond the linear steady-state model"
+            warnings.append(
+                f"temperature rise {dT:.3g} K exceeds {TEMPERATURE_RISE_LIMIT_K:g} K: outside the linear "
+                "steady-state model (temperature-dependent conductivity and optical constants, reshaping "
+                "or melting of the particle); treat it as a flag, not a value, and follow local "
+                "laser-safety rules")
         totals["temperature_rise_basis"] = ("absorbed power at the peak wavelength" if mono
                                             else "band-integrated absorbed power")
     if surface_fraction is not None:

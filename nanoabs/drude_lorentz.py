@@ -94,7 +94,20 @@ def surface_damping_correction(model: "DrudeLorentz", energy_eV, extra_damping_e
 
 @dataclass(frozen=True)
 class Oscillator:
-    """One Lorentz oscillator: resonance energy [eV], dimensionless strength, damping [eV]."""
+    """One Lorentz oscillator: resonance energy [eV], dimensionless strength, damping [eV].
+
+    Its term in the permittivity is f ω₀² / (ω₀² − ω² − iγω) (module docstring; Rakić
+    et al. 1998, eq. (3), conjugated to exp(−iωt)).
+
+    Parameters
+    ----------
+    energy_eV : float
+        Resonance energy ħω₀ [eV].
+    strength : float
+        Oscillator strength f, its contribution to the static permittivity [1].
+    damping_eV : float
+        Damping ħγ [eV].
+    """
 
     energy_eV: float
     strength: float
@@ -119,6 +132,9 @@ class DrudeLorentz:
         Extra Drude damping added by surface scattering [eV]; the model then
         uses γ + surface_damping_eV. Kept separate so that absorbed power can
         be split into bulk and surface-assisted intraband parts.
+    meta : dict
+        Provenance stored with the model (reference, fit range, ...); not
+        compared and not used in any evaluation.
     """
 
     eps_inf: float = 1.0
@@ -146,6 +162,16 @@ class DrudeLorentz:
 
         ``drude_surface`` is the change of the Drude term caused by surface
         damping (zero when ``surface_damping_eV`` is 0); the four parts sum to ε.
+
+        Parameters
+        ----------
+        energy_eV : float or array_like
+            Photon energies ħω [eV].
+
+        Returns
+        -------
+        dict of str to ndarray
+            Complex contributions to ε [1], each of the shape of ``energy_eV``.
         """
         w = np.asarray(energy_eV, dtype=float)
         wp2 = self.plasma_energy_eV**2
@@ -166,24 +192,69 @@ class DrudeLorentz:
         }
 
     def permittivity_at_energy(self, energy_eV):
-        """Complex permittivity ε at photon energies ħω [eV] (exp(−iωt): ε″ ≥ 0)."""
+        """Complex permittivity ε at photon energies ħω [eV] (exp(−iωt): ε″ ≥ 0).
+
+        Parameters
+        ----------
+        energy_eV : float or array_like
+            Photon energies ħω [eV].
+
+        Returns
+        -------
+        complex ndarray
+            Relative permittivity ε [1], of the shape of ``energy_eV``.
+        """
         p = self.parts_at_energy(energy_eV)
         return p["background"] + p["drude_bulk"] + p["drude_surface"] + p["lorentz"]
 
     def permittivity(self, wavelength_nm):
-        """Complex permittivity ε at vacuum wavelengths [nm]."""
+        """Complex permittivity ε at vacuum wavelengths [nm].
+
+        Parameters
+        ----------
+        wavelength_nm : float or array_like
+            Vacuum wavelengths [nm].
+
+        Returns
+        -------
+        complex ndarray
+            Relative permittivity ε [1] (ε″ ≥ 0).
+        """
         return self.permittivity_at_energy(energy_eV_from_wavelength_nm(wavelength_nm))
 
     def refractive_index(self, wavelength_nm):
-        """Complex refractive index n + ik (k ≥ 0) at vacuum wavelengths [nm]."""
+        """Complex refractive index n + ik (k ≥ 0) at vacuum wavelengths [nm].
+
+        Parameters
+        ----------
+        wavelength_nm : float or array_like
+            Vacuum wavelengths [nm].
+
+        Returns
+        -------
+        complex ndarray
+            n + ik = √ε [1], principal branch (k ≥ 0 for a passive model).
+        """
         return np.sqrt(self.permittivity(wavelength_nm))
 
     def with_surface_damping(self, extra_damping_eV: float) -> "DrudeLorentz":
-        """A copy whose Drude damping is increased by ``extra_damping_eV`` [eV] (Kreibig & Vollmer 1995)."""
+        """A copy whose Drude damping is increased by ``extra_damping_eV`` [eV] (Kreibig & Vollmer 1995).
+
+        Parameters
+        ----------
+        extra_damping_eV : float
+            Surface-scattering damping ħ A v_F / L [eV] (see :func:`surface_damping_eV`);
+            it replaces any surface damping the model already had.
+
+        Returns
+        -------
+        DrudeLorentz
+        """
         return replace(self, surface_damping_eV=float(extra_damping_eV), meta=dict(self.meta))
 
     # -- storage ------------------------------------------------------------
     def to_dict(self) -> dict:
+        """The parameters as a JSON-ready dict (energies [eV]), with ``meta`` merged in."""
         return {
             "eps_inf": self.eps_inf,
             "drude": {"plasma_energy_eV": self.plasma_energy_eV, "damping_eV": self.damping_eV},
@@ -196,6 +267,19 @@ class DrudeLorentz:
 
     @classmethod
     def from_dict(cls, d: dict) -> "DrudeLorentz":
+        """The model from a dict in the form of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            ``eps_inf`` [1], ``drude`` {``plasma_energy_eV``, ``damping_eV``} [eV],
+            ``oscillators`` (list of {``energy_eV`` [eV], ``strength`` [1], ``damping_eV`` [eV]});
+            other keys become ``meta``.
+
+        Returns
+        -------
+        DrudeLorentz
+        """
         try:
             oscs = tuple(Oscillator(float(o["energy_eV"]), float(o["strength"]), float(o["damping_eV"]))
                          for o in d.get("oscillators", []))
@@ -207,10 +291,28 @@ class DrudeLorentz:
             raise NanoabsError(f"Drude-Lorentz parameter set is malformed: {exc}") from None
 
     def save(self, path) -> None:
+        """Write the parameters as JSON (:meth:`to_dict`).
+
+        Parameters
+        ----------
+        path : str or os.PathLike
+            Output file (overwritten if it exists).
+        """
         Path(path).write_text(json.dumps(self.to_dict(), indent=2) + "\n", encoding="utf-8")
 
     @classmethod
     def load(cls, path) -> "DrudeLorentz":
+        """Read a model written by :meth:`save`.
+
+        Parameters
+        ----------
+        path : str or os.PathLike
+            JSON file in the form of :meth:`to_dict`.
+
+        Returns
+        -------
+        DrudeLorentz
+        """
         return cls.from_dict(json.loads(Path(path).read_text(encoding="utf-8")))
 
 
@@ -226,6 +328,12 @@ def rakic_1998(metal: str) -> DrudeLorentz:
     Parameters
     ----------
     metal : {"Au", "Ag", "Cu", "Al"}
+        Chemical symbol of the metal.
+
+    Returns
+    -------
+    DrudeLorentz
+        Model with photon energies in [eV] and ``meta["reference"]`` naming the source.
     """
     table = {  # ω_p [eV]; (f, Γ [eV], ω [eV]) with the Drude term first (ω = 0)
         "Ag": (9.01, [(0.845, 0.048, 0.0), (0.065, 3.886, 0.816), (0.124, 0.452, 4.481),
@@ -281,7 +389,7 @@ def fit_drude_lorentz(wavelength_nm, eps, *, oscillators: int = 2, drude: bool =
                       seed: int = 0, min_oscillator_eV: float | None = None) -> FitResult:
     """Fit a passive Drude–Lorentz model to tabulated permittivity by bounded least squares.
 
-    The residual is the complex relative error (ε_model − ε_data)/|ε_data|
+    The residual is the complex relative error ``(ε_model − ε_data)/|ε_data|``
     (real and imaginary parts) at every tabulated point in ``range_nm``. All
     parameters are bounded below by 0 (Drude damping by 1 meV; oscillator energies
     by ``min_oscillator_eV``), which
@@ -313,7 +421,7 @@ def fit_drude_lorentz(wavelength_nm, eps, *, oscillators: int = 2, drude: bool =
     Returns
     -------
     FitResult
-        ``model``, ``rms_relative_error`` = sqrt(mean |Δε|²/|ε|²) over the fitted points,
+        ``model``, ``rms_relative_error`` = ``sqrt(mean |Δε|²/|ε|²)`` over the fitted points,
         ``range_nm``, ``n_points``, ``success`` and scipy's ``message``.
 
     References

@@ -24,11 +24,14 @@ Files are written atomically (temporary file in the same directory, fsync,
 from __future__ import annotations
 
 import csv
+import glob
+import importlib.util
 import json
 import math
 import os
 import tempfile
 from collections.abc import Mapping
+from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -36,10 +39,16 @@ import numpy as np
 
 from nanoabs._errors import DataError, NanoabsError
 
-__all__ = ["FORMAT_NAME", "FORMAT_VERSION", "write_export", "read_export", "check_writable"]
+__all__ = ["FORMAT_NAME", "FORMAT_VERSION", "write_export", "read_export", "check_writable", "exclusive_lock"]
 
 FORMAT_NAME = "nanoabs-export"
-FORMAT_VERSION = 1
+#: Version written. 2: spectral densities say so in their column names (``..._per_nm``) and the
+#: sidecar carries ``provenance``; version 1 files are still read.
+FORMAT_VERSION = 2
+READABLE_VERSIONS = (1, 2)
+
+#: The command line of the running CLI command (set by :func:`nanoabs.cli.main`), for provenance.
+COMMAND_LINE: list | None = None
 _SUFFIXES = (".csv", ".json")
 _TEXT_DTYPES = ("object", "str", "string")
 
@@ -47,19 +56,21 @@ _TEXT_DTYPES = ("object", "str", "string")
 # --------------------------------------------------------------------------- paths
 
 
-def _targets(path: Path) -> tuple[Path, ...]:
+def _targets(path: Path, netcdf: bool = False) -> tuple[Path, ...]:
     suffix = path.suffix.lower()
+    if netcdf and suffix == ".nc":
+        return (path,)
     if suffix == ".csv":
         return (path, path.with_suffix(".json"))
     if suffix == ".json":
         return (path,)
     raise NanoabsError(
         f"export path = {str(path)!r} has suffix {path.suffix or '(none)'!r}; "
-        f"allowed suffixes: {', '.join(_SUFFIXES)}"
+        f"allowed suffixes: {', '.join(_SUFFIXES + (('.nc',) if netcdf else ()))}"
     )
 
 
-def check_writable(path, *, force: bool = False) -> tuple[Path, ...]:
+def check_writable(path, *, force: bool = False, netcdf: bool = False) -> tuple[Path, ...]:
     """Check that an export to ``path`` can be written, before any computation.
 
     Parameters
@@ -68,6 +79,8 @@ def check_writable(path, *, force: bool = False) -> tuple[Path, ...]:
         Target file; ``.csv`` (CSV + ``.json`` sidecar) or ``.json`` (single file).
     force : bool, optional
         Allow overwriting existing files.
+    netcdf : bool, optional
+        Also accept a ``.nc`` (netCDF) target.
 
     Returns
     -------
@@ -82,7 +95,7 @@ def check_writable(path, *, force: bool = False) -> tuple[Path, ...]:
         directory, or a target that exists while ``force`` is false.
     """
     path = Path(path)
-    targets = _targets(path)
+    targets = _targets(path, netcdf)
     parent = path.parent
     if not parent.is_dir():
         raise NanoabsError(
@@ -188,6 +201,22 @@ def _check_frame(frame, units) -> list[dict]:
             )
         columns.append({"name": name, "unit": unit, "dtype": _column_dtype(name, frame[name])})
     return columns
+
+
+def provenance() -> dict:
+    """What produced a file: versions of nanoabs and its dependencies, Python, platform, command line."""
+    import platform
+    import sys
+    from importlib.metadata import PackageNotFoundError, version
+
+    deps = {}
+    for name in ("numpy", "scipy", "pandas", "matplotlib", "miepython", "numba", "xarray"):
+        try:
+            deps[name] = version(name)
+        except PackageNotFoundError:
+            deps[name] = None
+    return {"nanoabs": _package_version(), "dependencies": deps, "python": sys.version.split()[0],
+            "platform": platform.platform(), "command_line": COMMAND_LINE}
 
 
 def _package_version() -> str:
@@ -318,6 +347,7 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
         "data_file": None if single else targets[0].name,
         "rows": int(len(frame)),
         "columns": columns,
+        "provenance": provenance(),
         "metadata": _jsonable(metadata, ""),
     }
     json_text = _json_text(doc, _json_data(frame, columns) if single else None)
@@ -377,9 +407,10 @@ def _check_header(doc: dict, source: Path) -> list[dict]:
     where = repr(str(source))
     if doc.get("format") != FORMAT_NAME:
         raise DataError(f"{where}: format = {doc.get('format')!r}, expected {FORMAT_NAME!r}")
-    if doc.get("format_version") != FORMAT_VERSION:
+    if doc.get("format_version") not in READABLE_VERSIONS:
         raise DataError(
-            f"{where}: format_version = {doc.get('format_version')!r}; this nanoabs reads {FORMAT_VERSION}"
+            f"{where}: format_version = {doc.get('format_version')!r}; this nanoabs reads "
+            f"{', '.join(map(str, READABLE_VERSIONS))}"
         )
     rows = doc.get("rows")
     if not isinstance(rows, int) or isinstance(rows, bool) or rows < 0:
@@ -467,6 +498,56 @@ def _read_csv(csv_path: Path, columns: list[dict]) -> dict[str, list]:
     return {name: [row[i] for row in rows[1:]] for i, name in enumerate(expected)}
 
 
+def _read_csv_fast(csv_path: Path, columns: list[dict], rows: int):
+    """The CSV through pandas' C reader with the sidecar's dtypes, or None if anything looks wrong.
+
+    Only the literal ``nan`` is a missing value; a short line (which the C reader would fill with
+    NaN) is detected by re-reading the lines that hold NaN with the csv module. On None the caller
+    falls back to the slow reader, which names the offending line.
+    """
+    import pandas as pd
+
+    names = [c["name"] for c in columns]
+    dtypes, na = {}, {}
+    for c in columns:
+        kind = "t" if c["dtype"] in _TEXT_DTYPES else np.dtype(c["dtype"]).kind
+        dtypes[c["name"]] = str if kind == "t" else ("float64" if kind == "f" else c["dtype"])
+        na[c["name"]] = ["nan"] if kind == "f" else []
+    try:
+        frame = pd.read_csv(csv_path, dtype=dtypes, keep_default_na=False, na_values=na, encoding="utf-8",
+                            index_col=False)
+    except (ValueError, TypeError, OverflowError, OSError, pd.errors.ParserError, UnicodeDecodeError):
+        return None
+    if list(frame.columns) != names or len(frame) != rows:
+        return None
+    floats = [c["name"] for c in columns if dtypes[c["name"]] == "float64"]
+    if floats:
+        bad = np.flatnonzero(frame[floats].isna().to_numpy().any(axis=1))
+        if bad.size and not _nan_rows_are_literal(csv_path, bad, names, floats):
+            return None
+    for c in columns:  # float16/32 columns were written as exact float64 reprs
+        if c["dtype"] != dtypes[c["name"]] and dtypes[c["name"]] is not str:
+            frame[c["name"]] = frame[c["name"]].astype(c["dtype"])
+        elif dtypes[c["name"]] is str:
+            frame[c["name"]] = frame[c["name"]].astype(c["dtype"])
+    return frame
+
+
+def _nan_rows_are_literal(csv_path, rows, names, floats):
+    """True if each listed data row has every field and its missing floats are written 'nan'."""
+    want = set(int(r) + 1 for r in rows)  # line 0 is the header
+    idx = [names.index(f) for f in floats]
+    with open(csv_path, encoding="utf-8", newline="") as fh:
+        for lineno, row in enumerate(csv.reader(fh)):
+            if lineno in want:
+                if len(row) != len(names) or any(row[i] == "" for i in idx):
+                    return False
+                want.discard(lineno)
+                if not want:
+                    break
+    return not want
+
+
 def read_export(path) -> tuple[pd.DataFrame, dict]:
     """Read an export written by :func:`write_export`.
 
@@ -521,7 +602,10 @@ def read_export(path) -> tuple[pd.DataFrame, dict]:
     columns = _check_header(doc, source)
     names = [c["name"] for c in columns]
     if csv_path is not None:
-        raw = _read_csv(csv_path, columns)
+        frame = _read_csv_fast(csv_path, columns, doc["rows"])
+        if frame is not None:
+            return frame, doc
+        raw = _read_csv(csv_path, columns)  # slow path: exact diagnostics of what is wrong
     else:
         raw = doc.pop("data")
         if not isinstance(raw, dict) or list(raw) != names:
@@ -541,6 +625,22 @@ def read_export(path) -> tuple[pd.DataFrame, dict]:
 
 
 # --------------------------------------------------------------------------- other files
+
+#: Largest user input file (illumination spectrum, material table) read [bytes]: 50 MB.
+MAX_INPUT_BYTES = 50_000_000
+
+
+def check_input_file(path, what: str, *, max_bytes: int = MAX_INPUT_BYTES) -> Path:
+    """Refuse a user input file larger than ``max_bytes`` before it is parsed (bounded memory)."""
+    p = Path(path)
+    try:
+        size = p.stat().st_size
+    except OSError:
+        return p  # the reader reports a missing or unreadable file in its own words
+    if size > max_bytes:
+        raise NanoabsError(f"{what} {str(p)!r} is {size / 1e6:.0f} MB: allowed is at most {max_bytes / 1e6:.0f} MB "
+                           "(thin the table, e.g. to a 1 nm grid)")
+    return p
 
 
 def write_file_atomic(path, write, *, force: bool = False, binary: bool = False) -> Path:
@@ -563,3 +663,67 @@ def write_file_atomic(path, write, *, force: bool = False, binary: bool = False)
         tmp.unlink(missing_ok=True)
         raise
     return target
+
+
+# --------------------------------------------------------------------------- one writer at a time
+
+
+def clean_stale_temps(target) -> None:
+    """Remove temporaries of ``target`` (and its sidecar) left by a killed writer; call under its lock."""
+    target = Path(target)
+    for name in {target.name, target.with_suffix(".json").name}:
+        for tmp in target.parent.glob(f".{glob.escape(name)}.*.tmp"):
+            tmp.unlink(missing_ok=True)
+
+
+@contextmanager
+def exclusive_lock(target, what: str = "output"):
+    """Hold an exclusive OS-level lock on ``target`` (lock file ``<target>.lock``) for the block.
+
+    ``fcntl.flock`` on the lock file where available (released by the OS if the
+    process dies); elsewhere the lock file is created with ``O_EXCL`` (a stale one
+    left by a killed process must then be removed by hand, the message says so).
+    A second writer gets a one-line :class:`NanoabsError` at once; nothing waits.
+    """
+    lock = Path(str(target) + ".lock")
+    busy = (f"{what} {str(target)!r} is being written by another nanoabs process (lock file "
+            f"{str(lock)!r}); wait for it to finish or choose another output")
+    try:
+        fd = _acquire(lock, busy)
+    except OSError as exc:
+        raise NanoabsError(f"{what} {str(target)!r}: cannot create the lock file {str(lock)!r} "
+                           f"({exc.__class__.__name__}: {exc.strerror or exc})") from None
+    try:
+        os.write(fd, f"{os.getpid()}\n".encode())
+        yield lock
+    finally:
+        lock.unlink(missing_ok=True)
+        os.close(fd)
+
+
+def _acquire(lock: Path, busy: str) -> int:
+    if not _HAVE_FLOCK:
+        try:
+            return os.open(lock, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
+        except FileExistsError:
+            raise NanoabsError(busy + "; if no other process runs, remove the lock file") from None
+    import fcntl
+
+    for _ in range(5):
+        fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(fd)
+            raise NanoabsError(busy) from None
+        try:  # the previous holder may have removed the file between our open and flock
+            if os.fstat(fd).st_ino == os.stat(lock).st_ino:
+                os.ftruncate(fd, 0)
+                return fd
+        except FileNotFoundError:
+            pass
+        os.close(fd)
+    raise NanoabsError(busy)
+
+
+_HAVE_FLOCK = importlib.util.find_spec("fcntl") is not None  # POSIX

@@ -61,8 +61,8 @@ __all__ = [
     "COUPLING_WARNING_THRESHOLD",
 ]
 
-#: h c / e in eV nm (CODATA via scipy.constants; h, c, e are exact since SI 2019).
-from .drude_lorentz import HC_EV_NM  # noqa: E402  (h c [eV nm], CODATA via scipy.constants)
+#: h c / e in eV nm (exact SI constants, nanoabs._si; h, c, e are exact since SI 2019).
+from .drude_lorentz import HC_EV_NM  # noqa: E402  (h c [eV nm])
 
 SAFETY_CAUTION = """\
 Safety: the laser irradiances used to measure plasmonic photodetectors can injure eyes

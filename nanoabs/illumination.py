@@ -42,7 +42,8 @@ from typing import Callable
 import numpy as np
 
 from . import _si as _c
-from ._errors import DataError, NanoabsError, check_finite_array, check_nonnegative, check_positive, suggest
+from ._errors import (DataError, NanoabsError, _as_float, _fmt, check_finite_array, check_nonnegative, check_positive,
+                      check_range, suggest)
 
 __all__ = [
     "Illumination",
@@ -58,6 +59,8 @@ __all__ = [
     "gaussian_beam_irradiance",
     "SOLAR_SPECTRA",
     "ASTM_G173_FILE",
+    "BLACKBODY_RANGE_K",
+    "check_illumination",
 ]
 
 ASTM_G173_FILE = "astm_g173_03.csv"
@@ -68,6 +71,11 @@ SOLAR_SPECTRA = {
     "am1.5d": ("direct_circumsolar_W_m2_nm", "ASTM G173-03 direct normal + circumsolar (AM1.5D)"),
     "am0": ("extraterrestrial_W_m2_nm", "ASTM G173-03 extraterrestrial (AM0)"),
 }
+
+#: Temperatures accepted by :func:`blackbody` [K]. Below 1 K Planck's law underflows to 0 over
+#: every wavelength a material table covers (and a scaled source divides by sigma T^4 -> 0);
+#: above 1e6 K sigma T^4 leaves the range where the scaling is meaningful. A documented bound.
+BLACKBODY_RANGE_K = (1.0, 1.0e6)
 
 _REF_G173 = (
     "ASTM G173-03, Standard Tables for Reference Solar Spectral Irradiances: Direct Normal "
@@ -156,7 +164,11 @@ class Illumination:
                 f"wavelength_nm: the {self.description} spectrum is defined on {lo:g}-{hi:g} nm; "
                 f"requested {asked} nm"
             )
-        out = np.asarray(self._evaluate(wl), dtype=float)
+        with np.errstate(over="ignore", invalid="ignore"):
+            out = np.asarray(self._evaluate(wl), dtype=float)
+        if not np.all(np.isfinite(out)):
+            raise NanoabsError(f"illumination: the {self.description} spectrum is not finite (overflow) "
+                               "at some requested wavelengths; check its parameters")
         return np.broadcast_to(out, wl.shape).copy()[()]
 
     def integrated_irradiance_W_m2(self, wavelength_nm) -> float:
@@ -194,8 +206,8 @@ class Illumination:
         lo_nm, hi_nm : float or None
             Pass-band edges [nm], > 0, ``lo_nm < hi_nm``; None means no edge.
         """
-        lo = 0.0 if lo_nm is None else float(check_positive("lo_nm", lo_nm, unit="nm"))
-        hi = math.inf if hi_nm is None else float(check_positive("hi_nm", hi_nm, unit="nm"))
+        lo = 0.0 if lo_nm is None else check_positive("lo_nm", lo_nm, unit="nm", scalar=True)
+        hi = math.inf if hi_nm is None else check_positive("hi_nm", hi_nm, unit="nm", scalar=True)
         if lo >= hi:
             raise NanoabsError(f"filter: lo_nm = {lo:g} nm must be below hi_nm = {hi:g} nm")
         base = self
@@ -255,7 +267,7 @@ def monochromatic(irradiance_W_m2: float) -> Illumination:
     [A], temperature rise [K]) are for that irradiance, while integrals over
     wavelength are not meaningful (``is_monochromatic = True``).
     """
-    value = float(check_nonnegative("irradiance_W_m2", irradiance_W_m2, unit="W/m^2"))
+    value = check_nonnegative("irradiance_W_m2", irradiance_W_m2, unit="W/m^2", scalar=True)
     return Illumination(
         "monochromatic",
         f"monochromatic {value:g} W/m^2",
@@ -282,7 +294,12 @@ def gaussian_beam_peak_irradiance(power_W, beam_radius_nm):
     """
     p = check_nonnegative("power_W", power_W, unit="W")
     w_m = check_positive("beam_radius_nm", beam_radius_nm, unit="nm") * 1e-9
-    return (2.0 * p / (np.pi * w_m**2))[()]
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        out = 2.0 * p / (np.pi * w_m**2)
+    if not np.all(np.isfinite(out)):
+        raise NanoabsError(f"laser: power {_fmt(p)} W on a 1/e^2 radius of {_fmt(w_m * 1e9)} nm "
+                           "overflows the peak irradiance; check the units (W and nm)")
+    return out[()]
 
 
 def gaussian_beam_irradiance(r_nm, power_W, beam_radius_nm):
@@ -308,9 +325,16 @@ def laser(power_W: float, beam_radius_nm: float) -> Illumination:
         Beam power [W], >= 0.
     beam_radius_nm : float
         1/e^2 intensity radius [nm], > 0 (e.g. 500 nm for a focused spot).
+
+    Notes
+    -----
+    Focused beams reach irradiances that heat particles and hosts strongly and are
+    hazardous to eyes and skin: treat computed temperatures as estimates, and plan any
+    experiment under your local laser-safety rules (e.g. IEC 60825-1, ANSI Z136.1) and
+    officer. An overflowing irradiance (e.g. metres typed as nm) is refused.
     """
-    p = float(check_nonnegative("power_W", power_W, unit="W"))
-    w = float(check_positive("beam_radius_nm", beam_radius_nm, unit="nm"))
+    p = check_nonnegative("power_W", power_W, unit="W", scalar=True)
+    w = check_positive("beam_radius_nm", beam_radius_nm, unit="nm", scalar=True)
     i0 = float(gaussian_beam_peak_irradiance(p, w))
     return Illumination(
         "laser",
@@ -419,21 +443,28 @@ def blackbody(
 
     References: M. Planck, Ann. Phys. 309, 553 (1901); J. Stefan (1879) and
     L. Boltzmann (1884) for sigma T^4; constants from ``scipy.constants`` (CODATA).
+
+    ``temperature_K`` must lie in ``BLACKBODY_RANGE_K`` (1 K to 1e6 K): below it the
+    spectrum underflows to zero at every tabulated wavelength, and a source of negligible
+    temperature "scaled to a total" would divide by sigma T^4 ~ 0.
     """
-    t = float(check_positive("temperature_K", temperature_K, unit="K"))
+    t = check_range("temperature_K", temperature_K, *BLACKBODY_RANGE_K, unit="K", scalar=True)
     if total_irradiance_W_m2 is not None and solid_angle_sr is not None:
         raise NanoabsError(
             "blackbody: give at most one of total_irradiance_W_m2 and solid_angle_sr"
         )
     sigma_t4 = _c.Stefan_Boltzmann * t**4
     if solid_angle_sr is not None:
-        omega = float(check_positive("solid_angle_sr", solid_angle_sr, unit="sr"))
+        omega = check_positive("solid_angle_sr", solid_angle_sr, unit="sr", scalar=True)
         if omega > 2 * np.pi:
             raise NanoabsError(f"solid_angle_sr = {omega:g} sr: allowed range is 0 to 2 pi sr")
         factor, norm = omega, f"solid angle {omega:g} sr"
     elif total_irradiance_W_m2 is not None:
-        e_tot = float(check_nonnegative("total_irradiance_W_m2", total_irradiance_W_m2, unit="W/m^2"))
+        e_tot = check_nonnegative("total_irradiance_W_m2", total_irradiance_W_m2, unit="W/m^2", scalar=True)
         factor, norm = np.pi * e_tot / sigma_t4, f"scaled to {e_tot:g} W/m^2"
+        if not math.isfinite(factor):
+            raise NanoabsError(f"blackbody: total_irradiance_W_m2 = {e_tot:g} at {t:g} K overflows the "
+                               "scaling; check the units (W/m^2)")
     else:
         factor, norm = np.pi, f"hemisphere (sigma T^4 = {sigma_t4:.4g} W/m^2)"
     return Illumination(
@@ -456,7 +487,7 @@ def blackbody(
 
 def flat(value_W_m2_nm: float) -> Illumination:
     """A wavelength-independent spectral irradiance ``value_W_m2_nm`` [W m^-2 nm^-1]."""
-    v = float(check_nonnegative("value_W_m2_nm", value_W_m2_nm, unit="W m^-2 nm^-1"))
+    v = check_nonnegative("value_W_m2_nm", value_W_m2_nm, unit="W m^-2 nm^-1", scalar=True)
     return Illumination(
         "flat",
         f"flat {v:g} W m^-2 nm^-1",
@@ -471,14 +502,9 @@ CSV_COLUMNS = ("wavelength_nm", "irradiance_W_m2_nm")
 
 def _read_spectrum_csv(path: Path) -> tuple[np.ndarray, np.ndarray]:
     """Parse a user spectrum CSV; DataError (one line) on anything malformed."""
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise DataError(f"spectrum file {path}: not found") from None
-    except IsADirectoryError:
-        raise DataError(f"spectrum file {path}: is a directory, expected a CSV file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise DataError(f"spectrum file {path}: cannot be read ({type(exc).__name__})") from None
+    from .materials import read_user_text
+
+    text = read_user_text(path, "spectrum file")  # size-bounded, BOM accepted
 
     rows = []  # (line number, cells)
     for line_no, cells in enumerate(csv.reader(io.StringIO(text)), start=1):
@@ -494,8 +520,8 @@ def _read_spectrum_csv(path: Path) -> tuple[np.ndarray, np.ndarray]:
     for col in CSV_COLUMNS:
         if col.lower() not in lower:
             raise DataError(
-                f"spectrum file {path}, line {header_line}: missing column {col!r}; "
-                f"header is {','.join(header)!r}, required columns {', '.join(CSV_COLUMNS)}"
+                f"spectrum file {path}, line {header_line}: missing column {col!r} in the header "
+                f"row ({len(header)} columns); required columns {', '.join(CSV_COLUMNS)}"
             )
         idx.append(lower.index(col.lower()))
 
@@ -508,12 +534,12 @@ def _read_spectrum_csv(path: Path) -> tuple[np.ndarray, np.ndarray]:
             try:
                 v = float(cells[i])
             except ValueError:
-                raise DataError(
-                    f"spectrum file {path}, line {line_no}, column {col!r}: {cells[i]!r} is not a number"
+                raise DataError(  # the file's contents are never quoted in a message
+                    f"spectrum file {path}, line {line_no}, column {col!r}: not a number"
                 ) from None
             if not math.isfinite(v):
                 raise DataError(
-                    f"spectrum file {path}, line {line_no}, column {col!r}: {cells[i]!r} is not finite"
+                    f"spectrum file {path}, line {line_no}, column {col!r}: not finite"
                 )
             vals.append(v)
         wl, e = vals
@@ -548,7 +574,9 @@ def from_csv(path) -> Illumination:
     one-line :class:`DataError` naming the file, line, column and value. Evaluation
     outside the table's wavelength range raises a NanoabsError.
     """
-    p = Path(path)
+    from .materials import user_path
+
+    p = user_path(path, "spectrum file")
     wl_t, e_t = _read_spectrum_csv(p)
     return Illumination(
         "csv",
@@ -559,6 +587,18 @@ def from_csv(path) -> Illumination:
         parameters={"path": str(p), "rows": int(wl_t.size)},
         source=f"user file {p}",
     )
+
+
+def check_illumination(value, name: str = "illumination") -> Illumination:
+    """Return ``value`` if it is an :class:`Illumination`; else a one-line NanoabsError.
+
+    For every function that takes an illumination (``None``, a number or a string there
+    would otherwise fail deep inside with an AttributeError).
+    """
+    if isinstance(value, Illumination):
+        return value
+    raise NanoabsError(f"{name} = {_fmt(value)}: must be an Illumination from nanoabs.illumination "
+                       "(monochromatic, laser, solar, blackbody, flat, from_csv)")
 
 
 # ---------------------------------------------------------------------------
@@ -589,7 +629,7 @@ def band_integral(wavelength_nm, values):
     wl = check_finite_array("wavelength_nm", wavelength_nm, increasing=True)
     if wl.size < 2:
         raise NanoabsError(f"wavelength_nm has {wl.size} value(s): a band integral needs at least 2")
-    v = np.asarray(values, dtype=float)
+    v = _as_float("values", values)
     if v.ndim == 0 or v.shape[-1] != wl.size:
         raise NanoabsError(
             f"values: last axis has length {v.shape[-1] if v.ndim else 0}, expected {wl.size} "
@@ -597,4 +637,8 @@ def band_integral(wavelength_nm, values):
         )
     from scipy.integrate import trapezoid
 
-    return trapezoid(v, wl, axis=-1)[()]
+    with np.errstate(over="ignore", invalid="ignore"):
+        out = trapezoid(v, wl, axis=-1)
+    if not np.all(np.isfinite(out)):
+        raise NanoabsError("band integral: the result overflows or is NaN; check the values' units")
+    return out[()]

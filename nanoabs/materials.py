@@ -17,6 +17,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import os
 from dataclasses import dataclass, field
 from functools import lru_cache
 from importlib import resources
@@ -24,7 +25,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ._errors import DataError, NanoabsError, check_finite_array, suggest
+from ._errors import DataError, NanoabsError, _fmt, check_choice, check_finite_array, check_positive, suggest
 from .drude_lorentz import HC_EV_NM, DrudeLorentz, surface_damping_correction, surface_damping_eV
 from .hotcarriers import FREE_ELECTRON
 
@@ -41,6 +42,47 @@ ALIASES = {
     "aluminum": "Al", "silica": "SiO2", "glass": "SiO2", "titania": "TiO2", "alumina": "Al2O3",
     "sapphire": "Al2O3", "silicon": "Si", "vacuum": "air",
 }
+
+#: Largest user file read [bytes] (material tables here, spectra in nanoabs.illumination): 20 MB,
+#: about 500 000 rows of three numbers; bounds the memory a mistaken file can take.
+MAX_USER_FILE_BYTES = 20_000_000
+
+
+def user_path(path, what: str) -> Path:
+    """``path`` as a Path; a one-line NanoabsError for anything that is not a path (None, numbers)."""
+    if isinstance(path, (str, os.PathLike)) and str(path) != "":
+        return Path(path)
+    raise NanoabsError(f"{what} = {_fmt(path)}: must be a file path (str or pathlib.Path)")
+
+
+def read_user_text(path, what: str) -> str:
+    """Text of a user data file: size-bounded, UTF-8 with or without a byte-order mark.
+
+    Raises a one-line :class:`DataError` naming the file (never quoting its contents) when it
+    is missing, a folder, larger than ``MAX_USER_FILE_BYTES``, unreadable or not UTF-8.
+    """
+    p = user_path(path, what)
+    try:
+        size = p.stat().st_size
+        if p.is_dir():
+            raise IsADirectoryError
+        if size > MAX_USER_FILE_BYTES:
+            raise DataError(f"{what} {p}: {size / 1e6:.1f} MB; files up to {MAX_USER_FILE_BYTES / 1e6:g} MB "
+                            "are read (split or thin the table)")
+        with open(p, "rb") as fh:  # read at most the bound + 1 byte even if the file grew meanwhile
+            raw = fh.read(MAX_USER_FILE_BYTES + 1)
+    except FileNotFoundError:
+        raise DataError(f"{what} {p}: file not found") from None
+    except IsADirectoryError:
+        raise DataError(f"{what} {p}: is a directory, expected a CSV file") from None
+    except OSError as exc:
+        raise DataError(f"{what} {p}: cannot be read ({type(exc).__name__})") from None
+    if len(raw) > MAX_USER_FILE_BYTES:
+        raise DataError(f"{what} {p}: larger than {MAX_USER_FILE_BYTES / 1e6:g} MB")
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise DataError(f"{what} {p}: cannot be read (not UTF-8 text)") from None
 
 
 
@@ -75,9 +117,10 @@ def _parse_table(path: Path, text: str):
         kind = "nk"
     elif cols[:3] == ["wavelength_nm", "eps_real", "eps_imag"]:
         kind = "eps"
-    else:
-        raise DataError(f"material table {path}: header row must be 'wavelength_nm,n,k' or "
-                        f"'wavelength_nm,eps_real,eps_imag', got {','.join(rows[0])!r}")
+    else:  # the file's contents are never quoted in a message: only counts and positions
+        raise DataError(f"material table {path}: the first data line must be the header "
+                        f"'wavelength_nm,n,k' or 'wavelength_nm,eps_real,eps_imag' "
+                        f"(it has {len(rows[0])} fields that do not match)")
     vals = []
     for i, r in enumerate(rows[1:], start=2):
         try:
@@ -85,7 +128,7 @@ def _parse_table(path: Path, text: str):
             if len(r) < 3:
                 raise ValueError
         except ValueError:
-            raise DataError(f"material table {path}: data row {i} is not three numbers: {','.join(r)!r}") from None
+            raise DataError(f"material table {path}: data row {i} is not three numbers") from None
     a = np.array(vals, dtype=float)
     if a.shape[0] < 2:
         raise DataError(f"material table {path}: need at least 2 data rows, found {a.shape[0]}")
@@ -159,10 +202,7 @@ class Material:
 
     def refractive_index(self, wavelength_nm):
         """Complex refractive index n + ik (k ≥ 0) at vacuum wavelengths [nm]."""
-        wl = np.asarray(wavelength_nm, dtype=float)
-        if np.any(~np.isfinite(wl)) or np.any(wl <= 0):
-            bad = wl[~np.isfinite(wl) | (wl <= 0)].flat[0]
-            raise NanoabsError(f"wavelength = {bad:g} nm: must be a finite number > 0")
+        wl = check_positive("wavelength", wavelength_nm, unit="nm")
         if self._constant is not None:
             return np.full(wl.shape, self._constant, dtype=complex)[()]
         out = self.outside(wl)
@@ -175,10 +215,17 @@ class Material:
                 raise NanoabsError(
                     f"wavelength {wl.min():g}-{wl.max():g} nm is outside material {self.name} "
                     f"dataset {self.source!r} range {lo:g}-{hi:g} nm{how}")
-        x = np.log(wl)
+        # the range check accepts 1e-12 relative beyond the table ends: clip to the ends so the
+        # interpolants (extrapolate=False, NaN outside) see exactly the accepted points
+        lo, hi = self._wl[0], self._wl[-1]
+        x = np.log(np.clip(wl, lo, hi))
         n = self._n_interp(x) + 1j * self._k_interp(x)
         if np.any(out):
             n = np.where(out, self.model.refractive_index(wl), n)
+        if not np.all(np.isfinite(n)):
+            bad = np.asarray(np.broadcast_to(wl, np.shape(n)))[~np.isfinite(n)].flat[0]
+            raise NanoabsError(f"material {self.label}: optical constants are not finite at "
+                               f"{bad:g} nm (data or fitted model); choose another dataset or range")
         return np.asarray(n)[()]
 
     def permittivity(self, wavelength_nm):
@@ -357,7 +404,13 @@ def material(name, source: str | None = None, *, extrapolate: bool = False) -> M
     >>> au = material("Au")
     >>> eps = au.permittivity([500.0, 600.0])
     """
-    if isinstance(name, (int, float, complex)) and not isinstance(name, bool):
+    if isinstance(name, (bool, np.bool_)) or not isinstance(
+            name, (str, int, float, complex, np.integer, np.floating, np.complexfloating)):
+        raise NanoabsError(f"material = {_fmt(name)}: must be a material name (str), a refractive "
+                           f"index (number) or a Material (got {type(name).__name__})")
+    if source is not None and not isinstance(source, str):
+        raise NanoabsError(f"source = {_fmt(source)}: must be a dataset key (str)")
+    if isinstance(name, (int, float, complex, np.number)):
         return _constant(name)
     try:
         float(str(name))
@@ -421,15 +474,14 @@ def load_table(path, *, name: str | None = None, kind: str = "metal") -> Materia
     ``#`` header lines of the shipped form are read if present. Data in the
     exp(+iωt) convention (k ≤ 0 or ε″ ≤ 0 throughout) are conjugated on import
     and the material's metadata says so; a column whose sign changes is an error.
+    A UTF-8 byte-order mark is accepted; files larger than ``MAX_USER_FILE_BYTES`` (20 MB)
+    are refused before they are read, and error messages never quote the file's contents.
     """
-    p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise DataError(f"material table {p}: file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise DataError(f"material table {p}: cannot be read ({exc.__class__.__name__})") from None
-    header, wl, n, note = _parse_table(p, text)
+    p = user_path(path, "material table")
+    if name is not None and not isinstance(name, str):
+        raise NanoabsError(f"name = {_fmt(name)}: must be a string")
+    kind = check_choice("kind", kind, ["metal", "dielectric", "medium"])
+    header, wl, n, note = _parse_table(p, read_user_text(p, "material table"))
     info = dict(header)
     info.setdefault("dataset", f"user table {p.name}")
     if note:

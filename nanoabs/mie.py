@@ -97,6 +97,11 @@ def _fmt_c(v) -> str:
     return f"{v.real:g}{v.imag:+g}j"
 
 
+#: Largest size parameter accepted [1]: the series needs ~x orders, ~40 us per order and
+#: wavelength here; 2e4 is ~1 s per wavelength (a 1e7 nm radius took 45 s per spectrum).
+MAX_SIZE_PARAMETER = 2.0e4
+
+
 def _prepare(m, x):
     """Validate and broadcast (m, x) to shape (L, *grid); return (m, x, grid)."""
     try:
@@ -139,6 +144,9 @@ def _prepare(m, x):
     bad = ~np.isfinite(x) | (x <= 0)
     if np.any(bad):
         raise NanoabsError(f"x = {float(x[bad].flat[0]):g}: size parameter must be a finite number > 0")
+    if np.any(x > MAX_SIZE_PARAMETER):
+        raise NanoabsError(f"x = {float(np.max(x)):g}: the Mie series here accepts size parameters up to "
+                           f"{MAX_SIZE_PARAMETER:g} (about as many multipole orders per wavelength)")
     if n_layers > 1:
         dx = np.diff(x, axis=0)
         if np.any(dx < 0):
@@ -519,6 +527,18 @@ def mie_layered(m, x, *, n_max=None) -> MieEfficiencies:
     return MieEfficiencies(*(_scalar(res[k].reshape(grid)) for k in MieEfficiencies._fields))
 
 
+def _relative_inputs(eps_layers, radii, n_med, wl):
+    """m = sqrt(eps)/n_med and x = k r of every layer, (L, *grid), in one broadcast.
+
+    One broadcast of all layers' m and x together: the grid may come from the
+    sizes alone (eps without surface damping has only the wavelength axis).
+    """
+    k = 2 * np.pi * n_med / wl  # [1/nm]
+    L = len(eps_layers)
+    mx = np.broadcast_arrays(*[np.sqrt(e) / n_med for e in eps_layers], *[k * r for r in radii])
+    return np.stack(mx[:L]), np.stack(mx[L:])
+
+
 def mie_cross_sections_nm2(eps_layers, radii, n_med, wl):
     """Absorption, scattering and extinction cross-sections of (layered) spheres [nm^2].
 
@@ -543,8 +563,8 @@ def mie_cross_sections_nm2(eps_layers, radii, n_med, wl):
         ``"compiled (numba)"`` when the compiled kernel ran
         (`nanoabs._compiled_mie`, same formulas, held to 1e-12 of the numpy
         path by the tests), else ``"numpy"``: numba is missing or
-        ``nanoabs._compiled.ENABLED`` is False, or the grid is smaller than
-        ``nanoabs._compiled_mie.MIN_POINTS`` and the kernel is not loaded yet.
+        ``nanoabs._compiled.ENABLED`` is False, or the grid has fewer than
+        ``nanoabs._compiled_mie.MIN_POINTS`` (20 000) points.
 
     References
     ----------
@@ -552,11 +572,8 @@ def mie_cross_sections_nm2(eps_layers, radii, n_med, wl):
     """
     from . import _compiled, _compiled_mie
 
-    k = 2 * np.pi * n_med / wl  # [1/nm]
-    L = len(eps_layers)
-    # one broadcast of every layer's m and x (the grid may come from the sizes alone)
-    mx = np.broadcast_arrays(*[np.sqrt(e) / n_med for e in eps_layers], *[k * r for r in radii])
-    m, x = np.stack(mx[:L]), np.stack(mx[L:])
+    m, x = _relative_inputs(eps_layers, radii, n_med, wl)
+    L = m.shape[0]
     area = np.pi * radii[-1] ** 2
     if _compiled_mie.available(m[0].size):
         m, x, grid = _prepare(m, x)
@@ -936,3 +953,51 @@ def fraction_within_depth(m, x, depth, *, n_nodes=None):
     with np.errstate(divide="ignore", invalid="ignore"):
         f = np.where(total > 0, near / total, 0.0)
     return _scalar(np.clip(f, 0.0, 1.0).reshape(grid))
+
+
+# -- solvers for the method table (nanoabs.solvers.METHODS) ------------------------------------
+
+
+from .solvers import Response as _Response, Solver as _Solver  # noqa: E402  (solvers imports this module)
+
+
+class MieSolver(_Solver):
+    """Full Mie series for homogeneous and layered spheres (Yang, Appl. Opt. 42, 1710 (2003))."""
+
+    name = "mie"
+    reference = "Mie series for (layered) spheres, nanoabs.mie (Yang, Appl. Opt. 42, 1710 (2003))"
+    shapes = frozenset({"sphere", "layered sphere"})
+
+    @staticmethod
+    def inputs(problem):
+        """Relative indices m (L, ..., W) and size parameters x (L, ..., W) of the layers."""
+        return _relative_inputs(problem.eps_layers, _radii(problem), problem.n_medium, problem.wavelength_nm)
+
+    def solve(self, problem):
+        sa, ss, se, backend = mie_cross_sections_nm2(problem.eps_layers, _radii(problem), problem.n_medium,
+                                                     problem.wavelength_nm)
+        return _Response(sa, ss, se, backend=backend)
+
+
+def _radii(problem):
+    return [np.asarray(r, dtype=float) for _, r in problem.particle.layers]
+
+
+class MiepythonSolver(MieSolver):
+    """Homogeneous sphere through miepython (S. Prahl), kept as an independent reference."""
+
+    name = "miepython"
+    reference = "miepython (S. Prahl) homogeneous-sphere Mie series"
+    shapes = frozenset({"sphere"})
+
+    def solve(self, problem):
+        import miepython
+
+        m, x = (a[0] for a in self.inputs(problem))
+        qext = np.empty(m.shape)
+        qsca = np.empty(m.shape)
+        for idx in np.ndindex(m.shape):
+            # miepython uses m = n - ik (exp(+iwt)): pass the conjugate
+            qext[idx], qsca[idx], _, _ = miepython.efficiencies_mx(np.conj(m[idx]), x[idx])
+        area = np.pi * np.asarray(problem.particle.radius_nm, dtype=float) ** 2
+        return _Response((qext - qsca) * area, qsca * area, qext * area)

@@ -1,23 +1,22 @@
 """Spectra of one particle (or a broadcast family of sizes): cross-sections, efficiencies, summaries.
 
-:func:`spectrum` looks up permittivities, applies surface damping to the metal
-parts, dispatches to the solver (full Mie for spheres and layered spheres,
-dipole-limit or corrected quasi-static for ellipsoids) and returns a
-:class:`Spectrum` with SI cross-sections, efficiencies, derived quantities and
-metadata.
+:func:`spectrum` resolves the materials (with surface damping for metal parts)
+and the environment into a :class:`nanoabs.solvers.Problem`, picks a solver from
+:data:`nanoabs.solvers.METHODS` and wraps its answer in a :class:`Spectrum` with SI
+cross-sections, efficiencies, derived quantities, cautions and metadata.
 
 Methods
 -------
 ``"mie"``         full Mie series (homogeneous or layered sphere; :mod:`nanoabs.mie`)
 ``"miepython"``   homogeneous sphere through miepython (reference implementation)
-``"quasistatic"`` static dipole limit (B&H 1983 eqs. 5.7, 5.32, 5.35, 5.36)
+``"quasistatic"`` static dipole limit (B&H 1983 eqs. 5.7, 5.32, 5.35, 5.36; :mod:`nanoabs.dipole`)
 ``"mlwa"``        corrected quasi-static: radiative reaction and dynamic
                   depolarisation (Meier & Wokaun 1983; Moroz 2009 for ellipsoids)
-``"auto"``        ``mie`` for spheres and layered spheres, ``mlwa`` for ellipsoids
+``"auto"``        the rule of :func:`nanoabs.solvers.choose`: exact methods first
 
 Validity of the dipole methods: the largest dimension should stay below about a
 tenth of the wavelength in the medium (static) or ``k a_max ≲ 0.5`` (corrected);
-beyond that the result carries a warning in ``metadata["warnings"]``.
+beyond that the result carries a caution (:mod:`nanoabs.validity`).
 """
 
 from __future__ import annotations
@@ -27,14 +26,13 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import __version__
-from ._errors import NanoabsError, check_choice, check_finite_array
+from ._errors import NanoabsError, check_finite_array, check_flag
 from .drude_lorentz import surface_damping_eV
-from .materials import damped_permittivity
-from .particles import Ellipsoid, LayeredSphere, Sphere, _plain, resolve_polarization
+from .particles import _plain, check_size_family, resolve_polarization
+from .solvers import METHODS, Homogeneous, Problem, choose
+from .validity import Caution, emit
 
 __all__ = ["Spectrum", "spectrum", "METHODS", "FRAME_COLUMNS", "UNITS"]
-
-METHODS = ("auto", "mie", "miepython", "quasistatic", "mlwa")
 
 FRAME_COLUMNS = ["wavelength_nm", "sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2",
                  "q_abs", "q_sca", "q_ext", "q_abs_eqvol", "sigma_abs_per_metal_volume_m_1",
@@ -109,14 +107,14 @@ class Spectrum:
     @property
     def sigma_abs_per_metal_volume_m_1(self):
         """σ_abs per metal volume [m⁻¹] (absorption per unit of metal used)."""
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(self.metal_volume_m3 > 0, self.sigma_abs_m2 / self.metal_volume_m3, np.nan)
+        with np.errstate(divide="ignore", invalid="ignore"):  # 0 for a particle without metal, never NaN
+            return np.where(self.metal_volume_m3 > 0, self.sigma_abs_m2 / self.metal_volume_m3, 0.0)
 
     @property
     def absorbed_fraction(self):
         """σ_abs / σ_ext: the part of the removed light a detector keeps as absorption."""
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(self.sigma_ext_m2 > 0, self.sigma_abs_m2 / self.sigma_ext_m2, np.nan)
+        with np.errstate(divide="ignore", invalid="ignore"):  # nothing removed: nothing absorbed (0, not NaN)
+            return np.where(self.sigma_ext_m2 > 0, self.sigma_abs_m2 / self.sigma_ext_m2, 0.0)
 
     @property
     def dipole_bound_ratio(self):
@@ -130,27 +128,99 @@ class Spectrum:
         return self.sigma_abs_m2 / (3.0 * lam_m**2 / (8.0 * np.pi))
 
     def peak_wavelength_nm(self):
-        """Wavelength of maximum σ_abs on the grid, refined by a parabola through the top 3 points."""
+        """Wavelength of maximum σ_abs [nm], refined by a parabola through the top 3 points.
+
+        NaN when the maximum sits on the first or last grid point: that is not a peak
+        (the absorption rises beyond the window); :meth:`summary` says which end.
+        """
         return _peak(self.wavelength_nm, self.sigma_abs_m2)
 
     def fwhm_nm(self):
-        """Full width at half maximum of σ_abs [nm]; NaN when the half maximum is not reached inside
-        the grid on both sides of the peak (the peak is cut by the grid edge)."""
+        """Full width at half maximum of σ_abs [nm]; NaN when there is no peak inside the window or
+        the half maximum is not reached inside it on one side (:meth:`summary` says which)."""
         return _fwhm(self.wavelength_nm, self.sigma_abs_m2)
 
     def summary(self) -> dict:
-        """Scalar summary of a single-particle spectrum."""
+        """Scalar summary of a single-particle spectrum.
+
+        ``peak_status`` is "peak" or says that the absorption rises beyond one end of the
+        window (then ``peak_wavelength_nm`` is NaN); ``fwhm_status`` is "resolved" or says why
+        ``fwhm_nm`` is NaN. The ``*_at_peak`` values are taken at the largest σ_abs in the window.
+        """
         if np.ndim(self.sigma_abs_m2) != 1:
             raise NanoabsError("summary() is for one particle; index the family first")
         i = int(np.argmax(self.sigma_abs_m2))
         return {
             "peak_wavelength_nm": float(self.peak_wavelength_nm()),
+            "peak_status": _peak_status(self.wavelength_nm, self.sigma_abs_m2),
             "fwhm_nm": float(self.fwhm_nm()),
+            "fwhm_status": _fwhm_status(self.wavelength_nm, self.sigma_abs_m2),
             "peak_sigma_abs_m2": float(self.sigma_abs_m2[i]),
             "peak_q_abs": float(self.q_abs[i]),
             "absorbed_fraction_at_peak": float(self.absorbed_fraction[i]),
             "dipole_bound_ratio_at_peak": float(self.dipole_bound_ratio[i]),
         }
+
+    # -- looking at it ----------------------------------------------------------
+    def _headline(self) -> str:
+        m = self.metadata
+        part = m.get("particle", {})
+        env = m.get("environment", {})
+        host = (env.get("medium") or {}).get("material", env.get("kind", "?")) if isinstance(env, dict) else "?"
+        fam = "" if np.ndim(self.sigma_abs_m2) == 1 else f", family of shape {np.shape(self.sigma_abs_m2)[:-1]}"
+        return (f"{part.get('shape', 'particle')} of {part.get('material', part.get('core', '?'))} in {host}; "
+                f"method {m.get('method', '?')}; {self.wavelength_nm.size} wavelengths "
+                f"{self.wavelength_nm[0]:g}-{self.wavelength_nm[-1]:g} nm{fam}")
+
+    def __repr__(self) -> str:
+        lines = [f"Spectrum({self._headline()})"]
+        if np.ndim(self.sigma_abs_m2) == 1:
+            sm = self.summary()
+            peak = (f"peak {sm['peak_wavelength_nm']:.1f} nm" if sm["peak_status"] == "peak"
+                    else sm["peak_status"])
+            lines.append(f"  {peak}; largest sigma_abs {sm['peak_sigma_abs_m2']:.3g} m^2, "
+                         f"Q_abs {sm['peak_q_abs']:.3g}")
+        n = len(self.metadata.get("cautions", []))
+        if n:
+            lines.append(f"  {n} caution(s): see .metadata['cautions']")
+        return "\n".join(lines)
+
+    def _repr_html_(self) -> str:
+        import html
+
+        rows = "".join(f"<li>{html.escape(c['message'])}</li>" for c in self.metadata.get("cautions", []))
+        body = html.escape(repr(self)).replace("\n", "<br>")
+        return f"<div><b>nanoabs Spectrum</b><br>{body}" + (f"<ul>{rows}</ul>" if rows else "") + "</div>"
+
+    def plot(self, ax=None, quantity: str = "sigma_abs_m2", **line_kw):
+        """Plot one quantity against wavelength; returns the matplotlib Axes.
+
+        Parameters
+        ----------
+        ax : matplotlib Axes, optional
+            Where to draw (a new figure through pyplot when omitted, so notebooks show it).
+        quantity : str
+            A column of :data:`FRAME_COLUMNS` (default ``"sigma_abs_m2"``); cross-sections
+            are drawn in nm².
+        **line_kw
+            Passed to ``Axes.plot`` (``label``, ``color``, ...).
+        """
+        from .plotting import spectrum_axes
+
+        return spectrum_axes(self, quantity, ax=ax, **line_kw)
+
+    def to_xarray(self, dims=None):
+        """The spectrum (or family) as an :class:`xarray.Dataset` with CF-style ``units`` attributes.
+
+        Parameters
+        ----------
+        dims : sequence of str, optional
+            Names of the leading (family) dimensions; ``index_0, index_1, ...`` by default.
+            The last dimension is always ``wavelength_nm``.
+        """
+        from .dataset import spectrum_dataset
+
+        return spectrum_dataset(self, dims)
 
     def write(self, path, *, force: bool = False):
         """Export :meth:`to_frame` with :data:`UNITS`, the metadata and :meth:`summary` (CSV + JSON)."""
@@ -172,46 +242,93 @@ class Spectrum:
         return pd.DataFrame(data, columns=FRAME_COLUMNS)
 
 
+PEAK_STATUS = ("peak", "rises beyond the short end of the window", "rises beyond the long end of the window",
+               "no maximum")
+
+
+def _peak_status(wl, y) -> str:
+    """Where the maximum of ``y`` sits: a peak inside the window, or a rise beyond one of its ends.
+
+    A maximum on the first or last grid point is not a peak: the curve may keep rising
+    outside the window (common practice in reporting resonances).
+    """
+    y = np.asarray(y, dtype=float)
+    if y.size == 0 or not np.any(np.isfinite(y)) or np.nanmax(y) <= np.nanmin(y):
+        return PEAK_STATUS[3]
+    i = int(np.nanargmax(y))
+    if i == 0:
+        return PEAK_STATUS[1]
+    if i == y.size - 1:
+        return PEAK_STATUS[2]
+    return PEAK_STATUS[0]
+
+
 def _peak(wl, y):
-    y = np.asarray(y)
-    i = np.argmax(y, axis=-1)
-    if y.ndim == 1:
-        if 0 < i < len(wl) - 1:
-            x0, x1, x2 = wl[i - 1:i + 2]
-            y0, y1, y2 = y[i - 1:i + 2]
-            den = (x0 - x1) * (x0 - x2) * (x1 - x2)
-            A = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den
-            B = (x2**2 * (y0 - y1) + x1**2 * (y2 - y0) + x0**2 * (y1 - y2)) / den
-            if A < 0:
-                return float(np.clip(-B / (2 * A), x0, x2))
-        return float(wl[i])
-    return np.apply_along_axis(lambda r: _peak(wl, r), -1, y)
-
-
-def _fwhm(wl, y):
+    """Wavelength of the maximum, refined by a parabola through the top 3 points; NaN unless it is a
+    peak inside the window (see :func:`_peak_status`). Works along the last axis."""
     y = np.asarray(y)
     if y.ndim > 1:
-        return np.apply_along_axis(lambda r: _fwhm(wl, r), -1, y)
-    i = int(np.argmax(y))
+        return np.apply_along_axis(lambda r: _peak(wl, r), -1, y)
+    if _peak_status(wl, y) != PEAK_STATUS[0]:
+        return float("nan")
+    i = int(np.nanargmax(y))
+    x0, x1, x2 = wl[i - 1:i + 2]
+    y0, y1, y2 = y[i - 1:i + 2]
+    den = (x0 - x1) * (x0 - x2) * (x1 - x2)
+    A = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den
+    B = (x2**2 * (y0 - y1) + x1**2 * (y2 - y0) + x0**2 * (y1 - y2)) / den
+    return float(np.clip(-B / (2 * A), x0, x2)) if A < 0 else float(x1)
+
+
+def _half_max_crossings(wl, y):
+    """(short-side crossing, long-side crossing) of half the peak [nm], NaN where not reached."""
+    i = int(np.nanargmax(y))
     half = y[i] / 2.0
     left = np.flatnonzero(y[:i] < half)
     right = np.flatnonzero(y[i:] < half)
-    if left.size == 0 or right.size == 0 or half <= 0:
+    xl = xr = float("nan")
+    if left.size:
+        j = left[-1]
+        xl = float(np.interp(half, [y[j], y[j + 1]], [wl[j], wl[j + 1]]))
+    if right.size:
+        k = i + right[0]
+        xr = float(np.interp(half, [y[k], y[k - 1]], [wl[k], wl[k - 1]]))
+    return xl, xr
+
+
+def _fwhm_status(wl, y) -> str:
+    """Why a width is or is not given: "resolved", the peak status, or the side where the half
+    maximum is never reached inside the window."""
+    y = np.asarray(y, dtype=float)
+    status = _peak_status(wl, y)
+    if status != PEAK_STATUS[0]:
+        return status
+    xl, xr = _half_max_crossings(wl, y)
+    if xl == xl and xr == xr:
+        return "resolved"
+    side = ("both sides" if xl != xl and xr != xr else "the short-wavelength side" if xl != xl
+            else "the long-wavelength side")
+    return f"half maximum not reached on {side} inside the window"
+
+
+def _fwhm(wl, y):
+    """Full width at half maximum [nm]; NaN unless resolved (see :func:`_fwhm_status`)."""
+    y = np.asarray(y, dtype=float)
+    if y.ndim > 1:
+        return np.apply_along_axis(lambda r: _fwhm(wl, r), -1, y)
+    if _peak_status(wl, y) != PEAK_STATUS[0]:
         return float("nan")
-    j = left[-1]
-    xl = np.interp(half, [y[j], y[j + 1]], [wl[j], wl[j + 1]])
-    k = i + right[0]
-    xr = np.interp(half, [y[k], y[k - 1]], [wl[k], wl[k - 1]])
-    return float(xr - xl)
+    xl, xr = _half_max_crossings(wl, y)
+    return xr - xl
 
 
-# -- permittivities ------------------------------------------------------------
+# -- surface damping -----------------------------------------------------------
 
 
 def _damping_extra_eV(mat, length_nm, on, A, notes, label):
     """Extra Drude damping Δγ [eV] of a metal part of mean free path L [nm], or None if not applied.
 
-    Records what was applied (or why not) in ``notes``.
+    Records what was applied in ``notes["surface_damping"]`` (or why not, as a caution).
     """
     if not (on and getattr(mat, "is_metal", False)):
         return None
@@ -219,8 +336,8 @@ def _damping_extra_eV(mat, length_nm, on, A, notes, label):
 
     model = getattr(mat, "model", None)
     if model is None or model.plasma_energy_eV <= 0 or mat.name not in FREE_ELECTRON:
-        notes["warnings"].append(f"surface damping not applied to {label} ({mat.label}): no fitted "
-                                 "Drude term or tabulated Fermi velocity")
+        notes["cautions"].append(Caution("damping-unavailable", f"surface damping not applied to {label} "
+                                         f"({mat.label}): no fitted Drude term or tabulated Fermi velocity"))
         return None
     vf = FREE_ELECTRON[mat.name].fermi_velocity_m_s
     L = np.asarray(length_nm, dtype=float)
@@ -233,176 +350,28 @@ def _damping_extra_eV(mat, length_nm, on, A, notes, label):
     return extra
 
 
-_CLIP_NOTE = "surface-damped eps'' of {} clipped at 0 at some wavelengths"
+def _check_particle(particle):
+    if not hasattr(particle, "layer_materials"):
+        raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere or Ellipsoid")
 
 
-def _eps_with_damping(mat, wl, length_nm, on, A, notes, label):
-    """ε of ``mat`` on ``wl``, with the surface-damping correction for mean free path L [nm]."""
-    extra = _damping_extra_eV(mat, length_nm, on, A, notes, label)
-    if extra is None:
-        return np.asarray(mat.permittivity(wl), dtype=complex)
-    out, clipped = damped_permittivity(mat, wl, extra)
-    if clipped:
-        notes["warnings"].append(_CLIP_NOTE.format(label))
-    return out
+def _environment(medium, environment):
+    """The environment object: ``environment`` as given, or a homogeneous host of ``medium``."""
+    from .materials import material
+
+    if environment is not None:
+        if medium is not None:
+            raise NanoabsError("medium and environment: give one or the other (the environment names the "
+                               "particle's host)")
+        if not hasattr(environment, "apply"):
+            raise NanoabsError(f"environment = {environment!r}: expected an environment object such as "
+                               "nanoabs.solvers.Homogeneous")
+        return environment
+    medium = "water" if medium is None else medium
+    return Homogeneous(material(medium) if not hasattr(medium, "permittivity") else medium)
 
 
-# -- the solvers ---------------------------------------------------------------
-
-
-def _mie_layers(eps_layers, radii, n_med, wl):
-    from .mie import mie_cross_sections_nm2
-
-    return mie_cross_sections_nm2(eps_layers, radii, n_med, wl)
-
-
-def _miepython_sphere(eps, radius, n_med, wl):
-    import miepython
-
-    k = 2 * np.pi * n_med / wl
-    m = np.sqrt(eps) / n_med
-    x = k * radius
-    m, x = np.broadcast_arrays(m, x)
-    qext = np.empty(m.shape)
-    qsca = np.empty(m.shape)
-    for idx in np.ndindex(m.shape):
-        # miepython uses m = n - ik (exp(+iwt)): pass the conjugate
-        e, s, _, _ = miepython.efficiencies_mx(np.conj(m[idx]), x[idx])
-        qext[idx], qsca[idx] = e, s
-    area = np.pi * np.asarray(radius) ** 2
-    return (qext - qsca) * area, qsca * area, qext * area
-
-
-def _nested_eps(eps_layers, radii):
-    """Quasi-static equivalent permittivity of a multi-layer sphere (exact in the dipole limit).
-
-    A coated sphere polarises like a homogeneous sphere of its outer radius with
-    ε_eq = ε₂ [ε₁ + 2ε₂ + 2f(ε₁ − ε₂)] / [ε₁ + 2ε₂ − f(ε₁ − ε₂)], f = (r₁/r₂)³, which is
-    B&H (1983) eq. 5.36 rewritten; applied outward layer by layer.
-    """
-    e_in, r_in = eps_layers[0], radii[0]
-    for e_out, r_out in zip(eps_layers[1:], radii[1:]):
-        f = (r_in / r_out) ** 3
-        e_in = e_out * (e_in + 2 * e_out + 2 * f * (e_in - e_out)) / (e_in + 2 * e_out - f * (e_in - e_out))
-        r_in = r_out
-    return e_in
-
-
-def _dipole_sphere(eps_layers, radii, n_med, wl, corrected):
-    from . import quasistatic as qs
-
-    k = 2 * np.pi * n_med / wl
-    eps_m = n_med**2
-    if len(eps_layers) == 2:
-        if corrected:
-            alpha = qs.polarizability_coated_sphere_mlwa(eps_layers[0], eps_layers[1], eps_m,
-                                                         radii[0], radii[1], k)
-        else:
-            alpha = qs.polarizability_coated_sphere(eps_layers[0], eps_layers[1], eps_m, radii[0], radii[1])
-    else:
-        e = _nested_eps(eps_layers, radii)
-        alpha = (qs.polarizability_sphere_mlwa(e, eps_m, radii[-1], k) if corrected
-                 else qs.polarizability_sphere(e, eps_m, radii[-1]))
-    return qs.cross_sections(alpha, k, corrected=corrected)
-
-
-def _field_axes(pol, core_axes, shell_axes):
-    """[(axis, weight)]: the distinct principal axes a field samples, with their weights.
-
-    A fixed polarisation samples one axis. Random orientation averages the three
-    principal cross-sections with weight 1/3 each (see
-    :func:`~nanoabs.quasistatic.orientation_average`); a spheroid's two equal
-    axes give equal cross-sections, so each distinct axis is computed once.
-    """
-    if pol != "random":
-        return [(pol, 1.0)]
-
-    def same(i, j):
-        return (np.array_equal(*np.broadcast_arrays(core_axes[i], core_axes[j])) and
-                (shell_axes is None or np.array_equal(*np.broadcast_arrays(shell_axes[i], shell_axes[j]))))
-
-    if same(1, 2):
-        return [("x", 1.0 / 3.0), ("y", 2.0 / 3.0)]
-    if same(0, 1):
-        return [("x", 2.0 / 3.0), ("z", 1.0 / 3.0)]
-    return [("x", 1.0 / 3.0), ("y", 1.0 / 3.0), ("z", 1.0 / 3.0)]
-
-
-def _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, pol, corrected):
-    """Cross-sections [nm²] of a (coated) ellipsoid in the dipole limit (numpy path)."""
-    from . import quasistatic as qs
-
-    k = 2 * np.pi * n_med / wl
-    eps_m = n_med**2
-    total = None
-    for ax, weight in _field_axes(pol, core_axes, shell_axes):
-        if eps_shell is None:
-            alpha = (qs.polarizability_ellipsoid_mlwa(eps_core, eps_m, *core_axes, k, axis=ax) if corrected
-                     else qs.polarizability_ellipsoid(eps_core, eps_m, *core_axes, axis=ax))
-        else:
-            alpha = (qs.polarizability_coated_ellipsoid_mlwa(eps_core, eps_shell, eps_m, core_axes,
-                                                             shell_axes, k, axis=ax) if corrected
-                     else qs.polarizability_coated_ellipsoid(eps_core, eps_shell, eps_m, core_axes,
-                                                             shell_axes, axis=ax))
-        sections = [weight * x for x in qs.cross_sections(alpha, k, corrected=corrected)]
-        total = sections if total is None else [t + x for t, x in zip(total, sections)]
-    return tuple(total)
-
-
-def _dipole_ellipsoid_compiled(mat, core_axes, core_L, wl, n_med, pol, surface_damping, damping_A,
-                               notes, label):
-    """MLWA cross-sections [m²] of a homogeneous ellipsoid family by the compiled kernel, or None.
-
-    Used when numba is available and the geometry does not vary with wavelength
-    (semi-axes scalars or of shape (..., 1)); returns ``(sa, ss, se, eps_thunk,
-    nonfinite)`` with ``eps_thunk()`` giving the permittivity list the numpy path
-    would have produced (evaluated only when asked for) and ``nonfinite`` whether
-    any cross-section is NaN or infinite.
-    """
-    from . import _compiled
-    from . import quasistatic as qs
-    from .drude_lorentz import HC_EV_NM
-
-    G = np.broadcast_shapes(*(np.shape(a) for a in core_axes))
-    if (G and G[-1] != 1) or not _compiled.available():
-        return None
-    axes = [np.broadcast_to(a, G).reshape(-1) for a in core_axes]
-    L_all = qs.depolarization_factors(*axes)
-    D_all = qs.dynamic_depolarization_factors(*axes, depolarization=L_all)
-    picks = [("xyz".index(ax), w) for ax, w in _field_axes(pol, core_axes, None)]
-    depol = np.stack([np.broadcast_to(L_all[i], axes[0].shape) for i, _ in picks])
-    dyn = np.stack([np.broadcast_to(D_all[i] / (4.0 * np.pi * axes[i]), axes[0].shape) for i, _ in picks])
-    weights = np.array([w for _, w in picks])
-    volume = 4.0 / 3.0 * np.pi * axes[0] * axes[1] * axes[2]
-    local = {"warnings": [], "surface_damping": []}  # merged into notes only if this path is taken
-    extra_G = _damping_extra_eV(mat, core_L, surface_damping, damping_A, local, label)
-    if extra_G is None:
-        drude, extra = (0.0, 0.0), np.zeros(volume.shape)
-    else:
-        drude = (mat.model.plasma_energy_eV**2, mat.model.damping_eV)
-        extra = np.broadcast_to(extra_G, G).reshape(-1)
-    try:
-        sa, ss, se, n_clip, n_bad = _compiled.ellipsoid_mlwa_map(
-            mat.permittivity(wl), HC_EV_NM / wl, drude, extra, n_med**2, 2 * np.pi * n_med / wl,
-            depol, dyn, weights, volume, NM2_TO_M2)
-    except _compiled.Unavailable:
-        return None
-    if n_clip:
-        local["warnings"].append(_CLIP_NOTE.format(label))
-    for key in local:
-        notes[key] += local[key]
-    shape = G[:-1] + wl.shape if G else wl.shape
-    sa, ss, se = (x.reshape(shape) for x in (sa, ss, se))
-
-    def eps_thunk():  # the permittivity the numpy path would have used (notes already made)
-        if extra_G is None:
-            return [np.asarray(mat.permittivity(wl), dtype=complex)]
-        return [damped_permittivity(mat, wl, extra_G)[0]]
-
-    return sa, ss, se, eps_thunk, n_bad > 0
-
-
-def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
+def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: str = "auto",
              polarization: str = "random", surface_damping: bool = True,
              damping_A: float = 1.0) -> Spectrum:
     """Absorption, scattering and extinction spectra of one particle in a medium.
@@ -415,7 +384,13 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
     medium : str, float or Material, keyword-only
         Embedding medium (default water). Must be non-absorbing at the
         wavelengths used (cross-sections in an absorbing host are ill-defined).
-    method : {"auto", "mie", "miepython", "quasistatic", "mlwa"}, keyword-only
+    environment : environment object, keyword-only
+        Where the particle sits and how it is lit (instead of ``medium``); the
+        default is a homogeneous host of ``medium``.
+    method : str, keyword-only
+        A name in :data:`nanoabs.solvers.METHODS` ("mie", "miepython",
+        "quasistatic", "mlwa", ...) or "auto" (the rule of
+        :func:`nanoabs.solvers.choose`; the metadata says which ran and why).
     polarization : str, keyword-only
         Ellipsoids: "x", "y", "z" or "random"; rods/discs: "long", "short" or
         "random" (orientation average). Ignored for spheres.
@@ -431,171 +406,60 @@ def spectrum(particle, wavelength_nm, *, medium="water", method: str = "auto",
     Returns
     -------
     Spectrum
+        Cautions (validity, data, damping) are in ``metadata["cautions"]`` and are
+        also issued as :class:`nanoabs.validity.NanoabsWarning`.
     """
-    from .materials import material
-
     wl = check_finite_array("wavelength_nm", wavelength_nm, increasing=True)
     if np.any(wl <= 0):
         raise NanoabsError(f"wavelength = {wl.min():g} nm: must be > 0")
-    method = check_choice("method", method, METHODS)
-    med = material(medium) if not hasattr(medium, "permittivity") else medium
-    n_med_c = np.atleast_1d(med.refractive_index(wl)).astype(complex)
-    notes = {"warnings": [], "surface_damping": []}
-    worst = float(np.max(n_med_c.imag))
-    if worst > 0.01 * float(np.min(n_med_c.real)):
-        raise NanoabsError(f"medium {med.label} absorbs strongly (k up to {worst:.3g}) at these wavelengths: "
-                           "cross-sections need a (nearly) non-absorbing host; choose another range or medium")
-    if worst > 1e-5:
-        notes["warnings"].append(f"medium {med.label} absorbs weakly (k up to {worst:.2g}); its absorption "
-                                 "is neglected (real part of its index used)")
-    n_med = n_med_c.real
-    backend = "numpy"
-    nonfinite = None  # a solver that already knows sets it
-
-    if isinstance(particle, (Sphere, LayeredSphere)):
-        layers = particle.layers
-        radii = [np.asarray(r, dtype=float) for _, r in layers]
-        eps_layers = []
-        for i, (mat, r) in enumerate(layers):
-            if i == 0:
-                L = 4.0 / 3.0 * r
-                label = "sphere" if isinstance(particle, Sphere) else "core"
-            else:
-                L = r - radii[i - 1]
-                label = f"shell {i}"
-            eps_layers.append(_eps_with_damping(mat, wl, L, surface_damping, damping_A, notes, label))
-        if method == "auto":
-            method = "mie"
-        if method == "mie":
-            sa, ss, se, backend = _mie_layers(eps_layers, radii, n_med, wl)
-        elif method == "miepython":
-            if len(layers) != 1:
-                raise NanoabsError("method = 'miepython' handles homogeneous spheres only; use 'mie'")
-            sa, ss, se = _miepython_sphere(eps_layers[0], radii[0], n_med, wl)
-        else:
-            corrected = method == "mlwa"
-            sa, ss, se = _dipole_sphere(eps_layers, radii, n_med, wl, corrected)
-            _check_dipole_validity(radii[-1], wl, n_med, method, notes)
-        sa, ss, se = (np.asarray(x) * NM2_TO_M2 for x in (sa, ss, se))
-        geo = eqv = np.pi * radii[-1] ** 2
-        metal_vol = sum(4.0 / 3.0 * np.pi * (r**3 - (radii[i - 1] ** 3 if i else 0.0))
-                        for i, ((mat, _), r) in enumerate(zip(layers, radii)) if mat.is_metal)
-        ref_area = "pi r_outer^2"
-        pol = None
-        used_eps = eps_layers
-    elif isinstance(particle, Ellipsoid):
-        pol = resolve_polarization(particle, polarization)
-        core_axes = tuple(np.asarray(a, dtype=float) for a in particle.semi_axes_nm)
-        from .quasistatic import ellipsoid_surface_area
-
-        core_surface = ellipsoid_surface_area(*core_axes)
-        core_L = 4.0 * (4.0 / 3.0 * np.pi * (core_axes[0] * core_axes[1] * core_axes[2])) / core_surface
-        label = "core" if particle.shell else particle.kind
-        if method == "auto":
-            method = "mlwa"
-        if method in ("mie", "miepython"):
-            raise NanoabsError(f"method = {method!r} needs a sphere; ellipsoids allow 'quasistatic' or 'mlwa'")
-        fast = None
-        if method == "mlwa" and particle.shell is None:
-            fast = _dipole_ellipsoid_compiled(particle.material, core_axes, core_L, wl, n_med, pol,
-                                              surface_damping, damping_A, notes, label)
-        shell_axes = None
-        if fast is not None:
-            sa, ss, se, used_eps, nonfinite = fast
-            backend = "compiled (numba)"
-        else:
-            eps_core = _eps_with_damping(particle.material, wl, core_L, surface_damping, damping_A, notes,
-                                         label)
-            eps_shell = None
-            if particle.shell is not None:
-                shell_axes = tuple(np.asarray(a, dtype=float) for a in particle.shell_axes_nm())
-                eps_shell = _eps_with_damping(particle.shell[0], wl, particle.shell[1], surface_damping,
-                                              damping_A, notes, "shell")
-            used_eps = [eps_core] + ([eps_shell] if eps_shell is not None else [])
-            sa, ss, se = (np.asarray(x) * NM2_TO_M2 for x in
-                          _dipole_ellipsoid(eps_core, eps_shell, core_axes, shell_axes, n_med, wl, pol,
-                                            method == "mlwa"))
-        outer = shell_axes or core_axes
-        _check_dipole_validity(outer, wl, n_med, method, notes)
-        vol = 4.0 / 3.0 * np.pi * (outer[0] * outer[1] * outer[2])
-        if pol == "random":
-            geo = (core_surface if shell_axes is None else ellipsoid_surface_area(*outer)) / 4.0
-            ref_area = "surface area / 4 (random orientation, Cauchy's theorem)"
-        else:
-            geo = particle.projected_area_nm2(pol)
-            ref_area = ("projected area pi a b (light along z)" if pol in ("x", "y")
-                        else "projected area pi b c (light along x)")
-        eqv = np.pi * (3 * vol / (4 * np.pi)) ** (2.0 / 3.0)
-        core_vol = 4.0 / 3.0 * np.pi * (core_axes[0] * core_axes[1] * core_axes[2])
-        metal_vol = (core_vol if particle.material.is_metal else 0.0)
-        if particle.shell is not None and particle.shell[0].is_metal:
-            metal_vol = metal_vol + (vol - core_vol)
-    else:
-        raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere or Ellipsoid")
-
+    _check_particle(particle)
+    check_size_family(particle, wl)
+    surface_damping = check_flag("surface_damping", surface_damping)
+    env = _environment(medium, environment)
+    solver, reason = choose(method, particle, env)
+    pol = resolve_polarization(particle, polarization)
+    n_med, cautions = env.host_index(wl)
+    notes = {"cautions": cautions, "surface_damping": []}
+    damping = [_damping_extra_eV(mat, L, surface_damping, damping_A, notes, label)
+               for mat, L, label in zip(particle.layer_materials(), particle.damping_lengths_nm(),
+                                        particle.layer_labels())]
+    problem = Problem(particle, wl, n_med, pol, env, damping)
+    resp = env.apply(solver, problem)
+    sa, ss, se = (np.asarray(x) * NM2_TO_M2 for x in (resp.sigma_abs_nm2, resp.sigma_sca_nm2,
+                                                      resp.sigma_ext_nm2))
+    cautions += [Caution("damping-clipped", _CLIP_NOTE.format(label)) for label in problem.clipped]
+    cautions += solver.validity(problem)
+    nonfinite = resp.nonfinite
     if nonfinite is None:
         nonfinite = not (np.isfinite(np.sum(sa)) and np.isfinite(np.sum(se)))  # one pass, no temporaries
     if nonfinite:
-        notes["warnings"].append("non-finite cross-sections at some wavelengths (check inputs)")
+        raise NanoabsError("spectrum: non-finite cross-sections at some wavelengths; no result is returned "
+                           "(check the inputs; report it if they are physical)")
+    geo, ref_area = particle.reference_area_nm2(pol)
     meta = {
         "particle": particle.describe(),
-        "method": method,
-        "solver_backend": backend,
-        "method_reference": _METHOD_REFS[method],
-        "polarization": pol if pol else "any (sphere)",
+        "method": solver.name,
+        "method_reason": reason,
+        "solver_backend": resp.backend,
+        "method_reference": solver.reference,
+        "polarization": "any (sphere)" if particle.shape != "ellipsoid" else pol,
         "efficiency_reference_area": ref_area,
         "q_abs_eqvol_reference_area": "pi r_v^2 of the equal-volume sphere",
-        "medium": med.metadata(),
-        "materials": _materials_meta(particle),
+        "environment": env.describe(),
+        "medium": env.medium.metadata() if hasattr(env, "medium") else None,
+        "materials": [m.metadata() for m in particle.layer_materials()],
         "surface_damping": notes["surface_damping"] if surface_damping else "off",
-        "warnings": notes["warnings"],
+        "warnings": [c.message for c in cautions],
+        "cautions": [c.to_dict() for c in cautions],
         "package_version": __version__,
+        **resp.metadata,
     }
+    emit(cautions)
     shape = np.shape(sa)  # reference areas: read-only broadcast views, not copies
+    eps = problem._eps if problem._eps is not None else (lambda: problem.eps_layers)
     return Spectrum(wl, sa, ss, se, np.broadcast_to(np.asarray(geo) * NM2_TO_M2, shape),
-                    np.broadcast_to(np.asarray(eqv) * NM2_TO_M2, shape),
-                    np.asarray(metal_vol, dtype=float) * 1e-27, n_med, meta, used_eps)
+                    np.broadcast_to(np.asarray(particle.equal_volume_area_nm2()) * NM2_TO_M2, shape),
+                    np.asarray(particle.metal_volume_nm3(), dtype=float) * 1e-27, n_med, meta, eps)
 
 
-_METHOD_REFS = {
-    "mie": "Mie series for (layered) spheres, nanoabs.mie (Yang, Appl. Opt. 42, 1710 (2003))",
-    "miepython": "miepython (S. Prahl) homogeneous-sphere Mie series",
-    "quasistatic": "dipole limit, Bohren & Huffman (1983) eqs. 5.7, 5.32, 5.35, 5.36",
-    "mlwa": "corrected quasi-static (radiative reaction + dynamic depolarisation): Meier & Wokaun, "
-            "Opt. Lett. 8, 581 (1983); Moroz, J. Opt. Soc. Am. B 26, 517 (2009)",
-}
-
-
-def _materials_meta(particle):
-    if isinstance(particle, Sphere):
-        return [particle.material.metadata()]
-    if isinstance(particle, LayeredSphere):
-        return [particle.core.metadata()] + [m.metadata() for m, _ in particle.shells]
-    out = [particle.material.metadata()]
-    if particle.shell is not None:
-        out.append(particle.shell[0].metadata())
-    return out
-
-
-def _check_dipole_validity(axes, wl, n_med, method, notes):
-    from .quasistatic import CORRECTED_VALIDITY, STRICT_VALIDITY, validity_ratio
-
-    axes = axes if isinstance(axes, tuple) else (axes,)
-    a_max = np.asarray(axes[0], dtype=float)
-    for a in axes[1:]:
-        a_max = np.maximum(a_max, a)
-    # the largest particle at each wavelength decides (the last axis is the wavelength axis only
-    # when the geometry varies with wavelength)
-    if a_max.ndim and a_max.shape[-1] == wl.size:
-        a_max = a_max.reshape(-1, wl.size).max(axis=0)
-    else:
-        a_max = a_max.max()
-    ratio = np.asarray(validity_ratio(a_max, wl, n_medium=n_med))
-    limit = STRICT_VALIDITY if method == "quasistatic" else CORRECTED_VALIDITY
-    if np.any(ratio > limit):
-        bad = wl[np.broadcast_to(ratio > limit, wl.shape)]
-        what = ("largest dimension above a tenth of the wavelength in the medium" if method == "quasistatic"
-                else "k a_max above 0.5")
-        notes["warnings"].append(
-            f"{method}: {what} for wavelengths up to {bad.max():g} nm; outside the method's validity "
-            "(use method='mie' for spheres, treat ellipsoid results as indicative)")
+_CLIP_NOTE = "surface-damped eps'' of {} clipped at 0 at some wavelengths"

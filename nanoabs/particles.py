@@ -1,7 +1,14 @@
 """Particle geometries: sphere, layered sphere, ellipsoid (optionally with a confocal shell), spheroid.
 
-Sizes are in nm and may be numpy arrays (they broadcast against the wavelength
-grid in the solvers, e.g. radius of shape (P, 1) against W wavelengths).
+Sizes are in nm. A size is a real number, or an explicitly shaped array of two or
+more axes: a *family* with a last axis of length 1 (e.g. radius of shape (P, 1)),
+which the solvers broadcast against the W wavelengths to a (P, W) result, or a
+geometry that deliberately varies with wavelength (shape (1, W)). A 1-D array of
+several sizes is refused, because against a grid of as many wavelengths it would
+broadcast into a "diagonal" spectrum (size i at wavelength i) instead of a family;
+write ``sizes[:, None]``. Every size must lie in (0, ``MAX_SIZE_NM``]; a size below
+``MONOLAYER_NM`` is accepted with a :class:`~nanoabs.validity.NanoabsWarning`
+(it usually means metres or micrometres were typed as nanometres).
 Materials are names, numbers (constant index) or :class:`~nanoabs.materials.Material`.
 
 Orientation convention for non-spherical particles: semi-axes (a, b, c) lie
@@ -14,19 +21,27 @@ along z. "long" and "short" pick the field along the long or a short axis.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
 
-from ._errors import NanoabsError, check_choice, check_positive
+from ._errors import NanoabsError, _fmt, check_choice, check_positive
 
-__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "MONOLAYER_NM"]
+__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "MONOLAYER_NM", "MAX_SIZE_NM",
+           "check_size_family"]
 
 #: Thinnest shell accepted [nm]: about one atomic monolayer of gold/silver
 #: (lattice constant 0.408 nm; (111) spacing 0.236 nm; common practice to call
 #: ~0.2-0.3 nm a monolayer). Thinner "shells" are outside any continuum model.
 MONOLAYER_NM = 0.2
+
+#: Largest size accepted [nm] (radius, thickness, semi-axis): 10 um. nanoabs is for nano- and
+#: sub-micron particles; at 10 um the Mie series already needs ~1e3 orders per wavelength in a
+#: high-index host (cost grows linearly with size; 1e7 nm took 45 s per spectrum), and ray
+#: optics is the right model well before. A documented bound, not a physical limit.
+MAX_SIZE_NM = 1.0e4
 
 
 def _mat(value):
@@ -37,8 +52,115 @@ def _mat(value):
     return material(value)
 
 
+def _size(name: str, value) -> np.ndarray:
+    """A size [nm]: real, finite, in (0, MAX_SIZE_NM], scalar or a family with a last axis of 1."""
+    arr = check_positive(name, value, unit="nm")
+    if arr.size == 0:
+        raise NanoabsError(f"{name}: an empty array; give a size in nm or a family of shape (P, 1)")
+    if arr.ndim == 1 and arr.size > 1:
+        raise NanoabsError(
+            f"{name}: a 1-D array of {arr.size} sizes is ambiguous (against {arr.size} wavelengths it "
+            "would pair size i with wavelength i); give a scalar or a family of shape (P, 1), "
+            "e.g. sizes[:, None]")
+    if np.any(arr > MAX_SIZE_NM):
+        raise NanoabsError(f"{name} = {float(np.max(arr)):g} nm: allowed range is 0 to {MAX_SIZE_NM:g} nm "
+                           "(nanoabs models nano- and sub-micron particles)")
+    if np.any(arr < MONOLAYER_NM):
+        from .validity import NanoabsWarning
+
+        warnings.warn(f"{name} = {float(np.min(arr)):g} nm is below one atomic monolayer "
+                      f"({MONOLAYER_NM:g} nm): sizes are in nanometres (were metres or micrometres "
+                      "typed?)", NanoabsWarning, stacklevel=4)
+    return arr
+
+
+def _common_shape(what: str, *sizes) -> None:
+    """Refuse size families that do not broadcast together (e.g. (3, 1) with (4, 1))."""
+    try:
+        np.broadcast_shapes(*(np.shape(v) for v in sizes))
+    except ValueError:
+        shapes = ", ".join(str(np.shape(v)) for v in sizes)
+        raise NanoabsError(f"{what}: size families of shapes {shapes} do not broadcast together; "
+                           "give equal family lengths P (each of shape (P, 1)) or scalars") from None
+
+
+def _pair(name: str, item) -> tuple:
+    """A (material, thickness_nm) pair; a one-line error for anything else."""
+    if isinstance(item, (str, bytes, dict)) or not hasattr(item, "__len__") or len(item) != 2:
+        raise NanoabsError(f"{name} = {_fmt(item)}: must be a (material, thickness_nm) pair")
+    mat, t = item
+    return _mat(mat), _check_thickness(f"{name} thickness", t)
+
+
+def check_size_family(particle, wavelength_nm) -> None:
+    """Refuse sizes that would broadcast against the wavelength grid into a "diagonal".
+
+    The rule (module docstring): a size is a scalar or an explicitly shaped array of two or
+    more axes whose last axis is 1 (a family, shape (P, 1)) or the number of wavelengths W
+    (a geometry that deliberately varies with wavelength, shape (1, W) or (P, W)). A 1-D array
+    of several sizes is refused. The constructors enforce the 1-D part; this re-checks a
+    particle (attributes may be changed after construction) against the grid it is about to
+    be evaluated on: call it at the top of ``spectrum()``.
+    """
+    n = np.size(wavelength_nm)
+    for label, size in zip(particle.layer_labels(), particle.damping_lengths_nm()):
+        shape = np.shape(size)
+        if (len(shape) == 1 and shape[0] > 1) or (len(shape) > 1 and shape[-1] not in (1, n)):
+            raise NanoabsError(
+                f"particle {label} size: an array of shape {shape} against {n} wavelengths is "
+                "ambiguous; give a scalar or a family of shape (P, 1), e.g. sizes[:, None]")
+
+
+class _Spherical:
+    """Geometry facts shared by homogeneous and layered spheres (from ``layers``)."""
+
+    @property
+    def outer_radius_nm(self):
+        return self.layers[-1][1]
+
+    def volume_nm3(self):
+        return 4.0 / 3.0 * np.pi * self.outer_radius_nm**3
+
+    def surface_nm2(self):
+        return 4.0 * np.pi * self.outer_radius_nm**2
+
+    def layer_materials(self) -> list:
+        """Materials of the layers, core first."""
+        return [m for m, _ in self.layers]
+
+    def layer_labels(self) -> list:
+        return ["sphere"] if len(self.layers) == 1 else ["core"] + [f"shell {i}" for i in
+                                                                    range(1, len(self.layers))]
+
+    def damping_lengths_nm(self) -> list:
+        """Effective electron mean-free-path limit of each layer [nm]: 4V/S = 4r/3 for the core
+        (Coronado & Schatz, J. Chem. Phys. 119, 3926 (2003)), the thickness for a shell (a
+        documented approximation)."""
+        radii = [np.asarray(r, dtype=float) for _, r in self.layers]
+        return [4.0 / 3.0 * radii[0]] + [radii[i] - radii[i - 1] for i in range(1, len(radii))]
+
+    def outer_semi_axes_nm(self) -> tuple:
+        return (np.asarray(self.outer_radius_nm, dtype=float),)
+
+    def reference_area_nm2(self, polarization=None):
+        """(geometric cross-section π r_outer² [nm²], its description)."""
+        return np.pi * np.asarray(self.outer_radius_nm, dtype=float) ** 2, "pi r_outer^2"
+
+    def equal_volume_area_nm2(self):
+        return np.pi * np.asarray(self.outer_radius_nm, dtype=float) ** 2
+
+    def metal_volume_nm3(self):
+        """Volume of the metal layers [nm³]."""
+        out, r_in = 0.0, 0.0
+        for mat, r in self.layers:
+            if mat.is_metal:
+                out = out + 4.0 / 3.0 * np.pi * (np.asarray(r, dtype=float) ** 3 - r_in**3)
+            r_in = np.asarray(r, dtype=float)
+        return out
+
+
 @dataclass
-class Sphere:
+class Sphere(_Spherical):
     """Homogeneous sphere of ``radius_nm`` [nm]."""
 
     material: object
@@ -46,7 +168,7 @@ class Sphere:
 
     def __post_init__(self):
         self.material = _mat(self.material)
-        self.radius_nm = check_positive("radius", self.radius_nm, unit="nm")
+        self.radius_nm = _size("radius", self.radius_nm)
 
     shape = "sphere"
 
@@ -55,23 +177,13 @@ class Sphere:
         """[(material, outer radius [nm])] from the centre outward."""
         return [(self.material, self.radius_nm)]
 
-    @property
-    def outer_radius_nm(self):
-        return self.radius_nm
-
-    def volume_nm3(self):
-        return 4.0 / 3.0 * np.pi * self.radius_nm**3
-
-    def surface_nm2(self):
-        return 4.0 * np.pi * self.radius_nm**2
-
     def describe(self) -> dict:
         return {"shape": "sphere", "material": self.material.label,
                 "radius_nm": _plain(self.radius_nm)}
 
 
 @dataclass
-class LayeredSphere:
+class LayeredSphere(_Spherical):
     """Core of ``core_radius_nm`` [nm] with shells [(material, thickness_nm), ...] outward."""
 
     core: object
@@ -80,20 +192,16 @@ class LayeredSphere:
 
     def __post_init__(self):
         self.core = _mat(self.core)
-        self.core_radius_nm = check_positive("core radius", self.core_radius_nm, unit="nm")
+        self.core_radius_nm = _size("core radius", self.core_radius_nm)
+        if isinstance(self.shells, (str, bytes, dict)) or not hasattr(self.shells, "__len__"):
+            raise NanoabsError(f"shells = {_fmt(self.shells)}: give a list of (material, thickness_nm) pairs")
         if len(self.shells) == 0:
             raise NanoabsError("shells: give at least one (material, thickness_nm) pair")
-        out = []
-        for i, item in enumerate(self.shells, 1):
-            if isinstance(item, str) or not hasattr(item, "__len__") or len(item) != 2:
-                raise NanoabsError(f"shell {i} = {item!r}: must be a (material, thickness_nm) pair")
-            mat, t = item
-            t = check_positive(f"shell {i} thickness", t, unit="nm")
-            if np.any(t < MONOLAYER_NM):
-                raise NanoabsError(f"shell {i} thickness = {float(np.min(t)):g} nm: must be at least "
-                                   f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
-            out.append((_mat(mat), t))
-        self.shells = out
+        self.shells = [_pair(f"shell {i}", item) for i, item in enumerate(self.shells, 1)]
+        _common_shape("layered sphere", self.core_radius_nm, *(t for _, t in self.shells))
+        if np.any(self.layers[-1][1] > MAX_SIZE_NM):
+            raise NanoabsError(f"outer radius = {float(np.max(self.layers[-1][1])):g} nm: allowed range "
+                               f"is 0 to {MAX_SIZE_NM:g} nm")
 
     shape = "layered sphere"
 
@@ -106,20 +214,18 @@ class LayeredSphere:
             out.append((mat, r))
         return out
 
-    @property
-    def outer_radius_nm(self):
-        return self.layers[-1][1]
-
-    def volume_nm3(self):
-        return 4.0 / 3.0 * np.pi * self.outer_radius_nm**3
-
-    def surface_nm2(self):
-        return 4.0 * np.pi * self.outer_radius_nm**2
-
     def describe(self) -> dict:
         return {"shape": "layered sphere", "core": self.core.label,
                 "core_radius_nm": _plain(self.core_radius_nm),
                 "shells": [{"material": m.label, "thickness_nm": _plain(t)} for m, t in self.shells]}
+
+
+def _check_thickness(name, t):
+    t = check_positive(name, t, unit="nm")
+    if np.any(t < MONOLAYER_NM):
+        raise NanoabsError(f"{name} = {float(np.min(t)):g} nm: must be at least "
+                           f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
+    return _size(name, t)
 
 
 @dataclass
@@ -138,22 +244,14 @@ class Ellipsoid:
 
     def __post_init__(self):
         self.material = _mat(self.material)
-        try:
-            axes = tuple(self.semi_axes_nm)
-        except TypeError:
-            raise NanoabsError(f"semi-axes = {self.semi_axes_nm!r}: give three lengths a,b,c in nm") from None
-        if len(axes) != 3:
-            raise NanoabsError(f"semi-axes = {self.semi_axes_nm!r}: give exactly three lengths a,b,c in nm")
-        self.semi_axes_nm = tuple(check_positive(f"semi-axis {n}", v, unit="nm") for n, v in zip("abc", axes))
+        axes = self.semi_axes_nm
+        if isinstance(axes, (str, bytes, dict, set)) or not hasattr(axes, "__len__") or len(axes) != 3:
+            raise NanoabsError(f"semi-axes = {_fmt(axes)}: give exactly three lengths a,b,c in nm")
+        self.semi_axes_nm = tuple(_size(f"semi-axis {n}", v) for n, v in zip("abc", axes))
+        _common_shape("ellipsoid semi-axes", *self.semi_axes_nm)
         if self.shell is not None:
-            if isinstance(self.shell, str) or not hasattr(self.shell, "__len__") or len(self.shell) != 2:
-                raise NanoabsError(f"shell = {self.shell!r}: must be a (material, thickness_nm) pair")
-            mat, t = self.shell
-            t = check_positive("shell thickness", t, unit="nm")
-            if np.any(t < MONOLAYER_NM):
-                raise NanoabsError(f"shell thickness = {float(np.min(t)):g} nm: must be at least "
-                                   f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
-            self.shell = (_mat(mat), t)
+            self.shell = _pair("shell", self.shell)
+            _common_shape("ellipsoid with shell", *self.semi_axes_nm, self.shell[1])
 
     shape = "ellipsoid"
 
@@ -187,6 +285,45 @@ class Ellipsoid:
         a, b, c = self.outer_axes_nm
         return np.pi * a * b if axis in ("x", "y") else np.pi * b * c
 
+    def layer_materials(self) -> list:
+        return [self.material] + ([self.shell[0]] if self.shell is not None else [])
+
+    def layer_labels(self) -> list:
+        return ["core", "shell"] if self.shell is not None else [self.kind]
+
+    def damping_lengths_nm(self) -> list:
+        """Effective mean-free-path limit per layer [nm]: 4V/S of the core (Coronado & Schatz,
+        J. Chem. Phys. 119, 3926 (2003)), the thickness of a shell (documented approximation)."""
+        core = tuple(np.asarray(a, dtype=float) for a in self.semi_axes_nm)
+        out = [4.0 * self.core_volume_nm3() / self.surface_nm2(core)]
+        return out + ([np.asarray(self.shell[1], dtype=float)] if self.shell is not None else [])
+
+    def outer_semi_axes_nm(self) -> tuple:
+        return tuple(np.asarray(a, dtype=float) for a in self.outer_axes_nm)
+
+    def reference_area_nm2(self, polarization):
+        """(geometric cross-section [nm²], its description) for a resolved polarisation axis.
+
+        Fixed field: the projected area for the light direction of the module convention;
+        random orientation: surface area / 4 (Cauchy's theorem for convex bodies).
+        """
+        if polarization == "random":
+            return self.surface_nm2() / 4.0, "surface area / 4 (random orientation, Cauchy's theorem)"
+        text = ("projected area pi a b (light along z)" if polarization in ("x", "y")
+                else "projected area pi b c (light along x)")
+        return self.projected_area_nm2(polarization), text
+
+    def equal_volume_area_nm2(self):
+        return np.pi * (3 * self.volume_nm3() / (4 * np.pi)) ** (2.0 / 3.0)
+
+    def metal_volume_nm3(self):
+        """Volume of the metal parts [nm³]."""
+        core = self.core_volume_nm3()
+        out = core if self.material.is_metal else 0.0
+        if self.shell is not None and self.shell[0].is_metal:
+            out = out + (self.volume_nm3() - core)
+        return out
+
     def describe(self) -> dict:
         d = {"shape": self.kind, "material": self.material.label,
              "semi_axes_nm": [_plain(v) for v in self.semi_axes_nm]}
@@ -206,8 +343,9 @@ def spheroid(material, length_nm, diameter_nm, *, shell=None) -> Ellipsoid:
     diameter_nm : float
         Extent across it [nm].
     """
-    L = check_positive("length", length_nm, unit="nm")
-    D = check_positive("diameter", diameter_nm, unit="nm")
+    L = _size("length", length_nm)
+    D = _size("diameter", diameter_nm)
+    _common_shape("spheroid", L, D)
     if np.ndim(L) == 0 and np.ndim(D) == 0 and float(L) < float(D):
         return Ellipsoid(material, (D / 2, D / 2, L / 2), shell, kind="disc")
     if np.ndim(L) or np.ndim(D):

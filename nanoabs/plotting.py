@@ -1,7 +1,9 @@
 """Figures (matplotlib, headless Agg backend): optical constants, spectra, maps, yields.
 
-Every function returns a ``matplotlib.figure.Figure``; :func:`save_figure` writes
-PNG or SVG atomically. Axis labels carry units; colour maps are perceptually
+The ``plot_*`` functions draw into ``ax=`` when given (else into a new Figure) and
+return the Figure; :func:`spectrum_axes` (behind :meth:`nanoabs.Spectrum.plot`) returns
+the Axes and, with no ``ax``, draws through pyplot so notebooks show the figure inline.
+:func:`save_figure` writes PNG or SVG atomically. Axis labels carry units; colour maps are perceptually
 uniform (viridis / cividis).
 """
 
@@ -13,19 +15,96 @@ import numpy as np
 
 from ._errors import NanoabsError
 
-__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "save_figure"]
+__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "spectrum_axes", "save_figure"]
+
+#: Plot label and scale of each spectrum quantity (one table: values, labels and units never disagree).
+QUANTITY_LABELS = {
+    "sigma_abs_m2": ("absorption cross-section [nm²]", 1e18),
+    "sigma_sca_m2": ("scattering cross-section [nm²]", 1e18),
+    "sigma_ext_m2": ("extinction cross-section [nm²]", 1e18),
+    "q_abs": ("absorption efficiency Q_abs [1]", 1.0),
+    "q_sca": ("scattering efficiency Q_sca [1]", 1.0),
+    "q_ext": ("extinction efficiency Q_ext [1]", 1.0),
+    "q_abs_eqvol": ("Q_abs, equal-volume sphere [1]", 1.0),
+    "sigma_abs_per_metal_volume_m_1": ("σ_abs per metal volume [µm⁻¹]", 1e-6),
+    "absorbed_fraction": ("absorbed fraction σ_abs/σ_ext [1]", 1.0),
+    "dipole_bound_ratio": ("σ_abs / single-dipole bound [1]", 1.0),
+}
 
 
-def _figure(nrows=1, ncols=1, **kw):
+def spectrum_axes(spec, quantity="sigma_abs_m2", *, ax=None, **line_kw):
+    """Draw one quantity of a :class:`~nanoabs.Spectrum` against wavelength; return the Axes.
+
+    The title names the particle, host or environment, method and polarisation; a family
+    of sizes is drawn as one line per member.
+
+    Parameters
+    ----------
+    spec : Spectrum
+        The spectrum (wavelengths [nm], cross-sections [m²]).
+    quantity : str
+        A spectrum column (a key of ``QUANTITY_LABELS``); cross-sections are drawn in
+        [nm²], σ_abs per metal volume in [µm⁻¹], efficiencies and ratios in [1].
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes; default new Axes through pyplot (shown inline in notebooks).
+    **line_kw
+        Passed to :meth:`matplotlib.axes.Axes.plot` (``label=`` also adds a legend).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    from ._errors import check_choice
+
+    quantity = check_choice("quantity", quantity, list(QUANTITY_LABELS))
+    label, scale = QUANTITY_LABELS[quantity]
+    if ax is None:
+        import matplotlib.pyplot as plt
+
+        _, ax = plt.subplots(figsize=(6.4, 4.2), layout="constrained")
+    y = np.asarray(getattr(spec, quantity), dtype=float) * scale
+    y = np.broadcast_to(y, np.broadcast_shapes(y.shape, spec.wavelength_nm.shape))
+    ax.plot(spec.wavelength_nm, y.reshape(-1, spec.wavelength_nm.size).T, **line_kw)
+    ax.set_xlabel("wavelength [nm]")
+    ax.set_ylabel(label)
+    ax.grid(alpha=0.3)
+    m = spec.metadata
+    ax.set_title(f"{spec._headline().split('; ')[0]}; {m.get('method', '?')}, "
+                 f"polarisation {m.get('polarization', '?')}", fontsize=9)
+    if "label" in line_kw:
+        ax.legend(frameon=False, fontsize=8)
+    return ax
+
+
+def _figure(nrows=1, ncols=1, ax=None, **kw):
     from matplotlib.figure import Figure
 
+    if ax is not None:
+        return ax.figure, ax
     fig = Figure(figsize=kw.pop("figsize", (6.4, 4.2)), layout="constrained")
     axes = fig.subplots(nrows, ncols, **kw)
     return fig, axes
 
 
 def save_figure(fig, path, *, force: bool = False, dpi: int = 150) -> Path:
-    """Save ``fig`` to ``path`` (.png or .svg) atomically; never overwrite unless ``force``."""
+    """Save ``fig`` to ``path`` (.png or .svg) atomically; never overwrite unless ``force``.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure.
+    path : str or os.PathLike
+        Output file; the suffix (``.png`` or ``.svg``) chooses the format.
+    force : bool, keyword-only
+        Replace an existing file.
+    dpi : int, keyword-only
+        Resolution of a PNG [dots per inch].
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
     from .export import write_file_atomic
 
     p = Path(path)
@@ -36,8 +115,23 @@ def save_figure(fig, path, *, force: bool = False, dpi: int = 150) -> Path:
                              binary=True)
 
 
-def plot_material(mat, wavelength_nm=None):
-    """n, k and ε′, ε″ of a material against wavelength [nm]; tabulated points marked."""
+def plot_material(mat, wavelength_nm=None, *, ax=None):
+    """n, k and ε′, ε″ of a material against wavelength [nm]; tabulated points marked.
+
+    Parameters
+    ----------
+    mat : Material
+        The material (from :func:`nanoabs.material`).
+    wavelength_nm : array_like, optional
+        Vacuum wavelengths [nm]; default 400 points over the data range (at most a
+        factor 20 in wavelength, 300–2000 nm for a constant index).
+    ax : sequence of two matplotlib.axes.Axes, optional
+        Draw n, k into the first and ε′, ε″ into the second; default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     if wavelength_nm is None:
         lo, hi = mat.range_nm
         if not np.isfinite(hi):
@@ -46,7 +140,7 @@ def plot_material(mat, wavelength_nm=None):
         wavelength_nm = np.geomspace(lo, hi, 400)
     wl = np.asarray(wavelength_nm, dtype=float)
     n = np.atleast_1d(mat.refractive_index(wl))
-    fig, (a1, a2) = _figure(1, 2, figsize=(9.0, 3.8))
+    fig, (a1, a2) = _figure(1, 2, ax=ax, figsize=(9.0, 3.8))  # ax: a pair of Axes
     a1.plot(wl, n.real, label="n", color="#1b6ca8")
     a1.plot(wl, n.imag, label="k", color="#c8553d")
     eps = n**2
@@ -69,11 +163,31 @@ def plot_material(mat, wavelength_nm=None):
 
 
 def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None, band=None,
-                 scale=1.0):
-    """Overlay of spectra: ``curves`` is a list of (label, wavelength_nm, values)."""
+                 scale=1.0, ax=None):
+    """Overlay of spectra: ``curves`` is a list of (label, wavelength_nm, values).
+
+    Parameters
+    ----------
+    curves : list of (str, array_like, array_like)
+        Label, vacuum wavelengths [nm] and values (in the unit of ``ylabel`` after ``scale``).
+    ylabel : str, keyword-only
+        Axis label, with its unit in brackets.
+    title : str, optional
+        Axes title.
+    band : (float, float), optional
+        Target band [nm], shaded.
+    scale : float, keyword-only
+        Factor applied to the values (e.g. 1e18 for m² → nm²) [1].
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     import matplotlib
 
-    fig, ax = _figure()
+    fig, ax = _figure(ax=ax)
     cmap = matplotlib.colormaps["viridis"]
     for i, (label, wl, y) in enumerate(curves):
         ax.plot(wl, np.asarray(y) * scale, label=label,
@@ -91,12 +205,39 @@ def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None
 
 
 def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=True, band=None,
-             title=None):
-    """Wavelength × parameter map (values shape (len(param), len(wavelength))) with the peak ridge."""
+             title=None, ax=None):
+    """Wavelength × parameter map (values shape (len(param), len(wavelength))) with the peak ridge.
+
+    Parameters
+    ----------
+    wavelength_nm : (W,) array_like
+        Vacuum wavelengths [nm].
+    param : (P,) array_like
+        Values of the swept parameter (in the unit named by ``param_label``, e.g. [nm]).
+    values : (P, W) array_like
+        Quantity to colour (in the unit named by ``value_label``).
+    param_label : str, keyword-only
+        Label of the parameter axis, with its unit in brackets.
+    value_label : str, keyword-only
+        Label of the colour bar, with its unit in brackets.
+    ridge : bool, keyword-only
+        Draw the wavelength of the maximum of each row; a maximum on the first or last
+        wavelength is not a peak and is not drawn.
+    band : sequence of float, optional
+        Band edges [nm], drawn as vertical lines.
+    title : str, optional
+        Axes title.
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     wl = np.asarray(wavelength_nm, dtype=float)
     p = np.asarray(param, dtype=float)
     v = np.asarray(values, dtype=float)
-    fig, ax = _figure()
+    fig, ax = _figure(ax=ax)
     mesh = ax.pcolormesh(wl, p, v, cmap="viridis", shading="nearest")
     fig.colorbar(mesh, ax=ax, label=value_label)
     if ridge:
@@ -115,11 +256,33 @@ def plot_map(wavelength_nm, param, values, *, param_label, value_label, ridge=Tr
     return fig
 
 
-def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False):
-    """Simple line plot: ``curves`` is a list of (label, y) against a shared x."""
+def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False, ax=None):
+    """Simple line plot: ``curves`` is a list of (label, y) against a shared x.
+
+    Parameters
+    ----------
+    x : array_like
+        Shared abscissa (in the unit named by ``xlabel``).
+    curves : list of (str, array_like)
+        Label and ordinate values (in the unit named by ``ylabel``).
+    xlabel : str, keyword-only
+        Abscissa label, with its unit in brackets.
+    ylabel : str, keyword-only
+        Ordinate label, with its unit in brackets.
+    title : str, optional
+        Axes title.
+    logy : bool, keyword-only
+        Logarithmic ordinate (e.g. for emission probabilities).
+    ax : matplotlib.axes.Axes, optional
+        Draw into these Axes (their Figure is returned); default a new Figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
     import matplotlib
 
-    fig, ax = _figure()
+    fig, ax = _figure(ax=ax)
     cmap = matplotlib.colormaps["cividis"]
     for i, (label, y) in enumerate(curves):
         ax.plot(x, y, label=label, color=cmap(0.85 * i / max(1, len(curves) - 1)))

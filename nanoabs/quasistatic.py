@@ -40,13 +40,14 @@ R_F, R_D, R_G as implemented in ``scipy.special``).
 from __future__ import annotations
 
 import numpy as np
-from scipy import special
 
-from nanoabs._errors import NanoabsError, check_choice, check_nonnegative, check_positive
+from nanoabs._errors import (NanoabsError, _fmt, check_choice, check_flag, check_nonnegative, check_positive,
+                             check_range)
 
 __all__ = [
     "STRICT_VALIDITY",
     "CORRECTED_VALIDITY",
+    "POLE_RTOL",
     "depolarization_factors",
     "spheroid_depolarization",
     "dynamic_depolarization_factors",
@@ -88,6 +89,12 @@ STRICT_VALIDITY = 1.0
 #: the long semi-axis and the size terms beyond ``k^2`` are larger.
 CORRECTED_VALIDITY = 0.5 / (np.pi / 10.0)
 
+#: Static polarisabilities are refused where the denominator of B&H eqs. 5.7, 5.32, 5.35,
+#: 5.36 is below this fraction of the sum of the magnitudes of its terms: a loss-free
+#: material at a pole, where rounding alone decides the value (a documented choice; 1e-12
+#: is ~4500 rounding units, above the few units that eps, L and the algebra contribute).
+POLE_RTOL = 1e-12
+
 
 # --------------------------------------------------------------------------- #
 # input checks
@@ -98,11 +105,17 @@ def _fmt_c(z) -> str:
 
 
 def _check_eps(name: str, value) -> np.ndarray:
-    """Return ``value`` as a complex array; raise on NaN/inf or non-numbers."""
+    """Return ``value`` as a complex array; raise on NaN/inf or non-numbers (booleans and
+    strings included: ``True`` or ``"-2"`` is not a permittivity)."""
     try:
-        arr = np.asarray(value, dtype=complex)
+        arr = None if value is None else np.asarray(value)
+        if arr is not None and arr.dtype.kind == "O":
+            arr = arr.astype(complex)
     except (TypeError, ValueError):
-        raise NanoabsError(f"{name} = {value!r}: must be a (complex) number") from None
+        arr = None
+    if arr is None or arr.dtype.kind not in "iufc":
+        raise NanoabsError(f"{name} = {_fmt(value)}: must be a (complex) number or an array of them") from None
+    arr = arr.astype(complex, copy=False)
     bad = ~np.isfinite(arr)
     if np.any(bad):
         raise NanoabsError(f"{name} = {_fmt_c(arr[bad].flat[0])}: must be finite")
@@ -131,16 +144,25 @@ def _axis_index(axis) -> int:
     return _AXES.index(check_choice("axis", axis, _AXES))
 
 
-def _static_ratio(num, den, eps, what: str, name: str = "eps"):
-    """``num / den`` for a static polarisability; raise at an exact (loss-free) pole."""
+def _static_ratio(num, den, eps, what: str, name: str = "eps", *, scale):
+    """``num / den`` for a static polarisability; raise at a (loss-free) pole.
+
+    ``scale`` is the sum of the magnitudes of the terms that make up ``den``. Where
+    ``|den| <= POLE_RTOL * scale`` the denominator is zero to within the rounding of its
+    inputs: the result (Q up to ~1e26) would be set by the last digits of eps, so it is
+    refused rather than returned (the same rule for every shape and every layer).
+    """
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         out = num / den
-    bad = ~np.isfinite(out)
+        pole = np.abs(den) <= POLE_RTOL * scale
+    _check_finite_alpha(out, pole)
+    bad = pole | ~np.isfinite(out)
     if np.any(bad):
-        e = np.broadcast_to(eps, out.shape)[bad].flat[0]
+        e = np.broadcast_to(eps, bad.shape)[bad].flat[0]
         raise NanoabsError(
             f"{name} = {_fmt_c(e)}: the static {what} polarisability is singular here "
-            "(loss-free material at the dipole resonance); add loss or use the MLWA-corrected polarisability"
+            f"(loss-free material at a dipole resonance, |denominator| <= {POLE_RTOL:g} of its terms); "
+            "add loss or use the MLWA-corrected polarisability"
         )
     return out
 
@@ -151,7 +173,18 @@ def _corrected_ratio(num, den, correction):
     Written without ``1/alpha`` so that it stays finite both at the static pole
     (``den = 0``, where it equals ``-1/correction``) and where ``alpha = 0``.
     """
-    return num / (den - num * correction)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        out = num / (den - num * correction)
+    _check_finite_alpha(out, False)
+    return out
+
+
+def _check_finite_alpha(alpha, pole):
+    """Raise if ``alpha`` overflowed away from a pole (sizes or permittivities out of scale)."""
+    over = ~np.isfinite(alpha) & ~np.asarray(pole)
+    if np.any(over):
+        raise NanoabsError("polarisability: the result overflows (not finite) for some inputs; "
+                           "check the units of sizes [length] and permittivities (dimensionless)")
 
 
 # --------------------------------------------------------------------------- #
@@ -462,13 +495,13 @@ def _sphere_nd(eps, eps_medium, radius):
     eps = _check_eps("eps", eps)
     em = _check_eps_medium(eps_medium)
     r = check_positive("radius", radius)
-    return 4.0 * np.pi * r**3 * (eps - em), eps + 2.0 * em, eps
+    return 4.0 * np.pi * r**3 * (eps - em), eps + 2.0 * em, eps, np.abs(eps) + 2.0 * np.abs(em)
 
 
 def _depol_nd(eps, eps_medium, volume, L):
     eps = _check_eps("eps", eps)
     em = _check_eps_medium(eps_medium)
-    return volume * (eps - em), em + L * (eps - em), eps
+    return volume * (eps - em), em + L * (eps - em), eps, (1 - L) * np.abs(em) + L * np.abs(eps)
 
 
 def _coated_sphere_nd(eps_core, eps_shell, eps_medium, core_radius, outer_radius):
@@ -495,10 +528,12 @@ def _coated_sphere_nd(eps_core, eps_shell, eps_medium, core_radius, outer_radius
     # this Moebius map in eps_core is 27 f eps_shell^2 eps_m): use the limit instead,
     # the core sphere if there is no shell (f = 1), else the eps = 0 sphere.
     enz = np.abs(e2) < _TINY_EPS
+    scale = np.abs(e2 * P) + 2 * np.abs(em * Q)
     if np.any(enz):
         num = np.where(enz, np.where(f == 1, e1 - em, -em), num)
         den = np.where(enz, np.where(f == 1, e1 + 2 * em, 2 * em), den)
-    return 4.0 * np.pi * r2**3 * num, den, e1
+        scale = np.where(enz, np.where(f == 1, np.abs(e1) + 2 * np.abs(em), 2 * np.abs(em)), scale)
+    return 4.0 * np.pi * r2**3 * num, den, e1, scale
 
 
 def _coated_ellipsoid_nd(eps_core, eps_shell, eps_medium, core_axes, shell_axes, i):
@@ -524,10 +559,13 @@ def _coated_ellipsoid_nd(eps_core, eps_shell, eps_medium, core_axes, shell_axes,
     # this Moebius map in eps_core is f eps_shell^2 eps_m): use the limit instead, the
     # core ellipsoid if there is no shell (t = 0), else the eps = 0 outer ellipsoid.
     enz = np.abs(e2) < _TINY_EPS
+    scale = np.abs(em * g) * (1 - L2) + L2 * np.abs(e2 * P)
     if np.any(enz):
         num = np.where(enz, np.where(h == 0, e1 - em, -em), num)
         den = np.where(enz, np.where(h == 0, em + L1 * (e1 - em), em * (1 - L2)), den)
-    return v * num, den, e1
+        scale = np.where(enz, np.where(h == 0, (1 - L1) * np.abs(em) + L1 * np.abs(e1),
+                                       np.abs(em) * (1 - L2)), scale)
+    return v * num, den, e1, scale
 
 
 def polarizability_sphere(eps, eps_medium, radius):
@@ -558,8 +596,8 @@ def polarizability_sphere(eps, eps_medium, radius):
     ----------
     B&H eq. 5.7.
     """
-    num, den, e = _sphere_nd(eps, eps_medium, radius)
-    return _static_ratio(num, den, e, "sphere")
+    num, den, e, scale = _sphere_nd(eps, eps_medium, radius)
+    return _static_ratio(num, den, e, "sphere", scale=scale)
 
 
 def polarizability_coated_sphere(eps_core, eps_shell, eps_medium, core_radius, outer_radius):
@@ -590,8 +628,8 @@ def polarizability_coated_sphere(eps_core, eps_shell, eps_medium, core_radius, o
     ----------
     B&H eq. 5.36.
     """
-    num, den, e = _coated_sphere_nd(eps_core, eps_shell, eps_medium, core_radius, outer_radius)
-    return _static_ratio(num, den, e, "coated-sphere", "eps_core")
+    num, den, e, scale = _coated_sphere_nd(eps_core, eps_shell, eps_medium, core_radius, outer_radius)
+    return _static_ratio(num, den, e, "coated-sphere", "eps_core", scale=scale)
 
 
 def polarizability_from_depolarization(eps, eps_medium, volume, depolarization):
@@ -618,12 +656,9 @@ def polarizability_from_depolarization(eps, eps_medium, volume, depolarization):
     B&H eq. 5.32.
     """
     v = check_positive("volume", volume)
-    L = np.asarray(depolarization, dtype=float)
-    bad = ~np.isfinite(L) | (L < 0) | (L > 1)
-    if np.any(bad):
-        raise NanoabsError(f"depolarization = {float(L[bad].flat[0]) if L.ndim else float(L):g}: allowed range is 0 to 1")
-    num, den, e = _depol_nd(eps, eps_medium, v, L)
-    return _static_ratio(num, den, e, "ellipsoid")
+    L = check_range("depolarization", depolarization, 0.0, 1.0)
+    num, den, e, scale = _depol_nd(eps, eps_medium, v, L)
+    return _static_ratio(num, den, e, "ellipsoid", scale=scale)
 
 
 def polarizability_ellipsoid(eps, eps_medium, a, b, c, *, axis="x"):
@@ -651,8 +686,8 @@ def polarizability_ellipsoid(eps, eps_medium, a, b, c, *, axis="x"):
     """
     i = _axis_index(axis)
     L = depolarization_factors(a, b, c)[i]
-    num, den, e = _depol_nd(eps, eps_medium, ellipsoid_volume(a, b, c), L)
-    return _static_ratio(num, den, e, "ellipsoid")
+    num, den, e, scale = _depol_nd(eps, eps_medium, ellipsoid_volume(a, b, c), L)
+    return _static_ratio(num, den, e, "ellipsoid", scale=scale)
 
 
 def polarizability_coated_ellipsoid(eps_core, eps_shell, eps_medium, core_axes, shell_axes, *, axis="x"):
@@ -683,8 +718,8 @@ def polarizability_coated_ellipsoid(eps_core, eps_shell, eps_medium, core_axes, 
     B&H eq. 5.35.
     """
     i = _axis_index(axis)
-    num, den, e = _coated_ellipsoid_nd(eps_core, eps_shell, eps_medium, core_axes, shell_axes, i)
-    return _static_ratio(num, den, e, "coated-ellipsoid", "eps_core")
+    num, den, e, scale = _coated_ellipsoid_nd(eps_core, eps_shell, eps_medium, core_axes, shell_axes, i)
+    return _static_ratio(num, den, e, "coated-ellipsoid", "eps_core", scale=scale)
 
 
 # --------------------------------------------------------------------------- #
@@ -765,7 +800,7 @@ def polarizability_sphere_mlwa(eps, eps_medium, radius, k):
     ----------
     M. Meier and A. Wokaun, Opt. Lett. 8, 581 (1983); B&H eq. 5.7.
     """
-    num, den, _ = _sphere_nd(eps, eps_medium, radius)
+    num, den, _, _ = _sphere_nd(eps, eps_medium, radius)
     return _corrected_ratio(num, den, _correction_term(k, radius, 1.0))
 
 
@@ -799,7 +834,7 @@ def polarizability_coated_sphere_mlwa(eps_core, eps_shell, eps_medium, core_radi
     ----------
     B&H eq. 5.36; M. Meier and A. Wokaun, Opt. Lett. 8, 581 (1983).
     """
-    num, den, _ = _coated_sphere_nd(eps_core, eps_shell, eps_medium, core_radius, outer_radius)
+    num, den, _, _ = _coated_sphere_nd(eps_core, eps_shell, eps_medium, core_radius, outer_radius)
     return _corrected_ratio(num, den, _correction_term(k, outer_radius, 1.0))
 
 
@@ -842,7 +877,7 @@ def polarizability_ellipsoid_mlwa(eps, eps_medium, a, b, c, k, *, axis="x"):
     i = _axis_index(axis)
     L = depolarization_factors(a, b, c)[i]
     D = dynamic_depolarization_factors(a, b, c)[i]
-    num, den, _ = _depol_nd(eps, eps_medium, ellipsoid_volume(a, b, c), L)
+    num, den, _, _ = _depol_nd(eps, eps_medium, ellipsoid_volume(a, b, c), L)
     return _corrected_ratio(num, den, _correction_term(k, (a, b, c)[i], D))
 
 
@@ -879,7 +914,7 @@ def polarizability_coated_ellipsoid_mlwa(eps_core, eps_shell, eps_medium, core_a
     J. Opt. Soc. Am. B 26, 517 (2009).
     """
     i = _axis_index(axis)
-    num, den, _ = _coated_ellipsoid_nd(eps_core, eps_shell, eps_medium, core_axes, shell_axes, i)
+    num, den, _, _ = _coated_ellipsoid_nd(eps_core, eps_shell, eps_medium, core_axes, shell_axes, i)
     D = dynamic_depolarization_factors(*shell_axes)[i]
     return _corrected_ratio(num, den, _correction_term(k, shell_axes[i], D))
 
@@ -979,6 +1014,7 @@ def cross_sections(alpha, k, *, corrected=False):
     """
     alpha = _check_eps("alpha", alpha)
     k = check_positive("k", k)
+    corrected = check_flag("corrected", corrected)
     sca = k**4 * np.abs(alpha) ** 2 / (6.0 * np.pi)
     im = k * alpha.imag
     absn = im if not corrected else im - sca

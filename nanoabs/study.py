@@ -11,7 +11,12 @@ Markdown summary into an output folder. The schema is documented in the README
 
 from __future__ import annotations
 
+import glob
+import math
+import os
+import shutil
 import sys
+import tempfile
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
@@ -68,7 +73,7 @@ def _load_toml(path: Path) -> dict:
     except OSError as exc:
         raise DataError(f"study file {path}: cannot be read ({exc.__class__.__name__})") from None
     try:
-        return tomllib.loads(raw.decode("utf-8"))
+        return tomllib.loads(raw.decode("utf-8-sig"))  # a byte-order mark is accepted
     except UnicodeDecodeError:
         raise DataError(f"study file {path}: not UTF-8 text") from None
     except tomllib.TOMLDecodeError as exc:
@@ -88,10 +93,42 @@ def _check_table(where: str, table, spec: dict) -> None:
             ok = False
         if not ok:
             tname = "number" if types == _NUM else getattr(types, "__name__", str(types))
-            raise DataError(f"study key {where}.{key} = {value!r}: must be a {tname}")
+            raise DataError(f"study key {where}.{key} = {_short(value)}: must be a {tname}")
+        _check_value(f"{where}.{key}", key, value)
     for key, (_, required) in spec.items():
         if required and key not in table:
             raise DataError(f"study key {where}.{key} is required")
+
+
+#: Element type of the list-valued keys.
+_ITEMS = {"values_nm": _NUM, "semi_axes_nm": _NUM, "band_nm": _NUM, "families": str, "materials": str,
+          "formats": str}
+
+
+def _short(value) -> str:
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def _check_value(where, key, value):
+    """Numbers finite, list items of the right type, sizes within the bound of the design module."""
+    from .design._designs import MAX_SIZE_NM
+
+    items = value if isinstance(value, list) else [value]
+    if isinstance(value, list):
+        want = _ITEMS.get(key)
+        for v in items:
+            if want is not None and (not isinstance(v, want) or (want is _NUM and isinstance(v, bool))):
+                raise DataError(f"study key {where} contains {_short(v)}: every item must be a "
+                                f"{'number' if want is _NUM else 'string'}")
+        if key == "values_nm" and not items:
+            raise DataError(f"study key {where} is empty: give at least one value")
+    for v in items:
+        if isinstance(v, float) and not math.isfinite(v):
+            raise DataError(f"study key {where} = {v}: must be a finite number")
+    sized = key.endswith("_nm") and key != "band_nm" and not where.startswith(("wavelengths", "illumination"))
+    if sized and any(isinstance(v, _NUM) and v > MAX_SIZE_NM for v in items):
+        raise DataError(f"study key {where} = {max(items):g} nm: allowed range is up to {MAX_SIZE_NM:g} nm")
 
 
 def validate(doc: dict) -> dict:
@@ -196,7 +233,9 @@ def _illumination(doc):
         f = Path(d["file"])
         if not f.is_absolute() and doc.get("_path"):
             f = Path(doc["_path"]).parent / f
-        src = il.from_csv(f)
+        from .export import check_input_file
+
+        src = il.from_csv(check_input_file(f, "illumination file"))
     if "band_nm" in d:
         b = d["band_nm"]
         if len(b) != 2 or not all(isinstance(v, _NUM) for v in b):
@@ -250,9 +289,9 @@ def _particle(t):
 @dataclass
 class _Report:
     out: Path
-    force: bool
     files: list
     lines: list
+    fmts: list
 
     def path(self, name):
         return self.out / name
@@ -260,48 +299,157 @@ class _Report:
     def add(self, p):
         self.files.append(Path(p).name)
 
+    def figure(self, fig, stem):
+        from .plotting import save_figure
+
+        for f in self.fmts:
+            self.add(save_figure(fig, self.path(f"{stem}.{f}"), force=True))
+
 
 def _slug(text):
     keep = "".join(c if c.isalnum() else "_" for c in text.lower())
     return "_".join(p for p in keep.split("_") if p)[:40] or "item"
 
 
+def _stems(names):
+    """One file stem per item, unique by construction: repeated slugs get a suffix _2, _3, ..."""
+    used, out = set(), []
+    for name in names:
+        base = stem = _slug(name)
+        k = 1
+        while stem in used:
+            k += 1
+            stem = f"{base}_{k}"
+        used.add(stem)
+        out.append(stem)
+    return out
+
+
+def _output_dir(out_dir, force) -> Path:
+    """The report folder, checked before anything is computed or written."""
+    if str(out_dir).strip() == "":
+        raise NanoabsError("output folder = '': give a folder name (CLI: -o FOLDER)")
+    out = Path(out_dir)
+    parent = out.resolve().parent
+    try:
+        if out.exists() and not out.is_dir():
+            raise NanoabsError(f"output folder {str(out)!r} exists and is not a folder: choose another name")
+        if out.exists() and any(out.iterdir()) and not force:
+            raise NanoabsError(f"output folder {str(out)!r} exists and is not empty: pass force=True (CLI: --force) "
+                               "or choose another folder")
+    except OSError as exc:
+        raise NanoabsError(f"output folder {str(out)!r} cannot be read ({exc.__class__.__name__})") from None
+    if not parent.is_dir():
+        raise NanoabsError(f"output folder parent {str(out.parent)!r} does not exist")
+    for d in (parent, out) if out.exists() else (parent,):
+        if not os.access(d, os.W_OK | os.X_OK):
+            raise NanoabsError(f"output folder {str(d)!r} is not writable")
+    return out
+
+
+def _prepare(doc):
+    """Everything the report needs, validated; nothing is written here."""
+    job = {"doc": doc, "wl": _wavelengths(doc), "medium": _medium(doc), "illum": _illumination(doc),
+           "det": doc.get("detector", {}), "figures": doc.get("output", {}).get("figures", True),
+           "fmts": doc.get("output", {}).get("formats", ["png"]),
+           "kappa": doc.get("medium", {}).get("thermal_conductivity_W_mK")}
+    for f in job["fmts"]:
+        if f not in ("png", "svg"):
+            raise DataError(f"study key output.formats contains {f!r}: allowed: png, svg")
+    items = doc.get("particle", []) + doc.get("sweep", [])
+    stems = dict(zip(map(id, items), _stems([t["name"] for t in items])))
+    job["particles"] = [(t, _particle(t), stems[id(t)]) for t in doc.get("particle", [])]
+    job["barrier"] = _barrier(doc) if (job["particles"] or doc.get("search")) else (None, None)
+    job["sweeps"] = [_sweep_inputs(t, job, stems[id(t)]) for t in doc.get("sweep", [])]
+    job["search"] = _search_inputs(doc, job) if doc.get("search") else None
+    return job
+
+
+def _sweep_inputs(t, job, stem):
+    from .design._designs import _GEOMETRY
+    from .design._sweep import validated_plan
+
+    shape, param = t["shape"], t["parameter"]
+    if param not in _GEOMETRY[shape]:
+        raise DataError(f"study key sweep {t['name']!r}: parameter = {param!r}{suggest(param, _GEOMETRY[shape])}; "
+                        f"allowed for shape {shape!r}: {', '.join(_GEOMETRY[shape])}")
+    params = {param: np.asarray(t["values_nm"], dtype=float)}
+    for k in _GEOMETRY[shape]:
+        if k in t and k != param:
+            params[k] = np.array([float(t[k])])
+    kw = {"material": t.get("shell", t.get("material", "Au")) if shape == "shell" else t.get("material", "Au"),
+          "medium": job["medium"]}
+    if shape == "shell":
+        kw["core"] = t.get("core", "SiO2")
+    if "polarization" in t:
+        kw["polarization"] = t["polarization"]
+    try:
+        validated_plan(shape, params, job["wl"], **kw)
+    except NanoabsError as exc:
+        raise type(exc)(f"study sweep {t['name']!r}: {exc}") from None
+    return {"t": t, "stem": stem, "shape": shape, "param": param, "params": params, "kw": kw}
+
+
+def _search_inputs(doc, job):
+    from .design._search import search_inputs
+
+    sd = doc["search"]
+    b = sd["band_nm"]
+    if len(b) != 2 or not b[0] < b[1]:
+        raise DataError(f"study key search.band_nm = {b!r}: must be [low, high] in nm with low < high")
+    kw = dict(families=sd.get("families", ["sphere", "shell", "rod"]),
+              objective=sd.get("objective", "absorbed_fraction"), materials=sd.get("materials", ["Au"]),
+              medium=job["medium"], illumination=job["illum"], barrier_eV=job["barrier"][0],
+              max_size_nm=sd.get("max_size_nm", 200.0), min_shell_nm=sd.get("min_shell_nm", 5.0),
+              top=int(sd.get("top", 10)))
+    search_inputs((float(b[0]), float(b[1])), bounds=None, core="SiO2", fermi_energy_eV=None,
+                  polarization="random", method="auto", surface_damping=True, wavelength_nm=None, n_starts=2, **kw)
+    return {"band": (float(b[0]), float(b[1])), "kw": kw, "sd": sd}
+
+
 def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = True) -> Path:
     """Run a study and write the report folder; returns the path of ``summary.md``.
 
-    Nothing is written until the study has been validated and the output folder
-    checked: an existing non-empty folder needs ``force``. Each file is written
-    atomically.
+    Order: the whole study is validated first (every section, every name, the
+    output folder; an existing non-empty folder needs ``force``), then computed
+    into a temporary folder beside the output, then its files are moved into the
+    output folder. A failure leaves the output folder as it was. While it runs
+    the folder is locked (``<folder>.lock``): a second run into it is refused.
     """
-    from .detector import hot_carrier_estimate
-    from .hotcarriers import SAFETY_CAUTION
-    from .materials import material
-    from .optics import spectrum
-    from .plotting import plot_curves, plot_map, plot_spectra, save_figure
+    from .export import exclusive_lock
 
     doc = path_or_doc if isinstance(path_or_doc, dict) else load_study(path_or_doc)
-    out = Path(out_dir)
-    if out.exists() and any(out.iterdir()) and not force:
-        raise NanoabsError(f"output folder {str(out)!r} exists and is not empty: pass force=True (CLI: --force) "
-                           "or choose another folder")
-    if not out.parent.exists():
-        raise NanoabsError(f"output folder parent {str(out.parent)!r} does not exist")
-    wl = _wavelengths(doc)
-    medium = _medium(doc)
-    illum = _illumination(doc)
-    det = doc.get("detector", {})
-    figures = doc.get("output", {}).get("figures", True)
-    fmts = doc.get("output", {}).get("formats", ["png"])
-    for f in fmts:
-        if f not in ("png", "svg"):
-            raise DataError(f"study key output.formats contains {f!r}: allowed: png, svg")
-    # build every particle first so that input errors surface before anything is written
-    particles = [(t, _particle(t)) for t in doc.get("particle", [])]
-    barrier = _barrier(doc) if (particles or doc.get("search")) else (None, None)
-    out.mkdir(exist_ok=True)
-    rep = _Report(out, force, [], [])
-    kappa = doc.get("medium", {}).get("thermal_conductivity_W_mK")
+    out = _output_dir(out_dir, force)
+    job = _prepare(doc)
+    with exclusive_lock(out, "report folder"):
+        out = _output_dir(out_dir, force)  # again, now that no one else writes it
+        name, parent = out.resolve().name, out.resolve().parent
+        for stale in parent.glob(f".{glob.escape(name)}.*.partial"):  # left by a killed run
+            shutil.rmtree(stale, ignore_errors=True)
+        try:
+            tmp = Path(tempfile.mkdtemp(prefix=f".{name}.", suffix=".partial", dir=parent))
+        except OSError as exc:
+            raise NanoabsError(f"output folder {str(out)!r}: cannot write beside it ({exc.__class__.__name__})") \
+                from None
+        try:
+            rep = _Report(tmp, [], [], job["fmts"])
+            _write_report(job, rep, progress)
+            out.mkdir(exist_ok=True)
+            for f in sorted(tmp.iterdir()):
+                os.replace(f, out / f.name)
+        except OSError as exc:
+            raise NanoabsError(f"output folder {str(out)!r}: cannot write the report ({exc.__class__.__name__}: "
+                               f"{exc.strerror or exc})") from None
+        finally:
+            shutil.rmtree(tmp, ignore_errors=True)
+    return out / "summary.md"
 
+
+def _write_report(job, rep, progress):
+    from .export import write_file_atomic
+    from .hotcarriers import SAFETY_CAUTION
+
+    doc, wl, barrier = job["doc"], job["wl"], job["barrier"]
     s = doc["study"]
     L = rep.lines
     L += [f"# {s['title']}", ""]
@@ -309,180 +457,219 @@ def run_study(path_or_doc, out_dir, *, force: bool = False, progress: bool = Tru
         L += [f"*{s['lab']}*", ""]
     if s.get("description"):
         L += [s["description"].strip(), ""]
-    L += [f"- medium: {medium.label}", f"- wavelengths: {wl[0]:g}–{wl[-1]:g} nm ({wl.size} points)",
-          f"- illumination: {illum.description}",
+    L += [f"- medium: {job['medium'].label}", f"- wavelengths: {wl[0]:g}–{wl[-1]:g} nm ({wl.size} points)",
+          f"- illumination: {job['illum'].description}",
           f"- Schottky barrier: {barrier[0]:g} eV ({barrier[1]}); photoemission cut-off hc/φ_B = "
           f"{HC_EV_NM / barrier[0]:.0f} nm" if barrier[0] else "- Schottky barrier: —",
           ""]
-
-    def figsave(fig, stem):
-        for f in fmts:
-            p = save_figure(fig, rep.path(f"{stem}.{f}"), force=force)
-            rep.add(p)
-
-    # 1. particles -----------------------------------------------------------
-    if particles:
-        L += ["## Candidate particles", "",
-              "| particle | method | peak [nm] | FWHM [nm] | peak σ_abs [m²] | σ_abs/σ_ext at peak | "
-              "photocurrent per particle [A] | ΔT [K] |", "|---|---|---|---|---|---|---|---|"]
-        curves, warn_lines, resp_curves = [], [], []
-        for t, p in particles:
-            spec = spectrum(p, wl, medium=medium, method=t.get("method", "auto"),
-                            polarization=t.get("polarization", "long" if t["shape"] == "spheroid" else "x"),
-                            surface_damping=t.get("surface_damping", True))
-            res = hot_carrier_estimate(spec, p, illum, barrier_eV=barrier[0],
-                                       fermi_energy_eV=det.get("fermi_energy_eV"),
-                                       attenuation_length_nm=det.get("attenuation_length_nm"),
-                                       yield_model=det.get("yield_model", "escape-cone"),
-                                       momentum_factor=det.get("momentum_factor", 1.0),
-                                       contact_fraction=det.get("contact_fraction", 1.0),
-                                       density_per_um2=det.get("density_per_um2"),
-                                       thermal_conductivity_W_mK=kappa)
-            stem = _slug(t["name"])
-            rep.add(res.write(rep.path(f"{stem}_hot_carriers.csv"), force=force)[0])
-            rep.add(rep.path(f"{stem}_hot_carriers.json"))
-            spec.write(rep.path(f"{stem}_spectrum.csv"), force=force)
-            rep.add(rep.path(f"{stem}_spectrum.csv"))
-            rep.add(rep.path(f"{stem}_spectrum.json"))
-            sm = spec.summary()
-            tot = res.totals
-            cur = tot.get("photocurrent_A", tot.get("peak_photocurrent_A"))
-            dT = tot.get("temperature_rise_K")
-            L.append(f"| {t['name']} | {spec.metadata['method']} | {sm['peak_wavelength_nm']:.0f} | "
-                     f"{_f(sm['fwhm_nm'], '.0f')} | {sm['peak_sigma_abs_m2']:.3g} | "
-                     f"{sm['absorbed_fraction_at_peak']:.2f} | {cur:.3g} | {_f(dT, '.2g')} |")
-            curves.append((t["name"], wl, spec.sigma_abs_m2))
-            if "responsivity_A_W" in res.frame:
-                resp_curves.append((t["name"], res.frame["responsivity_A_W"].to_numpy()))
-            for w in res.metadata.get("warnings", []):
-                warn_lines.append(f"- {t['name']}: {w}")
-        L.append("")
-        if warn_lines:
-            L += ["Warnings:", ""] + warn_lines + [""]
-        L += ["Photocurrent per particle: band-integrated for a broadband source, at the absorption peak "
-              "for a monochromatic one; ΔT: steady state of one isolated particle.", ""]
-        if figures:
-            band = doc.get("search", {}).get("band_nm")
-            figsave(plot_spectra(curves, ylabel="absorption cross-section [nm²]", scale=1e18,
-                                 band=band, title="candidate particles"), "spectra")
-            if resp_curves:
-                figsave(plot_curves(wl, resp_curves, xlabel="wavelength [nm]", ylabel="array responsivity [A/W]",
-                                    title=f"{det.get('density_per_um2')} particles per µm² (sparse-array estimate)"),
-                        "responsivity")
-
-    # 2. sweeps --------------------------------------------------------------
-    for t in doc.get("sweep", []):
-        from .design import sweep
-
-        vals = np.asarray(t["values_nm"], dtype=float)
-        base = {k: t[k] for k in ("radius_nm", "core_radius_nm", "thickness_nm", "length_nm", "diameter_nm")
-                if k in t}
-        param = t["parameter"]
-        base.pop(param, None)
-        params = {param: vals}
-        for k, v in base.items():
-            params[k] = np.array([float(v)])
-        kw = {"material": t.get("material", "Au"), "medium": medium}
-        if t["shape"] == "shell":
-            kw = {"core": t.get("core", "SiO2"), "shell": t.get("shell", "Au"), "medium": medium}
-        if "polarization" in t:
-            kw["polarization"] = t["polarization"]
-        stem = _slug(t["name"])
-        res = sweep(t["shape"], params, wl, progress=progress, out=rep.path(f"{stem}_sweep.csv"),
-                    force=force, **kw)
-        rep.add(rep.path(f"{stem}_sweep.csv"))
-        rep.add(rep.path(f"{stem}_sweep.json"))
-        frame = res if hasattr(res, "columns") else None
-        if frame is None:
-            from .export import read_export
-
-            frame, _ = read_export(rep.path(f"{stem}_sweep.csv"))
-        pcol = [c for c in frame.columns if c.startswith(param.replace("_nm", ""))][0]
-        grid = frame.pivot_table(index=pcol, columns="wavelength_nm", values="sigma_abs_m2").sort_index()
-        peaks = grid.columns.values[np.argmax(grid.values, axis=1)]
-        L += [f"## Sweep: {t['name']}", "",
-              f"{param} from {vals.min():g} to {vals.max():g} nm ({vals.size} values); absorption peak moves "
-              f"from {peaks[0]:.0f} nm to {peaks[-1]:.0f} nm. Data: `{stem}_sweep.csv`.", ""]
-        band = doc.get("search", {}).get("band_nm")
-        if band:
-            inb = (grid.columns.values >= band[0]) & (grid.columns.values <= band[1])
-            fom = grid.values[:, inb].mean(axis=1)
-            best = grid.index.values[int(np.argmax(fom))]
-            L.insert(len(L) - 1, f"Band-averaged σ_abs over {band[0]:g}–{band[1]:g} nm is largest at "
-                                 f"{param} = {best:g} nm ({fom.max():.3g} m²).")
-            L.insert(len(L) - 1, "")
-        if figures and band:
-            figsave(plot_curves(grid.index.values, [("band-averaged σ_abs", fom * 1e18)],
-                                xlabel=param.replace("_nm", " [nm]"), ylabel="band-averaged σ_abs [nm²]",
-                                title=f"{t['name']}: figure of merit in {band[0]:g}–{band[1]:g} nm"),
-                    f"{stem}_merit")
-        if figures:
-            figsave(plot_map(grid.columns.values, grid.index.values, grid.values * 1e18,
-                             param_label=param.replace("_nm", " [nm]"),
-                             value_label="absorption cross-section [nm²]",
-                             band=doc.get("search", {}).get("band_nm"), title=t["name"]), f"{stem}_map")
-
-    # 3. search --------------------------------------------------------------
-    if doc.get("search"):
-        from .design import search
-
-        sd = doc["search"]
-        b = sd["band_nm"]
-        if len(b) != 2 or not all(isinstance(v, _NUM) for v in b) or not b[0] < b[1]:
-            raise DataError(f"study key search.band_nm = {b!r}: must be [low, high] in nm with low < high")
-        ranked = search((float(b[0]), float(b[1])), families=sd.get("families", ["sphere", "shell", "rod"]),
-                        objective=sd.get("objective", "absorbed_fraction"),
-                        materials=sd.get("materials", ["Au"]), medium=medium,
-                        illumination=illum, barrier_eV=barrier[0],
-                        max_size_nm=sd.get("max_size_nm", 200.0), min_shell_nm=sd.get("min_shell_nm", 5.0),
-                        top=int(sd.get("top", 10)), progress=progress)
-        from .design import write as write_table
-
-        ranked.attrs["metadata"] = {**(ranked.attrs.get("metadata") or {}), "study_search": dict(sd)}
-        write_table(ranked, rep.path("ranked_designs.csv"), force=force)
-        rep.add(rep.path("ranked_designs.csv"))
-        rep.add(rep.path("ranked_designs.json"))
-        L += [f"## Ranked designs for {b[0]:g}–{b[1]:g} nm", "",
-              f"Objective: {sd.get('objective', 'absorbed_fraction')}. Full table: `ranked_designs.csv`.", ""]
-        L += _ranked_table(ranked.head(int(sd.get("top", 10))))
-        L.append("")
-
-    # 4. yield curve: one pair of curves per metal of the study (each has its own E_F) -------
-    if figures and barrier[0]:
-        from .detector import _main_metal
-        from .hotcarriers import FREE_ELECTRON, escape_cone_yield, fowler_yield, photon_energy_eV
-
-        names = [_main_metal(p).name for _, p in particles]
-        if doc.get("search"):
-            names += [material(m).name for m in doc["search"].get("materials", ["Au"])]
-        E = photon_energy_eV(wl)
-        if det.get("fermi_energy_eV") is not None:
-            fermi = [("", float(det["fermi_energy_eV"]))]
-        else:
-            fermi = [(n, FREE_ELECTRON[n].fermi_energy_eV) for n in dict.fromkeys(names) if n in FREE_ELECTRON]
-        curves = []
-        for name, ef in fermi:
-            tag = f"{name}, E_F = {ef:g} eV" if name else f"E_F = {ef:g} eV"
-            curves += [(f"escape-cone integral ({tag})", escape_cone_yield(E, barrier[0], ef)),
-                       (f"Fowler small-excess form ({tag})", fowler_yield(E, barrier[0], ef))]
-        if curves:
-            figsave(plot_curves(wl, curves, xlabel="wavelength [nm]",
-                                ylabel="emission probability per absorbed photon",
-                                title=f"internal photoemission over a {barrier[0]:g} eV barrier"),
-                    "emission_probability")
-        else:
-            L += ["Emission-probability figure not drawn: no metal of this study has tabulated "
-                  "free-electron data (give detector.fermi_energy_eV).", ""]
-
+    if job["particles"]:
+        _particles_section(job, rep)
+    for sw in job["sweeps"]:
+        _sweep_section(job, sw, rep, progress)
+    if job["search"]:
+        _search_section(job, rep, progress)
+    if job["figures"] and barrier[0]:
+        _yield_figure(job, rep)
+    L += _data_sources(job)
     L += ["## Cautions", "", " ".join(SAFETY_CAUTION.split()), "",
           "These are model estimates (sparse arrays, isolated-particle heating, escape-cone emission) for "
           "comparing designs; they do not replace measurement or a safety review.", "",
           "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files))]
-    from .export import write_file_atomic
-
     text = "\n".join(L) + "\n"
-    summary = write_file_atomic(rep.path("summary.md"), lambda fh: fh.write(text), force=force)
-    return summary
+    write_file_atomic(rep.path("summary.md"), lambda fh: fh.write(text), force=True)
+
+
+def _data_sources(job) -> list:
+    """'## Data sources': the citation of every optical-constant dataset the study used."""
+    found = {}
+
+    def visit(obj, depth=0):
+        if depth > 4:
+            return
+        if hasattr(obj, "layer_materials"):
+            for m in obj.layer_materials():
+                visit(m, depth + 1)
+        elif hasattr(obj, "permittivity") and callable(getattr(obj, "metadata", None)):
+            meta = obj.metadata()
+            if isinstance(meta, dict) and meta.get("reference"):
+                found.setdefault(obj.label, meta)
+        elif isinstance(obj, dict):
+            for v in obj.values():
+                visit(v, depth + 1)
+        elif isinstance(obj, (list, tuple)):
+            for v in obj:
+                visit(v, depth + 1)
+
+    visit(job)
+    if not found:
+        return []
+    lines = ["## Data sources", ""]
+    for label, meta in sorted(found.items()):
+        doi = f" doi:{meta['doi']}" if meta.get("doi") else ""
+        lines.append(f"- {label}: {meta['reference']}.{doi} {meta.get('dataset', '')}".rstrip())
+    return lines + [""]
+
+
+def _particles_section(job, rep):
+    from .detector import hot_carrier_estimate
+    from .optics import spectrum
+    from .plotting import plot_curves, plot_spectra
+
+    wl, det, L = job["wl"], job["det"], rep.lines
+    L += ["## Candidate particles", "",
+          "| particle | method | peak [nm] | FWHM [nm] | peak σ_abs [m²] | σ_abs/σ_ext at peak | "
+          "photocurrent per particle [A] | ΔT [K] |", "|---|---|---|---|---|---|---|---|"]
+    curves, warn_lines, resp_curves = [], [], []
+    for t, p, stem in job["particles"]:
+        spec = spectrum(p, wl, medium=job["medium"], method=t.get("method", "auto"),
+                        polarization=t.get("polarization", "long" if t["shape"] == "spheroid" else "x"),
+                        surface_damping=t.get("surface_damping", True))
+        res = hot_carrier_estimate(spec, p, job["illum"], barrier_eV=job["barrier"][0],
+                                   fermi_energy_eV=det.get("fermi_energy_eV"),
+                                   attenuation_length_nm=det.get("attenuation_length_nm"),
+                                   yield_model=det.get("yield_model", "escape-cone"),
+                                   momentum_factor=det.get("momentum_factor", 1.0),
+                                   contact_fraction=det.get("contact_fraction", 1.0),
+                                   density_per_um2=det.get("density_per_um2"),
+                                   thermal_conductivity_W_mK=job["kappa"])
+        rep.add(res.write(rep.path(f"{stem}_hot_carriers.csv"))[0])
+        rep.add(rep.path(f"{stem}_hot_carriers.json"))
+        spec.write(rep.path(f"{stem}_spectrum.csv"))
+        rep.add(rep.path(f"{stem}_spectrum.csv"))
+        rep.add(rep.path(f"{stem}_spectrum.json"))
+        sm = spec.summary()
+        tot = res.totals
+        cur = tot.get("photocurrent_A", tot.get("peak_photocurrent_A"))
+        dT = tot.get("temperature_rise_K")
+        peak = _f(sm["peak_wavelength_nm"], ".0f") if sm["peak_status"] == "peak" else sm["peak_status"]
+        L.append(f"| {t['name']} | {spec.metadata['method']} | {peak} | "
+                 f"{_f(sm['fwhm_nm'], '.0f')} | {sm['peak_sigma_abs_m2']:.3g} | "
+                 f"{sm['absorbed_fraction_at_peak']:.2f} | {cur:.3g} | {_f(dT, '.2g')} |")
+        curves.append((t["name"], wl, spec.sigma_abs_m2))
+        if "responsivity_A_W" in res.frame:
+            resp_curves.append((t["name"], res.frame["responsivity_A_W"].to_numpy()))
+        for w in res.metadata.get("warnings", []):
+            warn_lines.append(f"- {t['name']}: {w}")
+    L.append("")
+    if warn_lines:
+        L += ["Warnings:", ""] + warn_lines + [""]
+    L += ["Photocurrent per particle: band-integrated for a broadband source, at the absorption peak "
+          "for a monochromatic one; ΔT: steady state of one isolated particle.", ""]
+    if job["figures"]:
+        band = job["doc"].get("search", {}).get("band_nm")
+        rep.figure(plot_spectra(curves, ylabel="absorption cross-section [nm²]", scale=1e18,
+                                band=band, title="candidate particles"), "spectra")
+        if resp_curves:
+            rep.figure(plot_curves(wl, resp_curves, xlabel="wavelength [nm]", ylabel="array responsivity [A/W]",
+                                   title=f"{det.get('density_per_um2')} particles per µm² (sparse-array estimate)"),
+                       "responsivity")
+
+
+#: Designs drawn in a study sweep's map at most (every k-th design beyond that).
+_MAP_ROWS = 400
+
+
+def _sweep_reduced(path, param, n, wl, band):
+    """Per design, sorted by the parameter: value, σ_abs peak wavelength, band-mean σ_abs; the map rows.
+
+    Streams the sweep's CSV in blocks of whole designs, so memory does not grow with the
+    sweep; the map keeps every ``step``-th of the ``n`` designs (at most ``_MAP_ROWS``).
+    """
+    import pandas as pd
+
+    W = wl.size
+    inb = (wl >= band[0]) & (wl <= band[1]) if band else np.zeros(W, bool)
+    step = max(1, -(-n // _MAP_ROWS))
+    vals, peaks, foms, map_ids, map_rows = [], [], [], [], []
+    for chunk in pd.read_csv(path, usecols=["design_id", param, "sigma_abs_m2"], chunksize=W * 512):
+        sa = chunk["sigma_abs_m2"].to_numpy(dtype=float).reshape(-1, W)
+        ids = chunk["design_id"].to_numpy()[::W]
+        vals.append(chunk[param].to_numpy(dtype=float)[::W])
+        peaks.append(wl[np.argmax(sa, axis=1)])
+        foms.append(sa[:, inb].mean(axis=1) if inb.any() else np.full(ids.size, np.nan))
+        map_ids.append(ids[ids % step == 0])
+        map_rows.append(sa[ids % step == 0])
+    v = np.concatenate(vals)  # design ids run 0..n-1 in the order of the values
+    order = np.argsort(v, kind="stable")
+    mv = v[np.concatenate(map_ids)]
+    mo = np.argsort(mv, kind="stable")
+    fom = np.concatenate(foms)[order] if inb.any() else None
+    return v[order], np.concatenate(peaks)[order], fom, mv[mo], np.concatenate(map_rows)[mo], step
+
+
+def _sweep_section(job, sw, rep, progress):
+    from .design import sweep
+    from .plotting import plot_curves, plot_map
+
+    t, stem, param, wl, L = sw["t"], sw["stem"], sw["param"], job["wl"], rep.lines
+    band = job["doc"].get("search", {}).get("band_nm")
+    path = rep.path(f"{stem}_sweep.csv")
+    # streamed: the table is never held in memory, whatever its size
+    sweep(sw["shape"], sw["params"], wl, progress=progress, out=path, memory_budget_MB=1e-9, **sw["kw"])
+    rep.add(path)
+    rep.add(rep.path(f"{stem}_sweep.json"))
+    vals, peaks, fom, map_vals, grid, step = _sweep_reduced(path, param, len(t["values_nm"]), wl, band)
+    L += [f"## Sweep: {t['name']}", "",
+          f"{param} from {vals.min():g} to {vals.max():g} nm ({vals.size} values); absorption peak moves "
+          f"from {peaks[0]:.0f} nm to {peaks[-1]:.0f} nm. Data: `{stem}_sweep.csv`.", ""]
+    if band and fom is not None:
+        best = vals[int(np.argmax(fom))]
+        L[-1:-1] = [f"Band-averaged σ_abs over {band[0]:g}–{band[1]:g} nm is largest at "
+                    f"{param} = {best:g} nm ({fom.max():.3g} m²).", ""]
+    if not job["figures"]:
+        return
+    if band and fom is not None:
+        rep.figure(plot_curves(vals, [("band-averaged σ_abs", fom * 1e18)],
+                               xlabel=param.replace("_nm", " [nm]"), ylabel="band-averaged σ_abs [nm²]",
+                               title=f"{t['name']}: figure of merit in {band[0]:g}–{band[1]:g} nm"),
+                   f"{stem}_merit")
+    title = t["name"] + (f" (every {step}th of {vals.size} designs)" if step > 1 else "")
+    rep.figure(plot_map(wl, map_vals, grid * 1e18, param_label=param.replace("_nm", " [nm]"),
+                        value_label="absorption cross-section [nm²]", band=band, title=title), f"{stem}_map")
+
+
+def _search_section(job, rep, progress):
+    from .design import search, write as write_table
+
+    b, sd = job["search"]["band"], job["search"]["sd"]
+    ranked = search(b, progress=progress, **job["search"]["kw"])
+    ranked.attrs["metadata"] = {**(ranked.attrs.get("metadata") or {}), "study_search": dict(sd)}
+    write_table(ranked, rep.path("ranked_designs.csv"))
+    rep.add(rep.path("ranked_designs.csv"))
+    rep.add(rep.path("ranked_designs.json"))
+    rep.lines.extend([f"## Ranked designs for {b[0]:g}–{b[1]:g} nm", "",
+                      f"Objective: {sd.get('objective', 'absorbed_fraction')}. Full table: `ranked_designs.csv`.",
+                      ""] + _ranked_table(ranked.head(int(sd.get("top", 10)))) + [""])
+
+
+def _yield_figure(job, rep):
+    """One pair of emission-probability curves per metal of the study (each has its own E_F)."""
+    from .detector import _main_metal
+    from .hotcarriers import FREE_ELECTRON, escape_cone_yield, fowler_yield, photon_energy_eV
+    from .materials import material
+    from .plotting import plot_curves
+
+    doc, det, wl, barrier = job["doc"], job["det"], job["wl"], job["barrier"]
+    names = [_main_metal(p).name for _, p, _ in job["particles"]]
+    if doc.get("search"):
+        names += [material(m).name for m in doc["search"].get("materials", ["Au"])]
+    E = photon_energy_eV(wl)
+    if det.get("fermi_energy_eV") is not None:
+        fermi = [("", float(det["fermi_energy_eV"]))]
+    else:
+        fermi = [(n, FREE_ELECTRON[n].fermi_energy_eV) for n in dict.fromkeys(names) if n in FREE_ELECTRON]
+    curves = []
+    for name, ef in fermi:
+        tag = f"{name}, E_F = {ef:g} eV" if name else f"E_F = {ef:g} eV"
+        curves += [(f"escape-cone integral ({tag})", escape_cone_yield(E, barrier[0], ef)),
+                   (f"Fowler small-excess form ({tag})", fowler_yield(E, barrier[0], ef))]
+    if curves:
+        rep.figure(plot_curves(wl, curves, xlabel="wavelength [nm]", ylabel="emission probability per absorbed photon",
+                               title=f"internal photoemission over a {barrier[0]:g} eV barrier"),
+                   "emission_probability")
+    else:
+        rep.lines.extend(["Emission-probability figure not drawn: no metal of this study has tabulated "
+                          "free-electron data (give detector.fermi_energy_eV).", ""])
 
 
 def _f(v, fmt):

@@ -102,9 +102,9 @@ def test_spectrum_compiled_equals_numpy(name, make, pol, medium, damping, monkey
 
 def test_geometry_varying_with_wavelength_uses_numpy():
     wl = np.linspace(500, 900, 5)
-    s = nanoabs.spectrum(spheroid("Au", np.linspace(40, 80, 5), 20.0), wl, medium="water")
+    s = nanoabs.spectrum(spheroid("Au", np.linspace(40, 80, 5)[None, :], 20.0), wl, medium="water")
     assert s.metadata["solver_backend"] == "numpy"
-    assert s.sigma_abs_m2.shape == (5,)
+    assert s.sigma_abs_m2.shape == (1, 5)  # explicit (1, W): a 1-D size array is refused (particles.py)
 
 
 def test_concurrent_calls_from_threads(in_threads):

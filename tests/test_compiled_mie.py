@@ -26,6 +26,12 @@ pytestmark = pytest.mark.skipif(not _compiled_mie.available(), reason="numba not
 RTOL = 1e-12
 
 
+@pytest.fixture(autouse=True)
+def _kernel_for_every_grid(monkeypatch):
+    """The kernel also for the small grids of these tests (spectrum() uses it from MIN_POINTS on)."""
+    monkeypatch.setattr(_compiled_mie, "MIN_POINTS", 0)
+
+
 def _kernel(m, x):
     m = np.asarray(m, dtype=complex)
     x = np.asarray(x, dtype=float)

@@ -16,6 +16,7 @@ from scipy.optimize import brentq
 
 import nanoabs
 from nanoabs import NanoabsError, design
+from nanoabs.design import _engine, _ensemble, _sweep
 from nanoabs.drude_lorentz import HC_EV_NM, DrudeLorentz
 from nanoabs.export import read_export
 from nanoabs.particles import Sphere, spheroid
@@ -142,14 +143,26 @@ def test_part_files_are_formatted_like_the_export():
     f = pd.DataFrame({"design_id": np.arange(6, dtype=np.int64),
                       "x": [1 / 3, np.nan, -0.0, 1.7976931348623157e308, 5e-324, np.inf],
                       "material": ["Au", 'say "x"', "a,b", "", "Cu", "Al"]})
-    assert design._csv_text(f) == f.to_csv(index=False, na_rep="nan", lineterminator="\n")
+    assert _engine.csv_text(f) == f.to_csv(index=False, na_rep="nan", lineterminator="\n")
+
+
+def _count_chunks(monkeypatch, real):
+    """Replace the chunk function by ``real`` plus a record of the chunk indices computed."""
+    calls = []
+
+    def counting(plan, index):
+        calls.append(index)
+        return real(plan, index)
+
+    monkeypatch.setattr(_sweep, "_compute_chunk", counting)
+    return calls
 
 
 def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
     # Source: the uninterrupted in-memory sweep (exact); counts of chunk computations.
     ref = _sphere_sweep(chunk_size=2)
     n_chunks = 7  # 14 designs / 2
-    real = design._compute_chunk
+    real = _sweep._compute_chunk
     calls = []
 
     def interrupted(plan, index):
@@ -159,20 +172,14 @@ def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
         return real(plan, index)
 
     out = tmp_path / "run.csv"
-    monkeypatch.setattr(design, "_compute_chunk", interrupted)
+    monkeypatch.setattr(_sweep, "_compute_chunk", interrupted)
     with pytest.raises(KeyboardInterrupt):
         _sphere_sweep(chunk_size=2, out=out)
     parts = Path(str(out) + ".parts")
     assert sorted(p.name for p in parts.glob("chunk_*.csv")) == [f"chunk_{i:06d}.csv" for i in range(3)]
     assert not out.exists()
 
-    rerun = []
-
-    def counting(plan, index):
-        rerun.append(index)
-        return real(plan, index)
-
-    monkeypatch.setattr(design, "_compute_chunk", counting)
+    rerun = _count_chunks(monkeypatch, real)
     got = _sphere_sweep(chunk_size=2, out=out)
     assert rerun == list(range(3, n_chunks))  # finished chunks are not recomputed
     assert_frame_equal(ref, got, check_exact=True)
@@ -182,7 +189,7 @@ def test_interrupted_sweep_resumes_without_recomputing(tmp_path, monkeypatch):
 
 def test_stale_work_directory_needs_force(tmp_path, monkeypatch):
     # Source: contract — parts of a sweep with other arguments are never mixed in silently.
-    real = design._compute_chunk
+    real = _sweep._compute_chunk
 
     def stop_after_first(plan, index):
         if index > 0:
@@ -190,14 +197,225 @@ def test_stale_work_directory_needs_force(tmp_path, monkeypatch):
         return real(plan, index)
 
     out = tmp_path / "s.csv"
-    monkeypatch.setattr(design, "_compute_chunk", stop_after_first)
+    monkeypatch.setattr(_sweep, "_compute_chunk", stop_after_first)
     with pytest.raises(KeyboardInterrupt):
         _sphere_sweep(chunk_size=2, out=out)
-    monkeypatch.setattr(design, "_compute_chunk", real)
+    monkeypatch.setattr(_sweep, "_compute_chunk", real)
     with pytest.raises(NanoabsError, match="different arguments"):
         _sphere_sweep(chunk_size=5, out=out)
     got = _sphere_sweep(chunk_size=5, out=out, force=True)
     assert_frame_equal(_sphere_sweep(chunk_size=5), got, check_exact=True)
+
+
+def _user_table(path, scale=1.0):
+    """A user material table: the shipped Au data on 41 wavelengths, n + ik scaled by ``scale``."""
+    wl = np.linspace(400.0, 900.0, 41)
+    n = nanoabs.material("Au").refractive_index(wl) * scale
+    rows = [f"{float(w)!r},{float(v.real)!r},{float(v.imag)!r}\n" for w, v in zip(wl, n)]
+    path.write_text("wavelength_nm,n,k\n" + "".join(rows))
+    return path
+
+
+_SLOW_SWEEP = """
+import sys, time
+import numpy as np
+import nanoabs
+from nanoabs import design
+from nanoabs.design import _sweep
+real = _sweep._compute_chunk
+def slow(plan, index):  # 0.2 s per chunk, so that the test can act while the sweep runs
+    time.sleep(0.2)
+    return real(plan, index)
+_sweep._compute_chunk = slow
+table, out = sys.argv[1], sys.argv[2]
+design.sweep("sphere", {"radius_nm": np.linspace(5.0, 80.0, 60)}, np.linspace(400.0, 900.0, 101),
+             material=nanoabs.load_table(table), chunk_size=1, progress=False, out=out,
+             executor=sys.argv[3] if len(sys.argv) > 3 else None)
+"""
+
+
+def _start_slow_sweep(tmp_path, table, out, *executor):
+    import subprocess
+    import sys
+    import time
+
+    proc = subprocess.Popen([sys.executable, "-c", _SLOW_SWEEP, str(table), str(out), *executor],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    parts = Path(str(out) + ".parts")
+    for _ in range(1200):  # wait (at most ~2 min) until a few chunks are on disk
+        if len(list(parts.glob("chunk_*.csv"))) >= 3 or proc.poll() is not None:
+            break
+        time.sleep(0.1)
+    assert proc.poll() is None, proc.stderr.read().decode()[-2000:]
+    return proc
+
+
+def _kill(proc):
+    proc.kill()
+    proc.wait()
+    proc.stderr.close()
+
+
+def _slow_sweep_here(table, out=None, **kw):
+    return design.sweep("sphere", {"radius_nm": np.linspace(5.0, 80.0, 60)}, np.linspace(400.0, 900.0, 101),
+                        material=nanoabs.load_table(table), chunk_size=1, progress=False, out=out, **kw)
+
+
+def test_killed_sweep_with_edited_material_file_is_refused_then_resumes(tmp_path):
+    # Source: contract (resume rule). A sweep process is killed (SIGKILL) mid-run; the user
+    # table it reads is edited; the resume must be refused, never mix rows of the old table.
+    # With the original content restored the resume is accepted and equals a fresh run exactly.
+    table, out = _user_table(tmp_path / "gold.csv"), tmp_path / "s.csv"
+    original = table.read_text()
+    proc = _start_slow_sweep(tmp_path, table, out)
+    _kill(proc)
+    assert not out.exists() and Path(str(out) + ".parts").is_dir()
+    _user_table(table, scale=1.01)
+    with pytest.raises(NanoabsError, match="different arguments or input data"):
+        _slow_sweep_here(table, out)
+    table.write_text(original)
+    got = _slow_sweep_here(table, out)
+    assert got.attrs["metadata"]["resumed_chunks"] >= 3
+    assert_frame_equal(_slow_sweep_here(table), got, check_exact=True)
+
+
+def test_second_writer_is_refused_and_a_killed_writers_lock_does_not_block(tmp_path, capsys):
+    # Source: contract. While one process streams a sweep into s.csv, a second writer (CLI,
+    # even with --force) gets a one-line error and exit code 2. After the first is killed,
+    # its lock (flock) is gone with it and the next run resumes.
+    from nanoabs.cli import main
+
+    table, out = _user_table(tmp_path / "gold.csv"), tmp_path / "s.csv"
+    proc = _start_slow_sweep(tmp_path, table, out)
+    try:
+        code = main(["sweep", "--shape", "sphere", "--param", "radius_nm=10", "--material", str(table),
+                     "--wl", "400:900:10", "-o", str(out), "--force", "--quiet"])
+        err = capsys.readouterr().err
+        assert code == 2 and "being written by another nanoabs process" in err and err.count("\n") == 1
+        assert Path(str(out) + ".parts").is_dir() and not out.exists()
+    finally:
+        _kill(proc)
+    got = _slow_sweep_here(table, out)
+    assert got.attrs["metadata"]["resumed_chunks"] >= 3
+    assert not Path(str(out) + ".lock").exists()
+
+
+def _alive(pid):
+    try:
+        with open(f"/proc/{pid}/stat") as fh:
+            return fh.read().split(")")[-1].split()[0] != "Z"  # a zombie has exited
+    except FileNotFoundError:
+        return False
+
+
+@pytest.mark.skipif(not Path("/proc/self/task").is_dir(), reason="reads the process tree from /proc")
+def test_killed_sweep_leaves_no_pool_workers(tmp_path):
+    # Source: contract. The two workers of executor="processes" exit on their own when the
+    # sweep process that owns them is killed (SIGKILL, so no shutdown runs).
+    import time
+
+    table, out = _user_table(tmp_path / "gold.csv"), tmp_path / "s.csv"
+    proc = _start_slow_sweep(tmp_path, table, out, "processes")
+    try:
+        kids = [int(k) for k in Path(f"/proc/{proc.pid}/task/{proc.pid}/children").read_text().split()]
+    finally:
+        _kill(proc)
+    assert len(kids) == 2
+    for _ in range(100):
+        if not any(_alive(k) for k in kids):
+            break
+        time.sleep(0.1)
+    assert not any(_alive(k) for k in kids)
+
+
+def test_stale_or_damaged_parts_are_recomputed_and_temporaries_cleaned(tmp_path, monkeypatch):
+    # Source: the uninterrupted in-memory sweep (exact). Parts of the same run that are truncated,
+    # edited or lack their sidecar are recomputed; temporaries of a killed writer are removed.
+    ref = _sphere_sweep(chunk_size=2)
+    real = _sweep._compute_chunk
+    out = tmp_path / "run.csv"
+
+    def stop(plan, index):
+        if index >= 5:
+            raise KeyboardInterrupt
+        return real(plan, index)
+
+    monkeypatch.setattr(_sweep, "_compute_chunk", stop)
+    with pytest.raises(KeyboardInterrupt):
+        _sphere_sweep(chunk_size=2, out=out)
+    parts = Path(str(out) + ".parts")
+    p0, p1, p2 = (parts / f"chunk_{i:06d}.csv" for i in range(3))
+    p0.write_text(p0.read_text()[:-40])  # truncated
+    p1.write_text(p1.read_text().replace("Au", "Ag", 1))  # edited, same length
+    (parts / "chunk_000002.json").unlink()  # no sidecar
+    info = json.loads((parts / "chunk_000003.json").read_text())
+    info["identity"] = "0" * 64  # written by another run
+    (parts / "chunk_000003.json").write_text(json.dumps(info))
+    for junk in (tmp_path / ".run.csv.x1.tmp", tmp_path / ".run.json.x2.tmp", parts / ".chunk_000009.csv.x.tmp"):
+        junk.write_text("junk")
+    rerun = _count_chunks(monkeypatch, real)
+    got = _sphere_sweep(chunk_size=2, out=out)
+    assert rerun == [0, 1, 2, 3, 5, 6]
+    assert_frame_equal(ref, got, check_exact=True)
+    assert_frame_equal(ref, read_export(out)[0], check_exact=True)
+    assert not list(tmp_path.glob(".*.tmp")) and not parts.exists()
+
+
+def test_identity_changes_with_material_content_and_settings():
+    # Source: contract. The sweep identity differs whenever something that sets the numbers differs.
+    base = dict(material="Au", core="SiO2", medium="water", polarization="random", method="auto",
+                surface_damping=True, chunk_size=4)
+
+    def digest(**kw):
+        plan, _ = _sweep.validated_plan("sphere", {"radius_nm": [10.0, 20.0]}, WL, **{**base, **kw})
+        return _sweep._plan_hash(plan)
+
+    ref = digest()
+    assert digest() == ref
+    for change in ({"material": "Au:mcpeak-2015"}, {"medium": 1.34}, {"surface_damping": False},
+                   {"method": "quasistatic"}, {"chunk_size": 5}):
+        assert digest(**change) != ref, change
+
+
+def test_lock_without_flock_uses_an_exclusive_lock_file(tmp_path, monkeypatch):
+    # Source: contract of the fallback for platforms without fcntl.
+    from nanoabs import export
+
+    monkeypatch.setattr(export, "_HAVE_FLOCK", False)
+    target = tmp_path / "x.csv"
+    with export.exclusive_lock(target):
+        with pytest.raises(NanoabsError, match="another nanoabs process.*remove the lock file"):
+            with export.exclusive_lock(target):
+                pass
+    with export.exclusive_lock(target):
+        pass
+    assert not (tmp_path / "x.csv.lock").exists()
+
+
+def test_sizes_as_long_as_the_wavelength_grid_are_designs_not_a_diagonal():
+    # Source: nanoabs.spectrum of each particle on its own (rtol 1e-14). A size list with as many
+    # values as there are wavelengths is a list of designs; each gets its full spectrum.
+    wl = np.linspace(450.0, 700.0, 6)
+    radii = np.linspace(10.0, 60.0, wl.size)
+    df = design.sweep("sphere", {"radius_nm": radii}, wl, progress=False)
+    assert len(df) == radii.size * wl.size
+    for i, r in enumerate(radii):
+        s = nanoabs.spectrum(Sphere("Au", r), wl)
+        assert_allclose(df[df.design_id == i].sigma_abs_m2.to_numpy(), s.sigma_abs_m2, rtol=1e-14, atol=0)
+
+
+def test_cli_multi_parameter_sweep_reports_every_design(tmp_path, monkeypatch, capsys):
+    # Source: contract. Two swept parameters: one peak line per design, nothing averaged away.
+    from nanoabs.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    assert main("sweep --shape sphere --param radius_nm=10,30 --param material=Au,Ag --wl 400:700:5 "
+                "--quiet --plot m.png".split()) == 0
+    lines = [x for x in capsys.readouterr().out.splitlines() if x.startswith("design ")]
+    assert len(lines) == 4
+    # a 10 nm silver sphere peaks near 395 nm, below the window: reported as such, not as a peak
+    assert lines[1].startswith("design 1 (radius_nm = 10, material = Ag): rises beyond the short end")
+    assert (tmp_path / "m.png").exists()
 
 
 def test_over_memory_budget_returns_the_path(tmp_path):
@@ -210,7 +428,7 @@ def test_over_memory_budget_returns_the_path(tmp_path):
 
 def test_progress_bar_on_stderr_and_silenced(capsys, monkeypatch):
     # Source: contract — progress on stderr only; progress=False prints nothing.
-    monkeypatch.setattr(design, "_PROGRESS_DELAY_S", 0.0)
+    monkeypatch.setattr(_engine, "_PROGRESS_DELAY_S", 0.0)
     _sphere_sweep(chunk_size=5, progress=True)
     cap = capsys.readouterr()
     assert "sweep sphere" in cap.err and "3/3" in cap.err and cap.out == ""
@@ -262,7 +480,7 @@ def test_histogram_is_the_weighted_mean_of_single_spectra():
 def test_quadrature_reproduces_mean_and_relative_spread(kind):
     # Source: definition of the distributions — mean mu and E[x^2] = mu^2 (1 + s^2) for both
     # (log-normal: exp(2 mu_ln + 2 sigma_ln^2) with sigma_ln^2 = ln(1 + s^2)); rtol 1e-12.
-    x, w, dropped = design._quadrature(kind, 30.0, 0.1, 25)
+    x, w, dropped = _ensemble._quadrature(kind, 30.0, 0.1, 25)
     assert dropped < 1e-13
     assert np.sum(w * x) == pytest.approx(30.0, rel=1e-12)
     assert np.sum(w * x**2) == pytest.approx(30.0**2 * (1 + 0.1**2), rel=1e-12)
@@ -339,8 +557,9 @@ def test_search_injection_matches_the_hot_carrier_pipeline():
     # tabulated spectrum, which has sharp absorption bands); rtol 2e-3 (different trapezoid grids).
     lo, hi = 1000.0, 1200.0
     sun = nanoabs.illumination.solar("am1.5g")
+    # a gold sphere in water peaks near 530 nm, far from this band: peak_in_band=False keeps it ranked
     res = design.search((lo, hi), families=["sphere"], objective="injection", barrier_eV=0.8,
-                        illumination=sun, top=2, progress=False)
+                        illumination=sun, top=2, progress=False, peak_in_band=False)
     best = res.iloc[0]
     assert res.attrs["figure_of_merit"]["unit"] == "s^-1"
     p = Sphere("Au", best.radius_nm)
@@ -359,7 +578,7 @@ def test_search_injection_matches_the_hot_carrier_pipeline():
 def test_search_ranks_families_and_reports_columns(tmp_path):
     # Source: contract — ranked by figure of merit, best of every family present, units given.
     res = design.search(design.band(lo_nm=780.0, hi_nm=820.0), families=["sphere", "shell", "rod"],
-                        objective="q_abs", top=6, progress=False)
+                        objective="q_abs", top=6, progress=False, peak_in_band=False)
     assert list(res["rank"]) == list(range(1, len(res) + 1))
     assert np.all(np.diff(res.figure_of_merit.to_numpy()) <= 0)
     assert set(res.family) == {"sphere", "shell", "rod"}
@@ -434,3 +653,54 @@ def test_cli_sweep_and_search(tmp_path, monkeypatch, capsys):
     capsys.readouterr()
     assert main("search --band 700:800 --objective injection --quiet".split()) == 2
     assert "barrier" in capsys.readouterr().err
+
+
+# -- issue: the search answers the real question (peaks in the band, several bands, validity) --------
+
+
+def test_search_rows_peak_inside_the_band_and_carry_method_validity_and_recheck():
+    # Contract: with the default peak_in_band=True every ranked row's refined absorption peak lies
+    # in the band; each row names its coarse method, its validity and the recheck by the best solver.
+    lo, hi = 1250.0, 1550.0
+    res = design.search((lo, hi), families=["sphere", "shell", "rod"], medium="Si", top=6, progress=False)
+    assert len(res) > 0
+    assert ((res.peak_wavelength_nm >= lo) & (res.peak_wavelength_nm <= hi)).all()
+    assert (res.peak_in_band == "yes").all()
+    assert set(res.method) <= {"mie", "mlwa"} and res.validity.str.len().gt(0).all()
+    spheres = res[res.family.isin(["sphere", "shell"])]
+    # spheres and shells: coarse and recheck are the same exact method, so the recheck reproduces the row
+    np.testing.assert_allclose(spheres.recheck_figure_of_merit, spheres.figure_of_merit, rtol=1e-9)
+
+
+def test_search_two_bands_worst_band_is_the_minimum():
+    bands = [(1260.0, 1360.0), (1530.0, 1565.0)]
+    res = design.search(bands, families=["shell"], medium="Si", top=4, progress=False, peak_in_band=False,
+                        objective="selectivity")
+    per = res[["figure_of_merit_band_1", "figure_of_merit_band_2"]].to_numpy()
+    np.testing.assert_allclose(res.figure_of_merit, per.min(axis=1), rtol=1e-12)
+    assert res.attrs["metadata"]["bands_nm"] == [list(b) for b in bands]
+    mean = design.search(bands, families=["shell"], medium="Si", top=4, progress=False, peak_in_band=False,
+                         objective="selectivity", combine="mean")
+    per = mean[["figure_of_merit_band_1", "figure_of_merit_band_2"]].to_numpy()
+    np.testing.assert_allclose(mean.figure_of_merit, per.mean(axis=1), rtol=1e-12)
+
+
+@pytest.mark.parametrize("bad, needle", [
+    ([(1260.0, 1360.0), (1300.0, 1565.0)], "overlap"),
+    ([], "band_nm"),
+    ("1260:1360", "band_nm"),
+])
+def test_search_band_inputs_refused(bad, needle):
+    with pytest.raises(NanoabsError, match=needle):
+        design.search(bad, families=["sphere"], progress=False)
+
+
+def test_cli_search_contract_two_bands(tmp_path, capsys):
+    from nanoabs.cli import main
+
+    out = tmp_path / "ranked.csv"
+    code = main(["search", "--band", "1260:1360", "--band", "1530:1565", "--families", "sphere,shell,rod",
+                 "--medium", "Si", "--objective", "selectivity", "-o", str(out), "--top", "4", "--quiet"])
+    assert code == 0 and out.exists()
+    frame, meta = nanoabs.read_export(out)
+    assert {"figure_of_merit_band_1", "figure_of_merit_band_2", "validity", "method"} <= set(frame.columns)

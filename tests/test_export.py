@@ -80,7 +80,9 @@ def test_round_trip_is_exact(tmp_path, name):
     for col in ("wavelength_nm", "sigma_abs_m2"):  # bit-identical, incl. the sign of -0.0
         assert np.array_equal(back[col].to_numpy().view(np.int64), frame[col].to_numpy().view(np.int64))
     assert header["metadata"] == EXPECTED_METADATA
-    assert header["format"] == export.FORMAT_NAME and header["format_version"] == 1
+    assert header["format"] == export.FORMAT_NAME and header["format_version"] == 2
+    prov = header["provenance"]
+    assert prov["dependencies"]["numpy"] == np.__version__ and prov["python"] and prov["platform"]
     assert header["rows"] == 6
     assert [(c["name"], c["unit"]) for c in header["columns"]] == [(c, UNITS[c]) for c in frame.columns]
     assert header["data_file"] == ("det.csv" if name.endswith(".csv") else None)
@@ -238,3 +240,31 @@ def test_read_detects_mismatch_with_sidecar(tmp_path):
     sidecar.write_text(json.dumps(doc), encoding="utf-8")
     with pytest.raises(DataError, match="format = 'something-else'"):
         read_export(target)
+
+
+def test_reads_format_version_1_and_refuses_unknown(tmp_path):
+    # Contract: version-1 files (no provenance block) stay readable; an unknown version is refused.
+    frame = _frame()
+    write_export(frame, tmp_path / "v.csv", metadata=_metadata(), units=UNITS)
+    side = tmp_path / "v.json"
+    doc = json.loads(side.read_text())
+    doc["format_version"] = 1
+    doc.pop("provenance")
+    side.write_text(json.dumps(doc))
+    back, header = read_export(tmp_path / "v.csv")
+    assert_frame_equal(back, frame, check_exact=True) and header["format_version"] == 1
+    doc["format_version"] = 3
+    side.write_text(json.dumps(doc))
+    with pytest.raises(DataError, match="format_version"):
+        read_export(tmp_path / "v.csv")
+
+
+def test_fast_reader_detects_a_short_line(tmp_path):
+    # a line missing fields would be NaN-filled by a plain pandas read: it must be an error instead
+    frame = _frame()
+    write_export(frame, tmp_path / "s.csv", metadata=_metadata(), units=UNITS)
+    lines = (tmp_path / "s.csv").read_text().splitlines()
+    lines[3] = ",".join(lines[3].split(",")[:2])
+    (tmp_path / "s.csv").write_text("\n".join(lines) + "\n")
+    with pytest.raises(DataError, match="line 4"):
+        read_export(tmp_path / "s.csv")

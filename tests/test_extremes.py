@@ -70,7 +70,7 @@ def test_quasistatic_near_pole_finite():
 
     eps_m = 1.77
     k = 2 * np.pi * 1.33 / 500.0
-    for loss in (1e-3, 1e-8, 1e-12):
+    for loss in (1e-3, 1e-8, 1e-10):  # below POLE_RTOL * |eps| the static call refuses (see test_fuzz_inputs)
         eps = -2 * eps_m + 1j * loss
         a_s = polarizability_sphere(eps, eps_m, 10.0)
         a_c = polarizability_sphere_mlwa(eps, eps_m, 10.0, k)

@@ -269,9 +269,10 @@ def test_csv_round_trip(tmp_path):
 BAD_CSV = {
     "missing_column": ("wavelength_nm,irradiance\n400,1\n500,2\n", "irradiance_W_m2_nm"),
     "no_header": ("400,1\n500,2\n", "missing column"),
-    "non_numeric": ("wavelength_nm,irradiance_W_m2_nm\n400,1\n500,abc\n", "abc"),
-    "nan": ("wavelength_nm,irradiance_W_m2_nm\n400,nan\n500,2\n", "nan"),
-    "inf": ("wavelength_nm,irradiance_W_m2_nm\n400,1\ninf,2\n", "inf"),
+    # raw cell text is never quoted (a file's contents stay out of messages): position + reason
+    "non_numeric": ("wavelength_nm,irradiance_W_m2_nm\n400,1\n500,abc\n", "line 3, column 'irradiance_W_m2_nm': not a number"),
+    "nan": ("wavelength_nm,irradiance_W_m2_nm\n400,nan\n500,2\n", "not finite"),
+    "inf": ("wavelength_nm,irradiance_W_m2_nm\n400,1\ninf,2\n", "line 3, column 'wavelength_nm': not finite"),
     "negative": ("wavelength_nm,irradiance_W_m2_nm\n400,1\n500,-2\n", "-2"),
     "decreasing": ("wavelength_nm,irradiance_W_m2_nm\n400,1\n390,2\n", "390"),
     "duplicate": ("wavelength_nm,irradiance_W_m2_nm\n400,1\n400,2\n", "strictly increasing"),

@@ -26,7 +26,7 @@ def test_import_nanoabs_loads_no_heavy_module(fresh_python):
 
 
 def test_small_sphere_spectrum_does_not_load_numba(fresh_python):
-    """A small grid uses the numpy Mie path unless the kernel is already loaded (MIN_POINTS)."""
+    """A grid below MIN_POINTS uses the numpy Mie path, so a small CLI command never imports numba."""
     loaded = _modules_after(
         fresh_python,
         "import numpy as np, nanoabs\n"

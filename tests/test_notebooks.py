@@ -23,7 +23,6 @@ def test_notebook_runs(path, monkeypatch):
     root = str(NB_DIR.parent)
     monkeypatch.setenv("PYTHONPATH", os.pathsep.join([root] + [os.path.abspath(p) for p in
                                                               os.environ.get("PYTHONPATH", "").split(os.pathsep) if p]))
-    monkeypatch.setenv("MPLBACKEND", "Agg")
     nb = nbformat.read(path, as_version=4)
     client = nbclient.NotebookClient(nb, timeout=300, kernel_name="python3",
                                      resources={"metadata": {"path": str(NB_DIR)}})
@@ -31,3 +30,6 @@ def test_notebook_runs(path, monkeypatch):
     errors = [o for c in nb.cells if c.cell_type == "code" for o in c.get("outputs", [])
               if o.get("output_type") == "error"]
     assert not errors
+    images = [o for c in nb.cells if c.cell_type == "code" for o in c.get("outputs", [])
+              if "image/png" in o.get("data", {})]
+    assert images, f"{path.name} shows no figure"

@@ -74,6 +74,28 @@ API_CASES = [
     ("negative DL parameter", lambda: nanoabs.DrudeLorentz(1.0, 9.0, -0.05), ">= 0"),
     ("export bad suffix", lambda: nanoabs.write_export(nanoabs.spectrum(Sphere("Au", 10), WL).to_frame(),
                                                        "x.txt", metadata={}, units={}), "suffix"),
+    # bounded work (design module: sizes up to 1e5 nm, sweeps up to max_points = 1e8 points)
+    ("sweep radius above bound", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [1e6]}, WL), "up to 100000 nm"),
+    ("sweep radius 1e30", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [1e30]}, WL), "allowed range"),
+    ("sweep 2.7e10 designs", lambda: nanoabs.design.sweep("ellipsoid", {k: np.linspace(5, 50, 3000) for k in
+                                                                        ("a_nm", "b_nm", "c_nm")}, WL),
+     "max_points"),
+    ("sweep over explicit bound", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10, 20]}, WL,
+                                                               max_points=10), "max_points"),
+    ("sweep max_points bool", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL, max_points=True),
+     "max_points"),
+    ("search too many starts", lambda: nanoabs.design.search((700, 800), n_starts=500), "n_starts"),
+    ("ensemble too many nodes", lambda: nanoabs.design.ensemble_average("sphere", {"radius_nm": 20},
+                                                                        {"radius_nm": 0.1}, WL, n_samples=10**6),
+     "n_samples"),
+    ("nominal radius above bound", lambda: nanoabs.design.ensemble_average("sphere", {"radius_nm": 1e7}, {}, WL),
+     "allowed range"),
+    ("sweep alias twice", lambda: nanoabs.design.sweep("shell", {"core_radius_nm": [20], "thickness_nm": [5],
+                                                                 "shell": ["Au"], "material": ["Ag"]}, WL),
+     "twice"),
+    ("sweep executor unknown", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL,
+                                                            executor="threads"), "executor"),
+    ("sweep out not csv", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL, out="x.json"), ".csv"),
 ]
 
 
@@ -107,6 +129,22 @@ CLI_CASES = [
     ("run missing file", "run missing.toml -o out", "not found"),
     ("materials unknown", "materials show Xx", "unknown material"),
     ("unknown command", "frobnicate", "invalid choice"),
+    ("sweep repeated param", "sweep --shape sphere --param radius_nm=10 --param radius_nm=20", "given twice"),
+    ("sweep repeated alias", "sweep --shape shell --param core_radius_nm=20 --param thickness_nm=5 "
+                             "--param shell=Au --param material=Ag", "twice"),
+    ("sweep radius 1e30", "sweep --shape sphere --param radius_nm=1e30", "allowed range"),
+    ("sweep 2.7e10 designs", "sweep --shape ellipsoid --param a_nm=1:3000:1 --param b_nm=1:3000:1 "
+                             "--param c_nm=1:3000:1", "max_points"),
+    ("sweep max points", "sweep --shape sphere --param radius_nm=10:50:10 --max-points 10", "max_points"),
+    ("sweep param no value", "sweep --shape sphere --param radius_nm", "NAME=VALUES"),
+    ("sweep no param", "sweep --shape sphere", "at least one --param"),
+    ("sweep bad material list", "sweep --shape sphere --param radius_nm=10 --param material=Au,Xx",
+     "unknown material"),
+    ("sweep missing table", "sweep --shape sphere --param radius_nm=10 --material nothere.csv", "not found"),
+    ("sweep out dir missing", "sweep --shape sphere --param radius_nm=10 -o nodir/s.csv", "does not exist"),
+    ("search too many starts top", "search --band 700:800 --top 0", "top"),
+    ("run debug after command", "run missing.toml -o out --debug", "not found"),
+    ("demo empty output", "demo -o", "expected one argument"),
 ]
 
 
@@ -122,7 +160,7 @@ def test_cli_bad_input(what, argv, needle, tmp_path, monkeypatch, capsys):
 
 
 def test_at_least_forty_distinct_cases():
-    assert len(API_CASES) + len(CLI_CASES) >= 40
+    assert len(API_CASES) + len(CLI_CASES) + len(STUDY_CASES) + len(RUN_CASES) >= 90
 
 
 # -- study files --------------------------------------------------------------
@@ -146,6 +184,14 @@ material = "Au"
 radius_nm = 20
 """
 
+SWEEP = """
+[[sweep]]
+name = "radius"
+shape = "sphere"
+parameter = "radius_nm"
+values_nm = [10, 20, 30]
+"""
+
 STUDY_CASES = [
     ("malformed TOML", GOOD + "\n[[[", "malformed TOML"),
     ("unknown section", GOOD + "\n[detectr]\nx = 1\n", "did you mean 'detector'"),
@@ -157,6 +203,23 @@ STUDY_CASES = [
     ("no barrier", GOOD.replace("barrier_eV = 0.8", ""), "barrier"),
     ("reversed wavelengths", GOOD.replace("stop_nm = 900", "stop_nm = 400"), "start < stop"),
     ("particle as table", GOOD.replace("[[particle]]", "[particle]"), "[[particle]]"),
+    ("inf radius", GOOD.replace("radius_nm = 20", "radius_nm = inf"), "finite"),
+    ("nan radius", GOOD.replace("radius_nm = 20", "radius_nm = nan"), "finite"),
+    ("radius above bound", GOOD.replace("radius_nm = 20", "radius_nm = 1e30"), "allowed range"),
+    ("inf barrier", GOOD.replace("barrier_eV = 0.8", "barrier_eV = inf"), "finite"),
+    ("inf wavelength", GOOD.replace("stop_nm = 900", "stop_nm = inf"), "finite"),
+    ("string in semi-axes", GOOD.replace('shape = "sphere"', 'shape = "ellipsoid"').replace(
+        "radius_nm = 20", 'semi_axes_nm = [20, "x", 10]'), "must be a number"),
+    ("bool in semi-axes", GOOD.replace('shape = "sphere"', 'shape = "ellipsoid"').replace(
+        "radius_nm = 20", "semi_axes_nm = [20, true, 10]"), "must be a number"),
+    ("string in sweep values", GOOD + SWEEP.replace("[10, 20, 30]", '[10, "a"]'), "must be a number"),
+    ("inf in sweep values", GOOD + SWEEP.replace("[10, 20, 30]", "[10, inf]"), "finite"),
+    ("empty sweep values", GOOD + SWEEP.replace("[10, 20, 30]", "[]"), "empty"),
+    ("sweep values above bound", GOOD + SWEEP.replace("[10, 20, 30]", "[10, 1e9]"), "allowed range"),
+    ("number in families", GOOD + '[search]\nband_nm = [700, 800]\nfamilies = [1]\n', "must be a string"),
+    ("string in band", GOOD + '[search]\nband_nm = [700, "x"]\n', "must be a number"),
+    ("inf in band", GOOD + '[search]\nband_nm = [700, inf]\n', "finite"),
+    ("number in formats", GOOD + "[output]\nformats = [3]\n", "must be a string"),
 ]
 
 
@@ -167,6 +230,54 @@ def test_study_validation(what, text, needle, tmp_path):
     with pytest.raises(NanoabsError) as e:
         load_study(p)
     assert needle in str(e.value)
+
+
+def test_byte_order_mark_is_accepted(tmp_path):
+    p = tmp_path / "s.toml"
+    p.write_bytes(b"\xef\xbb\xbf" + GOOD.encode())
+    assert load_study(p)["particle"][0]["radius_nm"] == 20
+
+
+RUN_CASES = [  # (what, study text, extra argv, message): validated before anything is written
+    ("sweep parameter unknown", GOOD + SWEEP.replace('"radius_nm"', '"radius"'), [], "parameter"),
+    ("sweep parameter of other shape", GOOD + SWEEP.replace('"radius_nm"', '"length_nm"'), [], "allowed for shape"),
+    ("sweep material unknown", GOOD + SWEEP + 'material = "Xx"\n', [], "unknown material"),
+    ("sweep outside data", GOOD.replace("start_nm = 500", "start_nm = 100") + SWEEP, [], "outside"),
+    ("search band outside data", GOOD + "[search]\nband_nm = [100, 150]\n", [], "outside the wavelengths"),
+    ("search family unknown", GOOD + '[search]\nband_nm = [700, 800]\nfamilies = ["cube"]\n', [], "family"),
+    ("search objective unknown", GOOD + '[search]\nband_nm = [700, 800]\nobjective = "x"\n', [], "objective"),
+    ("search top zero", GOOD + "[search]\nband_nm = [700, 800]\ntop = 0\n", [], "top"),
+    ("output format", GOOD + '[output]\nformats = ["gif"]\n', [], "gif"),
+    ("empty output", GOOD, ["-o", ""], "folder name"),
+    ("output is a file", GOOD, ["-o", "afile"], "not a folder"),
+    ("output parent missing", GOOD, ["-o", "no/such/dir"], "does not exist"),
+    ("debug after command", GOOD.replace("radius_nm = 20", "radius_nm = -20"), ["--debug"], "radius"),
+]
+
+
+@pytest.mark.parametrize("what,text,extra,needle", RUN_CASES, ids=[c[0] for c in RUN_CASES])
+def test_run_validates_everything_before_writing(what, text, extra, needle, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "s.toml").write_text(text)
+    (tmp_path / "afile").write_text("x")
+    argv = ["run", "s.toml"] + (extra if "-o" in extra else ["-o", "rep"] + extra) + ["--quiet"]
+    code = main(argv)
+    err = capsys.readouterr().err
+    assert code in (2, 3), err
+    assert needle in err, err
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["afile", "s.toml"]
+
+
+@pytest.mark.skipif(not hasattr(__import__("os"), "geteuid") or __import__("os").geteuid() == 0,
+                    reason="root can write into read-only folders")
+def test_run_into_read_only_parent_is_one_line(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "s.toml").write_text(GOOD)
+    ro = tmp_path / "ro"
+    ro.mkdir(mode=0o500)
+    assert main(["run", "s.toml", "-o", "ro/rep", "--quiet"]) == 2
+    assert "not writable" in capsys.readouterr().err
 
 
 def test_study_cli_exit_code_and_nothing_written(tmp_path, monkeypatch, capsys):
@@ -221,3 +332,56 @@ def test_fuzz_csv_spectrum_reader(header, rows, trailer, tmp_path):
     lo, hi = src.range_nm
     v = src.spectral_irradiance(np.linspace(lo, hi, 5))
     assert np.all(np.isfinite(v)) and np.all(v >= 0)
+
+
+# -- fuzz: the sweep CLI and the design constructors ------------------------------
+
+_param_values = st.sampled_from(["10", "10,20", "5:25:10", "1e30", "nan", "inf", "-1", "0", "", "x", "1:2",
+                                 "3:1:1", "1e-300", "Au", "Au,Ag", "Au,Xx", "1.33,1.5", "20:20.2:0.1"])
+_param_names = st.sampled_from(["radius_nm", "core_radius_nm", "thickness_nm", "length_nm", "diameter_nm",
+                                "aspect_ratio", "a_nm", "b_nm", "c_nm", "medium_index", "material", "core",
+                                "shell", "radius", ""])
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(shape=st.sampled_from(["sphere", "shell", "spheroid", "ellipsoid", "cube"]),
+       params=st.lists(st.tuples(_param_names, _param_values), max_size=4),
+       extra=st.lists(st.sampled_from(["--polarization", "long", "--method", "mie", "--max-points", "3",
+                                       "--no-surface-damping", "--material", "Ag", "--core", "x.csv"]),
+                      max_size=3))
+def test_fuzz_sweep_cli(shape, params, extra, tmp_path, capsys):
+    # Either a result (exit 0) or the tool's own one-line error (exit 2 or 3); never an internal error.
+    argv = ["sweep", "--shape", shape, "--wl", "500:540:20", "--quiet"] + extra
+    for name, value in params:
+        argv += ["--param", f"{name}={value}"]
+    code = main(argv)
+    err = capsys.readouterr().err
+    assert code in (0, 2, 3), err
+    if code:
+        assert err.count("\n") == 1 and "internal error" not in err, err
+
+
+_junk = st.one_of(st.none(), st.booleans(), st.integers(-3, 3), st.floats(allow_nan=True, allow_infinity=True),
+                  st.text(max_size=4), st.lists(st.floats(-5, 80), max_size=3), st.dictionaries(st.text(max_size=2),
+                                                                                                 st.integers(),
+                                                                                                 max_size=2),
+                  st.just(np.ones((2, 2))), st.just([[10.0, 20.0]]), st.just(["Au", 3]))
+
+
+@settings(max_examples=80, deadline=None)
+@given(shape=st.sampled_from(["sphere", "shell", "spheroid", "ellipsoid"]),
+       names=st.lists(_param_names, min_size=1, max_size=3), values=st.lists(_junk, min_size=3, max_size=3),
+       kw=st.sampled_from([{}, {"surface_damping": "no"}, {"material": None}, {"medium": [1.33]},
+                           {"chunk_size": 2.5}, {"polarization": None}, {"method": 3}, {"core": {}}]))
+def test_fuzz_design_constructors(shape, names, values, kw):
+    # design.sweep / ensemble_average with junk: a frame or a NanoabsError, never another exception.
+    params = dict(zip(names, values))
+    for call in (lambda: nanoabs.design.sweep(shape, params, [500.0, 540.0], progress=False, **kw),
+                 lambda: nanoabs.design.ensemble_average(shape, params, {}, [500.0, 540.0],
+                                                         **{k: v for k, v in kw.items() if k != "chunk_size"})):
+        try:
+            res = call()
+        except NanoabsError as exc:
+            assert "\n" not in str(exc)
+            continue
+        assert np.all(np.isfinite(res.sigma_abs_m2 if hasattr(res, "sigma_abs_m2") else res["sigma_abs_m2"]))

@@ -1,6 +1,7 @@
 """Study files and the demo report."""
 
 
+import numpy as np
 import pytest
 
 import nanoabs
@@ -25,6 +26,8 @@ def test_demo_report_has_all_files(tmp_path, capsys):
     text = (out / "summary.md").read_text()
     assert "Ranked designs" in text and "Cautions" in text and "laser" in text.lower()
     assert "fictional" in text
+    # the optical-constant datasets are cited (Johnson & Christy 1972 for the demo's gold)
+    assert "## Data sources" in text and "Johnson and R. W. Christy" in text
     # every CSV reads back through the export reader with its sidecar
     for csv in out.glob("*.csv"):
         df, meta = nanoabs.read_export(csv)
@@ -128,3 +131,108 @@ diameter_nm = 20
         assert f"E_F = {ef:g} eV" in name
         np.testing.assert_allclose(y, escape_cone_yield(photon_energy_eV(wl), 0.8, ef), rtol=1e-12)
     assert not any("Au" in n for n in labels)
+
+
+_SMALL = """
+[study]
+title = "names"
+[medium]
+index = 1.33
+[wavelengths]
+start_nm = 450
+stop_nm = 800
+step_nm = 10
+[illumination]
+kind = "flat"
+value_W_m2_nm = 1.0
+[detector]
+barrier_eV = 0.8
+[output]
+figures = false
+"""
+
+
+def test_report_names_are_unique_by_construction(tmp_path):
+    # Source: contract. Names that slug to the same 40 characters get suffixes; no file is overwritten.
+    long = "Gold sphere of the Marrowfield Photonics Lab, batch"
+    text = _SMALL + "".join(f'[[particle]]\nname = "{long} {k}"\nshape = "sphere"\nmaterial = "Au"\n'
+                            f"radius_nm = {r}\n" for k, r in (("A", 10), ("B", 20)))
+    text += (f'[[sweep]]\nname = "{long} C"\nshape = "sphere"\nparameter = "radius_nm"\nvalues_nm = [10, 20]\n')
+    p = tmp_path / "s.toml"
+    p.write_text(text)
+    run_study(p, tmp_path / "rep", progress=False)
+    stem = "gold_sphere_of_the_marrowfield_photonics"
+    a, _ = nanoabs.read_export(tmp_path / "rep" / f"{stem}_spectrum.csv")
+    b, _ = nanoabs.read_export(tmp_path / "rep" / f"{stem}_2_spectrum.csv")
+    assert (tmp_path / "rep" / f"{stem}_3_sweep.csv").exists()
+    s10 = nanoabs.spectrum(nanoabs.Sphere("Au", 10.0), np.arange(450, 801, 10.0), medium=1.33)
+    np.testing.assert_allclose(a.sigma_abs_m2, s10.sigma_abs_m2, rtol=1e-14)
+    assert b.sigma_abs_m2.max() > 2 * a.sigma_abs_m2.max()
+
+
+def test_shell_sweep_runs_and_matches_the_single_particle(tmp_path):
+    # Source: nanoabs.spectrum of the layered sphere built directly; rtol 1e-12 (CSV round trip).
+    p = tmp_path / "s.toml"
+    p.write_text(_SMALL + '[[sweep]]\nname = "shells"\nshape = "shell"\nparameter = "thickness_nm"\n'
+                          'values_nm = [5, 10]\ncore = "SiO2"\nshell = "Au"\ncore_radius_nm = 40\n')
+    run_study(p, tmp_path / "rep", progress=False)
+    df, meta = nanoabs.read_export(tmp_path / "rep" / "shells_sweep.csv")
+    s = nanoabs.spectrum(nanoabs.LayeredSphere("SiO2", 40.0, [("Au", 10.0)]), np.arange(450, 801, 10.0),
+                         medium=1.33)
+    np.testing.assert_allclose(df[df.thickness_nm == 10].sigma_abs_m2, s.sigma_abs_m2, rtol=1e-12)
+    assert "thickness_nm from 5 to 10 nm" in (tmp_path / "rep" / "summary.md").read_text()
+
+
+def test_failure_while_computing_leaves_no_report(tmp_path, monkeypatch):
+    # Source: contract. An error in the middle (after the particles were computed) leaves the
+    # output folder as it was, so the next run is not refused for a half-written folder.
+    import nanoabs.design as design
+
+    def broken(*a, **k):
+        raise RuntimeError("boom")
+
+    p = tmp_path / "s.toml"
+    p.write_text(_SMALL + '[[particle]]\nname = "p"\nshape = "sphere"\nmaterial = "Au"\nradius_nm = 20\n'
+                          "[search]\nband_nm = [600, 700]\n")
+    monkeypatch.setattr(design, "search", broken)
+    with pytest.raises(RuntimeError):
+        run_study(p, tmp_path / "rep", progress=False)
+    assert sorted(x.name for x in tmp_path.iterdir()) == ["s.toml"]
+
+
+def test_second_run_into_a_locked_folder_is_refused(tmp_path):
+    # Source: contract. A report folder being written by another process is refused at once.
+    from nanoabs.export import exclusive_lock
+
+    p = tmp_path / "s.toml"
+    p.write_text(_SMALL + '[[particle]]\nname = "p"\nshape = "sphere"\nmaterial = "Au"\nradius_nm = 20\n')
+    with exclusive_lock(tmp_path / "rep"):
+        with pytest.raises(nanoabs.NanoabsError, match="being written by another"):
+            run_study(p, tmp_path / "rep", progress=False)
+    (tmp_path / ".rep.x1.partial").mkdir()  # left by a killed run
+    run_study(p, tmp_path / "rep", progress=False)
+    assert (tmp_path / "rep" / "summary.md").exists()
+    assert sorted(x.name for x in tmp_path.iterdir()) == ["rep", "s.toml"]
+
+
+def test_large_study_sweep_is_reduced_from_the_streamed_file(tmp_path, monkeypatch):
+    # Source: an in-memory design.sweep of the same designs (peaks exact on the grid). The study
+    # sweep is streamed (never returned as a frame) and its map keeps at most _MAP_ROWS designs.
+    import nanoabs.study as study
+
+    monkeypatch.setattr(study, "_MAP_ROWS", 7)
+    values = [float(v) for v in np.linspace(60.0, 10.0, 30)]  # descending on purpose
+    p = tmp_path / "s.toml"
+    p.write_text(_SMALL.replace("figures = false", "figures = true") +
+                 '[[sweep]]\nname = "r"\nshape = "sphere"\nparameter = "radius_nm"\n'
+                 f"values_nm = {values}\n")
+    run_study(p, tmp_path / "rep", progress=False)
+    wl = np.arange(450, 801, 10.0)
+    ref = nanoabs.design.sweep("sphere", {"radius_nm": values}, wl, medium=1.33, progress=False)
+    v, peaks, fom, map_vals, grid, step = study._sweep_reduced(tmp_path / "rep" / "r_sweep.csv", "radius_nm",
+                                                               30, wl, None)
+    sig = ref.sigma_abs_m2.to_numpy().reshape(30, wl.size)[::-1]
+    np.testing.assert_array_equal(v, np.sort(values))
+    np.testing.assert_array_equal(peaks, wl[np.argmax(sig, axis=1)])
+    assert step == 5 and grid.shape == (6, wl.size) and np.all(np.diff(map_vals) > 0)
+    assert (tmp_path / "rep" / "r_map.png").exists()

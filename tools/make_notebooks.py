@@ -21,9 +21,8 @@ A worked example in an invented scenario: the *Marrowfield Photonics Lab* (ficti
 particles buried in n-type silicon to absorb between 1250 and 1550 nm, where silicon is transparent.
 We compare shape families, map how the resonance moves with size, rank designs for the band, and
 look at how a realistic size spread (5–15 %, common practice) broadens and lowers the peak."""),
-    ("code", """import numpy as np
-import matplotlib
-matplotlib.use("Agg")
+    ("code", """%matplotlib inline
+import numpy as np
 import matplotlib.pyplot as plt
 import nanoabs
 from nanoabs import design
@@ -48,9 +47,11 @@ ax.set_xlabel("wavelength [nm]"); ax.set_ylabel("absorption cross-section [nm²]
                    wl, material="Au", medium=si, polarization="long", progress=False)
 frame = res.frame if hasattr(res, "frame") else res
 grid = frame.pivot_table(index="length_nm", columns="wavelength_nm", values="sigma_abs_m2")
-peaks = grid.columns.values[grid.values.argmax(axis=1)]
-for L, pk in zip(grid.index, peaks):
-    print(f"length {L:5.0f} nm -> peak {pk:6.0f} nm")"""),
+from nanoabs.plotting import plot_map
+fig, ax = plt.subplots()
+plot_map(grid.columns.values, grid.index.values, grid.values * 1e18, param_label="rod length [nm]",
+         value_label="σ_abs [nm²]", band=band, ax=ax)
+ax.set_title("Au rods (20 nm diameter) in Si, field along the rod");"""),
     ("md", "## 3. Ranked designs for the band"),
     ("code", """ranked = design.search(band, families=["sphere", "shell", "rod"], objective="absorbed_fraction",
                        materials=["Au"], medium=si, max_size_nm=200, min_shell_nm=5, top=5, progress=False)
@@ -73,9 +74,11 @@ The `hot-carriers` export is a CSV (SI units in the column names) with a JSON si
 records every input. Here we write one for an invented design — gold rods in silicon under an
 invented 1310 nm test laser — read it back, and use it in a toy device model: photocurrent into
 a transimpedance amplifier, and the array responsivity across the band."""),
-    ("code", """import json, tempfile
+    ("code", """%matplotlib inline
+import json, tempfile
 from pathlib import Path
 import numpy as np
+import matplotlib.pyplot as plt
 import nanoabs
 from nanoabs import illumination as il
 
@@ -102,7 +105,16 @@ power_W = 2.0e3 * area_m2                       # the same 2 kW/m^2 as the expor
 i13 = np.interp(1310.0, frame.wavelength_nm, frame.responsivity_A_W) * power_W
 print(f"photocurrent at 1310 nm: {i13:.3e} A -> output {i13 * feedback_ohm * 1e3:.3f} mV")
 band = (frame.wavelength_nm >= 1250) & (frame.wavelength_nm <= 1550)
-print(f"mean responsivity 1250-1550 nm: {frame.responsivity_A_W[band].mean():.3e} A/W")"""),
+print(f"mean responsivity 1250-1550 nm: {frame.responsivity_A_W[band].mean():.3e} A/W")
+fig, ax = plt.subplots()
+ax.plot(frame.wavelength_nm, frame.responsivity_A_W * 1e3)
+ax.axvspan(1250, 1550, color="0.9", zorder=0, label="target band")
+ax.set_xlabel("wavelength [nm]"); ax.set_ylabel("array responsivity [mA/W]"); ax.legend();"""),
+    ("md", """## A lookup table for a circuit simulator
+Two columns, one header line: most circuit simulators read this as a piecewise-linear table."""),
+    ("code", """from nanoabs.handoff import responsivity_table
+table = responsivity_table(frame.wavelength_nm, frame.responsivity_A_W, work / "responsivity.csv")
+print(table.read_text().splitlines()[:3])"""),
 ]
 
 FIT = [
@@ -112,8 +124,10 @@ Films grown in your own lab rarely match handbook data. Here we fit a passive Dr
 to an ellipsometry table (`data/film_ellipsometry.csv`, an invented gold film: values made by
 `tools/make_notebooks.py` from a model plus 1 % noise, not a measurement), compare it with Johnson &
 Christy, and use the fitted film in a spectrum."""),
-    ("code", """from pathlib import Path
+    ("code", """%matplotlib inline
+from pathlib import Path
 import numpy as np
+import matplotlib.pyplot as plt
 import nanoabs
 
 here = Path.cwd()
@@ -134,7 +148,9 @@ for w, a, b in zip(grid, res.model.permittivity(grid), jc.permittivity(grid)):
                           surface_damping=False)
 s_jc = nanoabs.spectrum(nanoabs.Sphere("Au", 20.0), np.arange(460, 901, 2.0), medium="water",
                         surface_damping=False)
-print(f"peak with film data: {s_film.peak_wavelength_nm():.1f} nm; with J&C: {s_jc.peak_wavelength_nm():.1f} nm")"""),
+print(f"peak with film data: {s_film.peak_wavelength_nm():.1f} nm; with J&C: {s_jc.peak_wavelength_nm():.1f} nm")
+ax = s_film.plot(label="fitted film")
+s_jc.plot(ax=ax, label="Johnson & Christy");"""),
 ]
 
 

@@ -1,0 +1,113 @@
+"""Device-model hand-off: carrier generation inside the particle, and lookup tables for circuits.
+
+A device (drift–diffusion) simulator wants the generation rate G of electron–hole pairs per
+volume and time at each point of the metal; a circuit simulator wants the responsivity as a
+two-column lookup table. Both come from quantities the package already computes:
+
+* ``G(r) = p(r) / (h c / λ)`` with ``p(r)`` the absorbed power density of
+  :func:`nanoabs.detector.absorbed_power_density` (internal Mie fields; Bohren & Huffman
+  1983, sec. 4.4): every absorbed photon makes one electron–hole pair (common practice; the
+  hot-carrier estimate decides how many of them cross the barrier). Its volume integral
+  equals the absorbed photon rate σ_abs I₀ λ/(h c).
+* the responsivity table is ``wavelength_nm, responsivity_A_W`` as plain CSV with a one-line
+  header, which SPICE-family simulators read as a piecewise-linear table.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ._errors import NanoabsError, check_positive
+from .drude_lorentz import HC_EV_NM
+
+__all__ = ["absorbed_photon_rate", "generation_profile", "responsivity_table"]
+
+_EV_J = 1.602176634e-19  # elementary charge [C] (exact, SI 2019)
+
+#: Units of the generation-profile columns.
+GENERATION_UNITS = {"wavelength_nm": "nm", "radius_nm": "nm", "cell_volume_nm3": "nm^3",
+                    "absorbed_power_density_W_m3": "W m^-3",
+                    "generation_rate_cm3_s": "cm^-3 s^-1"}
+
+
+def absorbed_photon_rate(spec, irradiance_W_m2):
+    """Absorbed photons per second per particle, σ_abs I₀ λ/(h c) [s⁻¹], at each wavelength."""
+    photon_J = HC_EV_NM / spec.wavelength_nm * _EV_J
+    return spec.sigma_abs_m2 * irradiance_W_m2 / photon_J
+
+
+def generation_profile(spec, particle, irradiance_W_m2, *, n_points: int = 50):
+    """Generation rate G [cm⁻³ s⁻¹] in radial cells inside a (layered) sphere.
+
+    Parameters
+    ----------
+    spec : Spectrum
+        Spectrum of ``particle`` (one particle, W wavelengths).
+    particle : Sphere or LayeredSphere
+    irradiance_W_m2 : float or array (W,)
+        Incident irradiance at each wavelength [W m⁻²].
+    n_points : int
+        Radial cells per layer (equal width) [1].
+
+    Returns
+    -------
+    pandas.DataFrame
+        Long format, one row per (wavelength, cell): :data:`GENERATION_UNITS` columns.
+        ``radius_nm`` is the cell centre; G and the power density are cell averages of the
+        angle-averaged profile (4-point Gauss–Legendre in r² dr inside each cell), so
+        Σ G V_cell reproduces the absorbed photon rate; ``cell_volume_nm3`` is given.
+    """
+    import pandas as pd
+
+    from .detector import absorbed_power_density
+
+    if particle.shape not in ("sphere", "layered sphere"):
+        raise NanoabsError("generation profile: defined for spheres and layered spheres (an ellipsoid's "
+                           "quasi-static internal field is uniform: G = absorbed photon rate / volume)")
+    if not (isinstance(n_points, (int, np.integer)) and not isinstance(n_points, bool) and 2 <= n_points <= 2000):
+        raise NanoabsError(f"points = {n_points!r}: must be an integer from 2 to 2000")
+    I0 = check_positive("irradiance", irradiance_W_m2, unit="W/m^2")
+    lo, hi = _layer_cells(particle, n_points)
+    t, w = np.polynomial.legendre.leggauss(4)
+    half = 0.5 * (hi - lo)
+    r = 0.5 * (hi + lo)[:, None] + half[:, None] * t[None, :]  # (C, 4) nodes
+    wr2 = half[:, None] * w[None, :] * r**2  # weights of ∫ f r² dr
+    p = absorbed_power_density(spec, particle, r.ravel(), I0).reshape(spec.wavelength_nm.size, *r.shape)
+    shell = (hi**3 - lo**3) / 3.0  # ∫ r² dr over the cell
+    p_avg = np.einsum("wcq,cq->wc", p, wr2) / shell
+    photon_J = HC_EV_NM / spec.wavelength_nm * _EV_J
+    G = p_avg / photon_J[:, None] * 1e-6  # [cm^-3 s^-1]
+    n_wl = spec.wavelength_nm.size
+    return pd.DataFrame({"wavelength_nm": np.repeat(spec.wavelength_nm, lo.size),
+                         "radius_nm": np.tile(0.5 * (lo + hi), n_wl),
+                         "cell_volume_nm3": np.tile(4.0 * np.pi * shell, n_wl),
+                         "absorbed_power_density_W_m3": p_avg.ravel(), "generation_rate_cm3_s": G.ravel()})
+
+
+def _layer_cells(particle, n):
+    """(inner, outer) radii [nm] of ``n`` equal-width radial cells in each layer."""
+    edges, r_in = [], 0.0
+    for _, r_out in particle.layers:
+        e = np.linspace(r_in, float(r_out), n + 1)
+        edges.append(np.stack([e[:-1], e[1:]]))
+        r_in = float(r_out)
+    lo, hi = np.concatenate(edges, axis=1)
+    return lo, hi
+
+
+def responsivity_table(wavelength_nm, responsivity_A_W, path, *, force: bool = False):
+    """Write ``wavelength_nm,responsivity_A_W`` as a plain two-column CSV lookup table (atomic).
+
+    Load it in a circuit simulator as a piecewise-linear table of responsivity against
+    wavelength, or with ``numpy.loadtxt(path, delimiter=",", skiprows=1)``.
+    """
+    from .export import write_file_atomic
+
+    wl = np.asarray(wavelength_nm, dtype=float)
+    R = np.asarray(responsivity_A_W, dtype=float)
+    if wl.shape != R.shape or wl.ndim != 1:
+        raise NanoabsError("responsivity table: wavelength and responsivity must be 1-D arrays of one length")
+    if not (np.all(np.isfinite(R)) and np.all(np.isfinite(wl))):
+        raise NanoabsError("responsivity table: non-finite values; nothing written")
+    text = "wavelength_nm,responsivity_A_W\n" + "".join(f"{a:.10g},{b:.10g}\n" for a, b in zip(wl, R))
+    return write_file_atomic(path, lambda fh: fh.write(text), force=force)
