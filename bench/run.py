@@ -121,7 +121,7 @@ SHELL_NM = 10.0
 WL_C = np.linspace(500.0, 1500.0, 1000)  # [nm]
 L_C = np.linspace(40.0, 200.0, 1000)[:, None]  # spheroid length [nm]
 D_C = 20.0  # spheroid diameter [nm]
-X_LARGE = {50.0: 2000, 200.0: 500}  # size parameter: number of wavelengths (400-900 nm)
+X_LARGE = {50.0: 20000, 200.0: 20000}  # size parameter: number of wavelengths (400-900 nm), >= MIN_POINTS
 MEDIUM = "water"
 README_CLI = ["spectrum", "--shape", "sphere", "--material", "Au", "--radius", "20", "--medium",
               "water", "--wl", "400:900:1"]

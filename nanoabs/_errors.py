@@ -49,6 +49,8 @@ def _fmt(value) -> str:
         return f"{value:g}"
     if isinstance(value, np.ndarray) and value.size > 6:
         return f"array(shape={value.shape})"
+    if isinstance(value, (list, tuple, dict, set)) and len(value) > 6:
+        return f"{type(value).__name__} of {len(value)} items"
     text = " ".join((repr(value) if isinstance(value, str) else str(value)).split())
     return text if len(text) <= 60 else text[:57] + "..."
 

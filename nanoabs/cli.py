@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import sys
 import warnings
+from pathlib import Path
 
 import numpy as np
 
@@ -358,31 +359,54 @@ def _illumination_from_args(args):
 def _cmd_hot_carriers(args) -> int:
     from .detector import hot_carrier_estimate
     from .export import check_writable
-    from .hotcarriers import SAFETY_CAUTION, schottky_barrier
+    from .hotcarriers import SAFETY_CAUTION
 
     if args.output:
         check_writable(args.output, force=args.force)
+    if args.plot and Path(args.plot).exists() and not args.force:
+        raise NanoabsError(f"--plot {args.plot!r} exists; give --force to overwrite")
     if (args.barrier is None) == (args.schottky is None):
-        raise NanoabsError("give exactly one of --barrier EV or --schottky METAL/SEMICONDUCTOR (e.g. Au/Si)")
-    if args.schottky is not None:
-        barrier, barrier_src = schottky_barrier(args.schottky)
-    else:
-        barrier, barrier_src = args.barrier, "user value"
+        raise NanoabsError("give exactly one of --barrier EV or --schottky METAL/SEMICONDUCTOR (e.g. Au/Si, Au/p-Si)")
+    if args.barrier is not None and args.area is not None:
+        raise NanoabsError("--area needs --schottky (dark current uses the semiconductor's Richardson constant)")
     illum = _illumination_from_args(args)
     particle, spec = _spectrum_from_args(args)
-    res = hot_carrier_estimate(spec, particle, illum, barrier_eV=barrier,
-                               fermi_energy_eV=args.fermi_energy,
-                               attenuation_length_nm=args.attenuation_length,
-                               yield_model=args.yield_model, momentum_factor=args.momentum_factor,
-                               contact_fraction=args.contact_fraction, density_per_um2=args.density,
+    res = hot_carrier_estimate(spec, particle, illum, barrier_eV=args.barrier, contact=args.schottky,
+                               carrier=args.carrier if args.barrier is not None else None,
+                               fermi_energy_eV=args.fermi_energy, attenuation_length_nm=args.attenuation_length,
+                               yield_model=args.yield_model, geometry=args.geometry, generation=args.generation,
+                               momentum_factor=args.momentum_factor, contact_fraction=args.contact_fraction,
+                               density_per_um2=args.density, area_um2=args.area, temperature_K=args.temperature,
+                               bias_V=args.bias, doping_cm3=args.doping, load_ohm=args.load,
                                thermal_conductivity_W_mK=args.thermal_conductivity)
-    res.metadata["schottky"]["barrier_source"] = barrier_src
     _print_warnings(res.metadata)
-    t = res.totals
-    print(f"barrier {float(barrier):.3g} eV ({barrier_src}); illumination: {illum.description}")
+    _print_hot_carrier_summary(res, illum)
+    print("caution: " + " ".join(SAFETY_CAUTION.split()))
+    if args.output:
+        res.write(args.output, force=args.force)
+        print(f"wrote {args.output}")
+    if args.plot:
+        from .plotting import plot_detector, save_figure
+
+        save_figure(plot_detector(res).figure, args.plot, force=args.force)
+        print(f"wrote {args.plot}")
+    return 0
+
+
+def _print_hot_carrier_summary(res, illum):
+    t, sch = res.totals, res.metadata["schottky"]
+    carrier = sch["carrier"]
+    name = sch.get("contact", "barrier")
+    print(f"{name}: {sch['barrier_eV']:.3g} eV for {carrier}s ({sch['barrier_source']}); cut-off "
+          f"{t['cutoff_wavelength_nm']:.0f} nm; illumination: {illum.description}")
     if "absorbed_power_W" in t:
         print(f"band-integrated absorbed power per particle: {t['absorbed_power_W']:.4g} W; "
               f"photocurrent per particle: {t['photocurrent_A']:.4g} A")
+        rates = {k: t.get(f"injected_{carrier}_rate_{k}_per_s", np.nan)
+                 for k in ("intraband_bulk", "intraband_surface", "interband")}
+        chans = ", ".join(f"{k} {v:.3g}" for k, v in rates.items() if np.isfinite(v))
+        if chans:
+            print(f"injected {carrier}s per second by channel: {chans}")
     else:
         print(f"peak absorbed power per particle: {t['peak_absorbed_power_W']:.4g} W at "
               f"{t['peak_absorbed_power_wavelength_nm']:g} nm; peak photocurrent {t['peak_photocurrent_A']:.4g} A")
@@ -391,17 +415,19 @@ def _cmd_hot_carriers(args) -> int:
     if "peak_responsivity_A_W" in t:
         print(f"responsivity at peak: {t['peak_responsivity_A_W']:.4g} A/W at "
               f"{t['peak_responsivity_wavelength_nm']:g} nm")
+    if "dark_current_A" in t:
+        print(f"dark current {t['dark_current_A']:.4g} A (saturation current {t['saturation_current_A']:.4g} A) "
+              f"at {sch['bias_V']:g} V, {sch['temperature_K']:g} K")
+    if "peak_specific_detectivity_Jones" in t:
+        print(f"peak D* {t['peak_specific_detectivity_Jones']:.4g} Jones at "
+              f"{t['peak_specific_detectivity_wavelength_nm']:g} nm (NEP "
+              f"{t['noise_equivalent_power_at_peak_W_Hz05']:.4g} W/Hz^0.5)")
     if "temperature_rise_K" in t:
         print(f"steady-state temperature rise of one particle: {t['temperature_rise_K']:.3g} K "
               f"({t['temperature_rise_basis']})")
     else:
         print("temperature rise: not estimated (no thermal conductivity for this medium; "
               "give --thermal-conductivity)")
-    print("caution: " + " ".join(SAFETY_CAUTION.split()))
-    if args.output:
-        res.write(args.output, force=args.force)
-        print(f"wrote {args.output}")
-    return 0
 
 
 def _add_particle_options(p):
@@ -433,25 +459,42 @@ def _register_particle_commands(sub):
     s.add_argument("--plot", help="save a plot of the cross-sections (.png or .svg)")
     s.set_defaults(func=_cmd_spectrum)
 
-    h = sub.add_parser("hot-carriers", help="absorbed power, hot-electron injection and photocurrent")
+    h = sub.add_parser("hot-carriers", help="absorbed power, hot-carrier injection, photocurrent, noise")
     _add_particle_options(h)
     g = h.add_argument_group("illumination")
-    g.add_argument("--irradiance", type=float, help="monochromatic irradiance [W/m^2] at every wavelength")
+    g.add_argument("--irradiance", type=_irradiance_arg,
+                   help="monochromatic irradiance at every wavelength: W/m^2, or with a unit (1mW/cm2)")
     g.add_argument("--laser-power", type=float, help="laser power [W] (Gaussian beam, peak irradiance)")
     g.add_argument("--beam-radius", type=float, help="1/e^2 intensity radius of the beam [nm]")
     g.add_argument("--spectrum", help="am1.5g | am1.5d | am0 | blackbody:T_K | flat:W_m2_nm | FILE.csv")
     g.add_argument("--total-irradiance", type=float, help="blackbody: scale to this total [W/m^2]")
     g.add_argument("--band", help="keep only START:STOP [nm] of the illumination (band filter)")
     d = h.add_argument_group("detector")
-    d.add_argument("--barrier", type=float, help="Schottky barrier height [eV]")
-    d.add_argument("--schottky", help="tabulated metal/semiconductor pair, e.g. Au/Si")
+    d.add_argument("--barrier", type=float, help="Schottky barrier height [eV], used as given")
+    d.add_argument("--carrier", default="electron", choices=["electron", "hole"],
+                   help="with --barrier: carriers that cross (electron: n-type, hole: p-type)")
+    d.add_argument("--schottky", help="tabulated metal/semiconductor pair: Au/Si (= Au/n-Si), Au/p-Si, PtSi/p-Si, "
+                   "Au/GaAs, Au/TiO2, Au/ZnO, ...")
     d.add_argument("--fermi-energy", type=float, help="Fermi energy of the metal [eV] (default tabulated)")
-    d.add_argument("--attenuation-length", type=float, help="hot-electron attenuation length [nm]")
+    d.add_argument("--attenuation-length", type=float,
+                   help="constant hot-carrier attenuation length [nm] (default: tabulated, energy dependent)")
     d.add_argument("--yield-model", default="escape-cone", choices=["escape-cone", "fowler"])
+    d.add_argument("--geometry", default="particle", choices=["particle", "flat"],
+                   help="escape cone at the curved particle wall (default) or the flat-interface form")
+    d.add_argument("--generation", default="band-edges", choices=["band-edges", "flat"],
+                   help="interband carriers from the d-band edge (default) or all carriers flat over [0, hv]")
     d.add_argument("--momentum-factor", type=float, default=1.0, help="empirical emission multiplier")
-    d.add_argument("--contact-fraction", type=float, default=1.0, help="fraction of surface on the semiconductor")
+    d.add_argument("--contact-fraction", type=float, default=1.0,
+                   help="fraction of surface on the semiconductor (ellipsoids: the facet with the lowest z)")
     d.add_argument("--density", type=float, help="particles per um^2 (adds array columns)")
+    d.add_argument("--area", type=float, help="device area [um^2]: adds dark current, NEP and D* (needs --density)")
+    d.add_argument("--temperature", type=float, default=300.0, help="device temperature [K] (default 300)")
+    d.add_argument("--bias", type=float, default=0.0,
+                   help="bias [V]: negative = reverse bias, positive = forward (default 0)")
+    d.add_argument("--doping", type=float, default=1e15, help="semiconductor doping [cm^-3] (default 1e15)")
+    d.add_argument("--load", type=float, help="load resistance [ohm] (adds its Johnson noise)")
     d.add_argument("--thermal-conductivity", type=float, help="of the surroundings [W/(m K)]")
+    d.add_argument("--plot", help="save responsivity and D* vs wavelength with the cut-off (.png or .svg)")
     h.set_defaults(func=_cmd_hot_carriers)
 
     x = sub.add_parser("export-generation", help="carrier generation rate G(r) inside a sphere, for a "
@@ -461,6 +504,14 @@ def _register_particle_commands(sub):
                    help="incident irradiance: W/m^2, or with a unit (1mW/cm2, 10W/m2)")
     x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50)")
     x.set_defaults(func=_cmd_export_generation)
+
+
+def _irradiance_arg(text):
+    """argparse type: an irradiance with an optional unit, in W/m^2 (errors become one line)."""
+    try:
+        return parse_irradiance(text)
+    except NanoabsError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def _cmd_export_generation(args) -> int:
@@ -529,10 +580,12 @@ def _table_or_material(text):
 
 def _cmd_sweep(args) -> int:
     from . import design
-    from .export import check_writable
+    from .export import check_file_target, check_writable
 
-    if args.output:
+    if args.output is not None:  # an empty -o '' is refused, not read as "no output"
         check_writable(args.output, force=args.force, netcdf=True)
+    if args.plot is not None:
+        check_file_target(args.plot, force=args.force, suffixes=(".png", ".svg"), what="plot file")
     params = _sweep_params(args.param)
     wl = parse_range(args.wl)
     kw = dict(material=_table_or_material(args.material), medium=_medium_arg(args.medium), method=args.method,
@@ -554,6 +607,10 @@ def _cmd_sweep(args) -> int:
         print(f"wrote {args.output}")
     if hasattr(res, "columns"):
         _report_sweep(res, args)
+    else:
+        skipped = " and no --plot drawn" if args.plot else ""
+        print(f"the table is larger than the memory budget: peaks not listed{skipped}; read {res} in pieces "
+              "(pandas.read_csv(..., chunksize=...))")
     return 0
 
 
@@ -597,7 +654,7 @@ def _cmd_search(args) -> int:
     from .export import check_writable
     from .hotcarriers import schottky_barrier
 
-    if args.output:
+    if args.output is not None:  # an empty -o '' is refused, not read as "no output"
         check_writable(args.output, force=args.force)
     if args.band and (args.center or args.width):
         raise NanoabsError("give either --band LO:HI (repeatable) or --center and --width")
@@ -685,7 +742,8 @@ def _register_design_commands(sub):
     q.add_argument("--barrier", type=float, help="injection: Schottky barrier [eV]")
     q.add_argument("--schottky", help="injection: tabulated pair, e.g. Au/Si")
     q.add_argument("--spectrum", help="injection: am1.5g | am1.5d | am0 | blackbody:T | flat:V | FILE.csv")
-    q.add_argument("--irradiance", type=float, help="injection: monochromatic irradiance [W/m^2]")
+    q.add_argument("--irradiance", type=_irradiance_arg,
+                   help="injection: monochromatic irradiance, W/m^2 or with a unit (1mW/cm2)")
     q.add_argument("--top", type=int, default=10)
     q.add_argument("-o", "--output", help="write the ranked table (CSV + JSON)")
     q.add_argument("--force", action="store_true")

@@ -73,6 +73,11 @@ def sweep_dataset(frame):
     Dims are the swept parameters (those with more than one value, in the sweep's order) and
     ``wavelength_nm``; parameters held fixed become scalar coordinates. Units come from
     ``frame.attrs["units"]`` (CF spelling), the sweep metadata goes into the attributes.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        A table returned by :func:`nanoabs.design.sweep` (with its ``attrs``).
     """
     xr = _xarray()
     meta = frame.attrs.get("metadata", {})

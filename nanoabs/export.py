@@ -94,6 +94,8 @@ def check_writable(path, *, force: bool = False, netcdf: bool = False) -> tuple[
         Bad suffix, missing or unwritable parent directory, a target that is a
         directory, or a target that exists while ``force`` is false.
     """
+    if str(path).strip() == "":
+        raise NanoabsError("export path = '': give a file name ending in .csv or .json")
     path = Path(path)
     targets = _targets(path, netcdf)
     parent = path.parent
@@ -331,8 +333,9 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
     ------
     NanoabsError
         See :func:`check_writable`; a column without unit, an unsupported column
-        dtype, or metadata that cannot be written as JSON. On any failure no new
-        file and no temporary file is left behind.
+        dtype, or metadata that cannot be written as JSON; another process writing
+        the same export at the same moment (:func:`exclusive_lock`). On any
+        failure no new file and no temporary file is left behind.
     """
     targets = check_writable(path, force=force)
     columns = _check_frame(frame, units)
@@ -361,7 +364,9 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
         writers.append((targets[0], lambda fh: table.to_csv(fh, index=False, na_rep="nan",
                                                             lineterminator="\n")))
     writers.append((targets[-1], lambda fh: fh.write(json_text)))
-    return place_together(writers)
+    with exclusive_lock(targets[0], "export"):  # a CSV never lands beside another writer's sidecar
+        check_writable(path, force=force)
+        return place_together(writers)
 
 
 def place_together(writers) -> tuple[Path, ...]:
@@ -515,7 +520,7 @@ def _read_csv_fast(csv_path: Path, columns: list[dict], rows: int):
         na[c["name"]] = ["nan"] if kind == "f" else []
     try:
         frame = pd.read_csv(csv_path, dtype=dtypes, keep_default_na=False, na_values=na, encoding="utf-8",
-                            index_col=False)
+                            index_col=False, float_precision="round_trip")  # exact, as the writer promises
     except (ValueError, TypeError, OverflowError, OSError, pd.errors.ParserError, UnicodeDecodeError):
         return None
     if list(frame.columns) != names or len(frame) != rows:
@@ -643,19 +648,29 @@ def check_input_file(path, what: str, *, max_bytes: int = MAX_INPUT_BYTES) -> Pa
     return p
 
 
+def check_file_target(path, *, force: bool = False, suffixes=None, what: str = "output file") -> Path:
+    """Check, before any work, that a single output file can be written at ``path``."""
+    target = Path(path)
+    if str(path).strip() == "":
+        raise NanoabsError(f"{what} = '': give a file name")
+    if suffixes is not None and target.suffix.lower() not in suffixes:
+        raise NanoabsError(f"{what} {str(target)!r}: suffix must be {' or '.join(suffixes)}")
+    if not target.parent.is_dir():
+        raise NanoabsError(f"output directory {str(target.parent)!r} does not exist: create it first")
+    if target.is_dir():
+        raise NanoabsError(f"{what} {str(target)!r} is a directory: choose a file name")
+    if target.exists() and not force:
+        raise NanoabsError(f"{what} {str(target)!r} exists: pass force=True (CLI: --force) to overwrite")
+    return target
+
+
 def write_file_atomic(path, write, *, force: bool = False, binary: bool = False) -> Path:
     """Write any output file atomically: ``write(handle)`` fills a temporary beside it, then rename.
 
     Used for figures, reports and parameter files. Refuses to overwrite an
     existing file unless ``force``; leaves nothing behind on failure.
     """
-    target = Path(path)
-    if not target.parent.is_dir():
-        raise NanoabsError(f"output directory {str(target.parent)!r} does not exist: create it first")
-    if target.is_dir():
-        raise NanoabsError(f"output file {str(target)!r} is a directory: choose a file name")
-    if target.exists() and not force:
-        raise NanoabsError(f"output file {str(target)!r} exists: pass force=True (CLI: --force) to overwrite")
+    target = check_file_target(path, force=force)
     tmp = _write_temp(target, write, binary=binary)
     try:
         os.replace(tmp, target)

@@ -1,7 +1,7 @@
 """Hot-carrier (internal photoemission) and absorbed-power estimates.
 
 Pure functions, vectorised over wavelength (numpy broadcasting), for a metal
-nanoparticle forming a Schottky contact with an n-type semiconductor:
+nanoparticle forming a Schottky contact with a semiconductor:
 
 * photon energy and photon rate (``scipy.constants``, CODATA);
 * internal photoemission yield over the Schottky barrier: the Fowler
@@ -11,9 +11,11 @@ nanoparticle forming a Schottky contact with an n-type semiconductor:
 * a steady-state photothermal temperature rise of one particle;
 * splitting absorbed power by loss mechanism (interband / intraband).
 
-Tables of free-electron parameters, hot-electron attenuation lengths,
-Schottky barrier heights and thermal conductivities carry a ``source`` string per
-entry; values quoted from memory say so.
+Tables of free-electron parameters, hot-electron attenuation lengths and thermal
+conductivities carry a ``source`` string per entry; values quoted from memory say so.
+Barrier heights of metal/semiconductor pairs live in :mod:`nanoabs.contacts`
+(:func:`schottky_barrier` is re-exported here); the energy-resolved generation and the
+emission geometry in :mod:`nanoabs.carriers`.
 
 These are design estimates, not predictive device models: measured yields depend
 on interfaces, momentum distributions and processing. See also
@@ -52,11 +54,10 @@ __all__ = [
     "FreeElectronMetal",
     "FREE_ELECTRON",
     "ATTENUATION_LENGTH_NM",
-    "SCHOTTKY_BARRIER_EV",
     "THERMAL_CONDUCTIVITY_W_MK",
     "free_electron",
     "attenuation_length_nm",
-    "schottky_barrier",
+    "schottky_barrier",  # re-exported from nanoabs.contacts
     "thermal_conductivity",
     "COUPLING_WARNING_THRESHOLD",
 ]
@@ -612,41 +613,13 @@ ATTENUATION_LENGTH_NM = {
     "Ag": Sourced(50.0, _ATT),
     "Cu": Sourced(30.0, _ATT),
     "Al": Sourced(20.0, _ATT),
-}
-
-_SZE = (
-    "S. M. Sze and K. K. Ng, Physics of Semiconductor Devices, 3rd ed. (Wiley, 2007), "
-    "ch. 3, compilation of measured barrier heights on n-type material (from memory)"
-)
-_PROC = "from memory; strongly process dependent (surface preparation, interface layers, annealing)"
-
-#: Schottky barrier heights phi_B [eV], metal / n-type semiconductor.
-SCHOTTKY_BARRIER_EV = {
-    "Au/Si": Sourced(0.80, _SZE),
-    "Ag/Si": Sourced(0.78, _SZE),
-    "Al/Si": Sourced(0.72, _SZE),
-    "Cu/Si": Sourced(0.58, _SZE),
-    "TiN/Si": Sourced(0.55, _PROC),
-    "Au/GaAs": Sourced(0.90, _SZE),
-    "Ag/GaAs": Sourced(0.88, _SZE),
-    "Al/GaAs": Sourced(0.80, _SZE),
-    "Cu/GaAs": Sourced(0.82, _SZE),
-    "TiN/GaAs": Sourced(0.70, _PROC),
-    "Au/TiO2": Sourced(1.00, _PROC),
-    "Ag/TiO2": Sourced(0.90, _PROC),
-    "Al/TiO2": Sourced(0.30, _PROC + "; often near-ohmic"),
-    "Cu/TiO2": Sourced(0.70, _PROC),
-    "TiN/TiO2": Sourced(0.60, _PROC),
-    "Au/ZnO": Sourced(0.70, _PROC),
-    "Ag/ZnO": Sourced(0.75, _PROC),
-    "Al/ZnO": Sourced(0.30, _PROC + "; often near-ohmic"),
-    "Cu/ZnO": Sourced(0.50, _PROC),
-    "TiN/ZnO": Sourced(0.40, _PROC),
-    "Au/GaN": Sourced(0.90, _PROC),
-    "Ag/GaN": Sourced(0.70, _PROC),
-    "Al/GaN": Sourced(0.50, _PROC + "; often near-ohmic"),
-    "Cu/GaN": Sourced(0.80, _PROC),
-    "TiN/GaN": Sourced(0.30, _PROC),
+    "Pt": Sourced(10.0, _ATT + "; transition metals (d states at E_F) scatter faster: 5-15 nm"),
+    "Pd": Sourced(10.0, _ATT + "; transition metals (d states at E_F) scatter faster: 5-15 nm"),
+    "Ni": Sourced(5.0, _ATT + "; transition metals (d states at E_F) scatter faster: 2-10 nm"),
+    "Ti": Sourced(5.0, _ATT + "; transition metals (d states at E_F) scatter faster: 2-10 nm"),
+    "Cr": Sourced(5.0, _ATT + "; transition metals (d states at E_F) scatter faster: 2-10 nm"),
+    "W": Sourced(10.0, _ATT + "; transition metals (d states at E_F) scatter faster: 5-15 nm"),
+    "TiN": Sourced(10.0, _ATT + "; 5-20 nm, film dependent"),
 }
 
 _CRC = "CRC Handbook of Chemistry and Physics, near 300 K (from memory)"
@@ -685,28 +658,9 @@ def attenuation_length_nm(metal: str) -> Sourced:
     return _lookup(ATTENUATION_LENGTH_NM, metal, "metal")
 
 
-def schottky_barrier(pair: str) -> Sourced:
-    """Schottky barrier height of a metal / n-type semiconductor pair.
-
-    Parameters
-    ----------
-    pair : str
-        ``'metal/semiconductor'``, e.g. ``'Au/Si'``; case-insensitive, spaces and an
-        ``n-`` prefix on the semiconductor (``'Au/n-Si'``) are accepted.
-
-    Returns
-    -------
-    (value_eV, source) : Sourced
-    """
-    text = "".join(str(pair).split())
-    if "/" in text:
-        metal, semi = text.split("/", 1)
-        if semi.lower().startswith("n-"):
-            semi = semi[2:]
-        text = f"{metal}/{semi}"
-    return _lookup(SCHOTTKY_BARRIER_EV, text, "metal/semiconductor pair")
-
-
 def thermal_conductivity(medium: str) -> Sourced:
     """Thermal conductivity [W m^-1 K^-1] of a surrounding medium as (value, source)."""
     return _lookup(THERMAL_CONDUCTIVITY_W_MK, medium, "medium")
+
+
+from .contacts import schottky_barrier  # noqa: E402  (table of pairs: nanoabs.contacts)

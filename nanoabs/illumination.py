@@ -594,6 +594,13 @@ def check_illumination(value, name: str = "illumination") -> Illumination:
 
     For every function that takes an illumination (``None``, a number or a string there
     would otherwise fail deep inside with an AttributeError).
+
+    Parameters
+    ----------
+    value : object
+        What the caller passed as the illumination.
+    name : str
+        The parameter's name, for the message.
     """
     if isinstance(value, Illumination):
         return value

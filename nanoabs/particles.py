@@ -84,6 +84,12 @@ def _common_shape(what: str, *sizes) -> None:
                            "give equal family lengths P (each of shape (P, 1)) or scalars") from None
 
 
+def _check_outer(name: str, value) -> None:
+    """The outer size of a coated particle obeys the same bound as every size."""
+    if np.any(np.asarray(value) > MAX_SIZE_NM):
+        raise NanoabsError(f"{name} = {float(np.max(value)):g} nm: allowed range is 0 to {MAX_SIZE_NM:g} nm")
+
+
 def _pair(name: str, item) -> tuple:
     """A (material, thickness_nm) pair; a one-line error for anything else."""
     if isinstance(item, (str, bytes, dict)) or not hasattr(item, "__len__") or len(item) != 2:
@@ -105,10 +111,14 @@ def check_size_family(particle, wavelength_nm) -> None:
     n = np.size(wavelength_nm)
     for label, size in zip(particle.layer_labels(), particle.damping_lengths_nm()):
         shape = np.shape(size)
-        if (len(shape) == 1 and shape[0] > 1) or (len(shape) > 1 and shape[-1] not in (1, n)):
+        if len(shape) == 1 and shape[0] > 1:
             raise NanoabsError(
-                f"particle {label} size: an array of shape {shape} against {n} wavelengths is "
+                f"particle {label} size: a 1-D array of shape {shape} against {n} wavelengths is "
                 "ambiguous; give a scalar or a family of shape (P, 1), e.g. sizes[:, None]")
+        if len(shape) > 1 and shape[-1] not in (1, n):
+            raise NanoabsError(
+                f"particle {label} size: shape {shape} has a last axis of {shape[-1]}, neither 1 (a "
+                f"family of shape (P, 1)) nor the number of wavelengths ({n})")
 
 
 class _Spherical:
@@ -199,9 +209,7 @@ class LayeredSphere(_Spherical):
             raise NanoabsError("shells: give at least one (material, thickness_nm) pair")
         self.shells = [_pair(f"shell {i}", item) for i, item in enumerate(self.shells, 1)]
         _common_shape("layered sphere", self.core_radius_nm, *(t for _, t in self.shells))
-        if np.any(self.layers[-1][1] > MAX_SIZE_NM):
-            raise NanoabsError(f"outer radius = {float(np.max(self.layers[-1][1])):g} nm: allowed range "
-                               f"is 0 to {MAX_SIZE_NM:g} nm")
+        _check_outer("outer radius", self.outer_radius_nm)
 
     shape = "layered sphere"
 
@@ -252,6 +260,8 @@ class Ellipsoid:
         if self.shell is not None:
             self.shell = _pair("shell", self.shell)
             _common_shape("ellipsoid with shell", *self.semi_axes_nm, self.shell[1])
+            for n, v in zip("abc", self.shell_axes_nm()):
+                _check_outer(f"outer semi-axis {n}", v)
 
     shape = "ellipsoid"
 

@@ -15,7 +15,8 @@ import numpy as np
 
 from ._errors import NanoabsError
 
-__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "spectrum_axes", "save_figure"]
+__all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "plot_detector", "spectrum_axes",
+           "save_figure"]
 
 #: Plot label and scale of each spectrum quantity (one table: values, labels and units never disagree).
 QUANTITY_LABELS = {
@@ -140,7 +141,12 @@ def plot_material(mat, wavelength_nm=None, *, ax=None):
         wavelength_nm = np.geomspace(lo, hi, 400)
     wl = np.asarray(wavelength_nm, dtype=float)
     n = np.atleast_1d(mat.refractive_index(wl))
-    fig, (a1, a2) = _figure(1, 2, ax=ax, figsize=(9.0, 3.8))  # ax: a pair of Axes
+    if ax is not None:  # a pair of Axes: (n and k, permittivity)
+        if not (isinstance(ax, (tuple, list)) and len(ax) == 2):
+            raise NanoabsError("plot_material: ax must be a pair of Axes (index panel, permittivity panel)")
+        (a1, a2), fig = ax, ax[0].figure
+    else:
+        fig, (a1, a2) = _figure(1, 2, figsize=(9.0, 3.8))
     a1.plot(wl, n.real, label="n", color="#1b6ca8")
     a1.plot(wl, n.imag, label="k", color="#c8553d")
     eps = n**2
@@ -295,3 +301,46 @@ def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False, ax=None):
     if title:
         ax.set_title(title)
     return fig
+
+
+def plot_detector(result, ax=None):
+    """Responsivity [mA/W] and, with a device area, D* [Jones] against wavelength; cut-off marked.
+
+    Parameters
+    ----------
+    result : HotCarrierResult
+        From :func:`nanoabs.hot_carrier_estimate` with ``density_per_um2`` (and ``area_um2`` for D*).
+    ax : matplotlib Axes, optional
+        Axes to draw on (a new figure otherwise); D* goes on a twin axis (log scale).
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        The responsivity axes.
+    """
+    f = result.frame
+    if "responsivity_A_W" not in f:
+        raise NanoabsError("plot_detector: the result has no responsivity (give density_per_um2)")
+    if ax is None:
+        ax = _figure()[1]
+    wl = f["wavelength_nm"].to_numpy()
+    ax.plot(wl, f["responsivity_A_W"].to_numpy() * 1e3, color="C0", label="responsivity")
+    ax.set_xlabel("wavelength [nm]")
+    ax.set_ylabel("responsivity [mA/W]", color="C0")
+    lam_c = result.totals.get("cutoff_wavelength_nm")
+    if lam_c is not None and wl.min() <= lam_c <= wl.max():
+        ax.axvline(lam_c, color="0.4", ls="--", lw=1)
+        ax.annotate(f"cut-off {lam_c:.0f} nm", (lam_c, 0.95), xycoords=("data", "axes fraction"),
+                    ha="right", va="top", rotation=90, fontsize=8, color="0.3")
+    elif lam_c is not None:
+        ax.annotate(f"cut-off {lam_c:.0f} nm (outside the plot)", (0.02, 0.95), xycoords="axes fraction",
+                    ha="left", va="top", fontsize=8, color="0.3")
+    if "specific_detectivity_Jones" in f:
+        d = f["specific_detectivity_Jones"].to_numpy()
+        tw = ax.twinx()
+        tw.plot(wl, np.where(d > 0, d, np.nan), color="C1", label="D*")
+        tw.set_ylabel("D* [cm Hz$^{1/2}$ W$^{-1}$]", color="C1")
+        if np.any(d > 0):
+            tw.set_yscale("log")
+    ax.set_title(result.metadata.get("schottky", {}).get("contact", "hot-carrier detector"))
+    return ax

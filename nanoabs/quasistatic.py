@@ -495,7 +495,9 @@ def _sphere_nd(eps, eps_medium, radius):
     eps = _check_eps("eps", eps)
     em = _check_eps_medium(eps_medium)
     r = check_positive("radius", radius)
-    return 4.0 * np.pi * r**3 * (eps - em), eps + 2.0 * em, eps, np.abs(eps) + 2.0 * np.abs(em)
+    with np.errstate(over="ignore", invalid="ignore"):  # an overflow is reported by the callers
+        num = 4.0 * np.pi * r**3 * (eps - em)
+    return num, eps + 2.0 * em, eps, np.abs(eps) + 2.0 * np.abs(em)
 
 
 def _depol_nd(eps, eps_medium, volume, L):
@@ -528,7 +530,8 @@ def _coated_sphere_nd(eps_core, eps_shell, eps_medium, core_radius, outer_radius
     # this Moebius map in eps_core is 27 f eps_shell^2 eps_m): use the limit instead,
     # the core sphere if there is no shell (f = 1), else the eps = 0 sphere.
     enz = np.abs(e2) < _TINY_EPS
-    scale = np.abs(e2 * P) + 2 * np.abs(em * Q)
+    a1, a2, am = np.abs(e1), np.abs(e2), np.abs(em)  # scale: magnitudes of every term of den
+    scale = a2 * (a1 * (1 + 2 * f) + 2 * a2 * (1 - f)) + 2 * am * (a1 * (1 - f) + a2 * (2 + f))
     if np.any(enz):
         num = np.where(enz, np.where(f == 1, e1 - em, -em), num)
         den = np.where(enz, np.where(f == 1, e1 + 2 * em, 2 * em), den)
@@ -559,7 +562,8 @@ def _coated_ellipsoid_nd(eps_core, eps_shell, eps_medium, core_axes, shell_axes,
     # this Moebius map in eps_core is f eps_shell^2 eps_m): use the limit instead, the
     # core ellipsoid if there is no shell (t = 0), else the eps = 0 outer ellipsoid.
     enz = np.abs(e2) < _TINY_EPS
-    scale = np.abs(em * g) * (1 - L2) + L2 * np.abs(e2 * P)
+    a1, a2, am = np.abs(e1), np.abs(e2), np.abs(em)  # scale: magnitudes of every term of den
+    scale = am * (1 - L2) * (a2 * (1 - h) + a1 * h) + L2 * a2 * (a1 * (h + f) + a2 * np.abs(1 - h - f))
     if np.any(enz):
         num = np.where(enz, np.where(h == 0, e1 - em, -em), num)
         den = np.where(enz, np.where(h == 0, em + L1 * (e1 - em), em * (1 - L2)), den)

@@ -164,7 +164,7 @@ def validate(doc: dict) -> dict:
     if (doc.get("particle") or doc.get("search")) and "barrier_eV" not in det and "schottky" not in det:
         raise DataError("study key detector.barrier_eV (or detector.schottky) is required for particles and searches")
     w = doc["wavelengths"]
-    if not (0 < w["start_nm"] < w["stop_nm"]) or not (0 < w["step_nm"] <= w["stop_nm"] - w["start_nm"]):
+    if not (0 < w["start_nm"] < w["stop_nm"]) or not (0 < w["step_nm"] <= (w["stop_nm"] - w["start_nm"]) * _GRID_RTOL1):
         raise DataError(f"study keys wavelengths.start_nm/stop_nm/step_nm = {w['start_nm']}/{w['stop_nm']}/"
                         f"{w['step_nm']}: need 0 < start < stop and 0 < step <= stop - start")
     return doc
@@ -189,12 +189,32 @@ def demo_study_path() -> Path:
 # -- running -----------------------------------------------------------------
 
 
+#: Relative tolerance of "the step divides the range" (decimal steps are not exact in binary).
+_GRID_RTOL = 1e-9
+_GRID_RTOL1 = 1 + _GRID_RTOL
+
+
+def inclusive_grid(start, stop, step, name, *, max_points=200_000):
+    """start, start + step, ... up to ``stop`` inclusive [nm], robust to decimal rounding.
+
+    When (stop − start)/step is an integer to within 1e-9 relative, the grid ends exactly at
+    ``stop`` (1936.9:1937:0.1 gives 1936.9 and 1937); no point ever exceeds ``stop``.
+    """
+    r = (stop - start) / step
+    k = round(r)
+    exact = abs(r - k) <= _GRID_RTOL * max(1.0, abs(k))
+    n = int(k if exact else math.floor(r)) + 1
+    if n > max_points:
+        raise NanoabsError(f"{name}: {n} points; at most {max_points} allowed")
+    grid = np.minimum(start + step * np.arange(n), stop)
+    if exact:
+        grid[-1] = stop
+    return grid
+
+
 def _wavelengths(doc):
     w = doc["wavelengths"]
-    n = int(np.floor((w["stop_nm"] - w["start_nm"]) / w["step_nm"] + 1e-9)) + 1
-    if n > 200_000:
-        raise DataError(f"study wavelengths: {n} points; at most 200000 allowed")
-    return w["start_nm"] + w["step_nm"] * np.arange(n)
+    return inclusive_grid(w["start_nm"], w["stop_nm"], w["step_nm"], "study wavelengths")
 
 
 def _medium(doc):
@@ -581,7 +601,8 @@ def _sweep_reduced(path, param, n, wl, band):
     inb = (wl >= band[0]) & (wl <= band[1]) if band else np.zeros(W, bool)
     step = max(1, -(-n // _MAP_ROWS))
     vals, peaks, foms, map_ids, map_rows = [], [], [], [], []
-    for chunk in pd.read_csv(path, usecols=["design_id", param, "sigma_abs_m2"], chunksize=W * 512):
+    for chunk in pd.read_csv(path, usecols=["design_id", param, "sigma_abs_m2"], chunksize=W * 512,
+                             float_precision="round_trip"):
         sa = chunk["sigma_abs_m2"].to_numpy(dtype=float).reshape(-1, W)
         ids = chunk["design_id"].to_numpy()[::W]
         vals.append(chunk[param].to_numpy(dtype=float)[::W])

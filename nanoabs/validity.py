@@ -72,7 +72,15 @@ def emit(cautions, *, stacklevel: int = 3) -> None:
 
 
 def emit_messages(messages, *, stacklevel: int = 3) -> None:
-    """Issue already-collected caution messages (e.g. the collapsed list of a sweep) as warnings."""
+    """Issue already-collected caution messages (e.g. the collapsed list of a sweep) as warnings.
+
+    Parameters
+    ----------
+    messages : iterable of str
+        One line each.
+    stacklevel : int
+        Passed to :func:`warnings.warn` (3: the caller of the function that emits).
+    """
     for m in messages:
         warnings.warn(m, NanoabsWarning, stacklevel=stacklevel)
 

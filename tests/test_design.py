@@ -80,6 +80,19 @@ def test_sweep_spheroid_and_shell_reproduce_single_spectra():
     assert_allclose(g.sigma_abs_m2.to_numpy(), s.sigma_abs_m2, rtol=1e-14, atol=0)
 
 
+def test_sweep_of_dielectric_shells_reproduces_single_spectra():
+    # Regression: the layer permittivities of an array-sized LayeredSphere without size-dependent
+    # damping were once stacked against the size axis (wrong numbers when designs = layers).
+    # Source: nanoabs.spectrum of each particle built on its own; rtol 1e-12. A shell with a
+    # constant-index (non-metal) shell layer: no surface damping, so every layer's permittivity
+    # is one row per wavelength.
+    df = design.sweep("shell", {"core_radius_nm": [20.0, 30.0], "thickness_nm": [5.0]}, WL, material=2.5,
+                      progress=False)
+    for i, r in enumerate((20.0, 30.0)):
+        s = nanoabs.spectrum(nanoabs.LayeredSphere("SiO2", r, [(nanoabs.material(2.5), 5.0)]), WL)
+        assert_allclose(df[df.design_id == i].sigma_sca_m2.to_numpy(), s.sigma_sca_m2, rtol=1e-12, atol=0)
+
+
 def test_chunk_sizes_agree():
     # Source: the same sweep with chunk size 1, 7 and all designs in one chunk. Agreement to
     # rtol 1e-14: batches of different composition round differently in the last bit (module docs).
@@ -564,8 +577,10 @@ def test_search_injection_matches_the_hot_carrier_pipeline():
     assert res.attrs["figure_of_merit"]["unit"] == "s^-1"
     p = Sphere("Au", best.radius_nm)
     wl = np.union1d(np.linspace(lo, hi, 401), sun.nodes_nm[(sun.nodes_nm > lo) & (sun.nodes_nm < hi)])
+    # the search's injection objective is the flat-interface, all-flat-generation form (issue 13 keeps it as
+    # the geometry="flat", generation="flat" option of the pipeline)
     hcr = nanoabs.hot_carrier_estimate(nanoabs.spectrum(p, wl), p, sun, barrier_eV=0.8,
-                                       attenuation_length_nm=1e9)
+                                       attenuation_length_nm=1e9, geometry="flat", generation="flat")
     assert best.figure_of_merit == pytest.approx(hcr.totals["injected_electron_rate_per_s"], rel=2e-3)
     # the same integral written out: sigma E lambda/(hc) eta
     s = nanoabs.spectrum(p, wl)

@@ -149,6 +149,20 @@ def test_check_writable_lists_targets_and_missing_directory(tmp_path):
         check_writable(tmp_path / "nope" / "a.csv")
 
 
+def test_export_is_refused_while_another_writer_holds_it(tmp_path):
+    # Source: contract. Two writers of one export would interleave a CSV and another run's sidecar.
+    import pandas as pd
+
+    from nanoabs.export import exclusive_lock
+
+    frame = pd.DataFrame({"wavelength_nm": [500.0, 600.0]})
+    with exclusive_lock(tmp_path / "x.csv"):
+        with pytest.raises(NanoabsError, match="being written by another"):
+            write_export(frame, tmp_path / "x.csv", metadata={}, units={"wavelength_nm": "nm"})
+    write_export(frame, tmp_path / "x.csv", metadata={}, units={"wavelength_nm": "nm"})
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["x.csv", "x.json"]
+
+
 def test_failed_second_rename_leaves_nothing(tmp_path, monkeypatch):
     real_replace = os.replace
     calls = []

@@ -129,6 +129,7 @@ API_CASES = [
     ("semi-axis True", lambda t: Ellipsoid("Au", (10, True, 5)), "boolean"),
     ("semi-axis string", lambda t: Ellipsoid("Au", (10, "5", 5)), "real number"),
     ("semi-axes families differ", lambda t: Ellipsoid("Au", (np.ones((3, 1)), np.ones((4, 1)), 5)), "broadcast"),
+    ("ellipsoid outer axis over bound", lambda t: Ellipsoid("Au", (9e3, 10, 10), ("SiO2", 5e3)), "outer semi-axis"),
     ("ellipsoid shell a string", lambda t: Ellipsoid("Au", (30, 10, 10), "SiO2"), "pair"),
     ("ellipsoid shell one item", lambda t: Ellipsoid("Au", (30, 10, 10), ("SiO2",)), "pair"),
     ("spheroid length True", lambda t: spheroid("Au", True, 20), "boolean"),
@@ -138,7 +139,9 @@ API_CASES = [
     ("mutated 1-D radius vs grid", lambda t: check_size_family(_mutated_sphere([10, 20, 30, 40, 50]), WL),
      "ambiguous"),
     ("mutated (2, 7) radius vs 5 wl", lambda t: check_size_family(_mutated_sphere(np.ones((2, 7))), WL),
-     "ambiguous"),
+     "neither 1"),
+    ("(1, 3) geometry vs 5 wl", lambda t: check_size_family(spheroid("Au", np.array([[40.0, 50.0, 60.0]]), 20.0), WL),
+     "neither 1"),
     # singular physics: every static pole is refused, not returned as Q ~ 1e26
     ("prolate pole, long axis", lambda t: q.polarizability_ellipsoid(
         *_ellipsoid_pole((30, 10, 10), "x"), 30, 10, 10, axis="x"), "singular"),

@@ -175,3 +175,48 @@ def test_corrected_model_passive(L, A, metal):
     m = material(metal).with_surface_damping(L, A=A)
     E = np.linspace(0.1, 10, 300)
     assert np.all(m.model.permittivity_at_energy(E).imag >= 0)
+
+
+def _all_datasets():
+    return [(n, s) for n, srcs in catalog().items() for s in srcs]
+
+
+@pytest.mark.parametrize("name,source", _all_datasets())
+def test_range_check_and_interpolation_agree_at_both_ends(name, source):
+    # Every shipped dataset: a wavelength a rounding error (5e-13 relative) past either end passes
+    # the range check and must give the tabulated end value (the first/last row of the CSV),
+    # never NaN; 1e-9 past the end is refused. Reference: the table rows themselves (the
+    # interpolant reproduces its knots to 1e-14 relative). Constant tables (air) have no range.
+    m = material(name, source)
+    lo, hi = m.range_nm
+    if m._n is None:
+        return
+    for end, past in ((lo, lo * (1 - 5e-13)), (hi, hi * (1 + 5e-13))):
+        n_end = m.refractive_index(end)
+        assert np.isfinite(n_end) and m.refractive_index(past) == n_end
+        assert n_end == pytest.approx(m._n[0 if end == lo else -1], rel=1e-14)
+    for past in (lo * (1 - 1e-9), hi * (1 + 1e-9)):
+        with pytest.raises(NanoabsError, match="outside"):
+            m.refractive_index(past)
+
+
+_MARK = "Zq7-private-line"
+
+
+@settings(max_examples=150, deadline=None)
+@given(lines=st.lists(st.sampled_from([
+    "wavelength_nm,n,k", "wavelength_nm,eps_real,eps_imag", "400,1.5,0", "500,1.4,0.1", "600,0.2,3",
+    "450,1,-0.1", "nan,1,1", "300,1", "# material: x", _MARK, f"{_MARK},1,2", f"500,{_MARK},1", "",
+    "\ufeffwavelength_nm,n,k", "1e400,1,1", "-5,1,1"]), max_size=8))
+def test_fuzz_user_material_table(lines, tmp_path_factory):
+    # A user table either loads (finite constants on its own range) or gives one DataError line
+    # that names the file and never quotes its contents.
+    p = tmp_path_factory.mktemp("t") / "m.csv"
+    p.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    try:
+        m = load_table(p)
+    except NanoabsError as e:
+        assert "\n" not in str(e) and _MARK not in str(e) and str(p) in str(e)
+        return
+    lo, hi = m.range_nm
+    assert np.all(np.isfinite(m.permittivity(np.linspace(lo, hi, 7))))

@@ -60,7 +60,8 @@ API_CASES = [
     ("unknown solar", lambda: il.solar("am2"), "am1.5g"),
     ("solar outside table", lambda: il.solar("am1.5g").spectral_irradiance([200.0]), "280"),
     ("barrier <= 0", lambda: _hc(barrier_eV=0.0), "barrier"),
-    ("barrier above photons", lambda: _hc(barrier_eV=5.0), "photon energy"),
+    # "barrier above photons" is no longer an error: beyond the cut-off the result is zero with a warning (issue 13;
+    # tests/test_detector.py::test_bad_detector_inputs checks it)
     ("negative fermi energy", lambda: _hc(fermi_energy_eV=-1.0), "fermi"),
     ("zero attenuation length", lambda: _hc(attenuation_length_nm=0.0), "attenuation"),
     ("contact fraction > 1", lambda: _hc(contact_fraction=1.5), "contact"),
@@ -96,6 +97,39 @@ API_CASES = [
     ("sweep executor unknown", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL,
                                                             executor="threads"), "executor"),
     ("sweep out not csv", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL, out="x.json"), ".csv"),
+    ("sweep chunk_size bool", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL, chunk_size=True),
+     "chunk_size"),
+    ("sweep memory budget nan", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL,
+                                                             memory_budget_MB=float("nan")), "memory_budget_MB"),
+    ("sweep wavelengths reversed", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL[::-1]),
+     "increasing"),
+    ("sweep 2-D sizes", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [[10, 20]]}, WL), "1-D"),
+    ("sweep surface damping text", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL,
+                                                                surface_damping="no"), "True or False"),
+    ("sweep material int", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10], "material": {"Au": 1}}, WL),
+     "material name"),
+    ("sweep medium unknown", lambda: nanoabs.design.sweep("sphere", {"radius_nm": [10]}, WL, medium="Xx"),
+     "unknown material"),
+    ("sweep polarization unknown", lambda: nanoabs.design.sweep("spheroid", {"length_nm": [40], "diameter_nm": [10]},
+                                                                WL, polarization="diag"), "polarization"),
+    ("sweep thin shell", lambda: nanoabs.design.sweep("shell", {"core_radius_nm": [20], "thickness_nm": [0.01]},
+                                                      WL), "monolayer"),
+    ("search band one edge", lambda: nanoabs.design.search((700,)), "band_nm"),
+    ("search materials empty", lambda: nanoabs.design.search((700, 800), materials=[]), "empty"),
+    ("search materials dict", lambda: nanoabs.design.search((700, 800), materials={"Au": 1}), "materials"),
+    ("search families dict", lambda: nanoabs.design.search((700, 800), families={"rod": 1}), "families"),
+    ("search bounds reversed", lambda: nanoabs.design.search((700, 800), families=["sphere"],
+                                                             bounds={"sphere": {"radius_nm": (50, 10)}}), "lo < hi"),
+    ("search max size small", lambda: nanoabs.design.search((700, 800), max_size_nm=5), "max_size_nm"),
+    ("search surface damping text", lambda: nanoabs.design.search((700, 800), surface_damping="yes"),
+     "True or False"),
+    ("ensemble histogram mismatch", lambda: nanoabs.design.ensemble_average(
+        "sphere", {"radius_nm": 20}, {}, WL, distribution={"radius_nm": ([10, 20], [1.0])}), "same length"),
+    ("ensemble histogram and spread", lambda: nanoabs.design.ensemble_average(
+        "sphere", {"radius_nm": 20}, {"radius_nm": 0.1}, WL, distribution={"radius_nm": ([10], [1.0])}),
+     "spread must be empty"),
+    ("ensemble nominal array", lambda: nanoabs.design.ensemble_average("sphere", {"radius_nm": [10, 20]}, {}, WL),
+     "one value"),
 ]
 
 
@@ -142,9 +176,19 @@ CLI_CASES = [
      "unknown material"),
     ("sweep missing table", "sweep --shape sphere --param radius_nm=10 --material nothere.csv", "not found"),
     ("sweep out dir missing", "sweep --shape sphere --param radius_nm=10 -o nodir/s.csv", "does not exist"),
+    ("sweep plot dir missing", "sweep --shape sphere --param radius_nm=10 --plot nodir/m.png", "does not exist"),
+    ("sweep plot suffix", "sweep --shape sphere --param radius_nm=10 --plot m.gif", ".png or .svg"),
     ("search too many starts top", "search --band 700:800 --top 0", "top"),
     ("run debug after command", "run missing.toml -o out --debug", "not found"),
     ("demo empty output", "demo -o", "expected one argument"),
+    ("sweep unknown shape", "sweep --shape cube --param radius_nm=10", "invalid choice"),
+    ("sweep unknown method", "sweep --shape sphere --param radius_nm=10 --method fdtd", "method"),
+    ("sweep wl reversed", "sweep --shape sphere --param radius_nm=10 --wl 900:400:5", "START < STOP"),
+    ("sweep max points text", "sweep --shape sphere --param radius_nm=10 --max-points lots", "invalid int"),
+    ("search band reversed", "search --band 800:700", "START < STOP"),
+    ("search unknown family", "search --band 700:800 --families rod,cube", "family"),
+    ("search unknown objective", "search --band 700:800 --objective speed", "objective"),
+    ("search band and centre", "search --band 700:800 --center 750 --width 10", "either"),
 ]
 
 
@@ -159,8 +203,8 @@ def test_cli_bad_input(what, argv, needle, tmp_path, monkeypatch, capsys):
     assert not (tmp_path / "o.csv").exists() and not (tmp_path / "out").exists()
 
 
-def test_at_least_forty_distinct_cases():
-    assert len(API_CASES) + len(CLI_CASES) + len(STUDY_CASES) + len(RUN_CASES) >= 90
+def test_at_least_150_distinct_cases():
+    assert len(API_CASES) + len(CLI_CASES) + len(STUDY_CASES) + len(RUN_CASES) >= 150
 
 
 # -- study files --------------------------------------------------------------
@@ -252,6 +296,11 @@ RUN_CASES = [  # (what, study text, extra argv, message): validated before anyth
     ("output is a file", GOOD, ["-o", "afile"], "not a folder"),
     ("output parent missing", GOOD, ["-o", "no/such/dir"], "does not exist"),
     ("debug after command", GOOD.replace("radius_nm = 20", "radius_nm = -20"), ["--debug"], "radius"),
+    ("particle material unknown", GOOD.replace('material = "Au"', 'material = "Xx"'), [], "unknown material"),
+    ("sweep shell core unknown", GOOD + SWEEP.replace('"sphere"', '"shell"').replace('"radius_nm"',
+                                 '"thickness_nm"') + 'core = "Xx"\ncore_radius_nm = 20\n', [], "unknown material"),
+    ("injection without band source", GOOD + '[search]\nband_nm = [700, 800]\nobjective = "injection"\n', [],
+     "monochromatic"),
 ]
 
 
@@ -267,6 +316,29 @@ def test_run_validates_everything_before_writing(what, text, extra, needle, tmp_
     assert needle in err, err
     assert err.count("\n") == 1 and "Traceback" not in err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["afile", "s.toml"]
+
+
+@pytest.mark.parametrize("argv", [["sweep", "--shape", "sphere", "--param", "radius_nm=10", "-o", ""],
+                                  ["sweep", "--shape", "sphere", "--param", "radius_nm=10", "--plot", ""],
+                                  ["search", "--band", "700:800", "-o", ""],
+                                  ["demo", "-o", ""]])
+def test_empty_output_names_are_refused(argv, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert main(argv + ["--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "''" in err, err
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.skipif(not __import__("os").path.isdir("/proc/self"), reason="needs the Linux /proc filesystem")
+@pytest.mark.parametrize("argv", [["sweep", "--shape", "sphere", "--param", "radius_nm=10", "-o", "/proc/x.csv"],
+                                  ["run", "s.toml", "-o", "/proc/rep"], ["run", "s.toml", "-o", "/dev/null"]])
+def test_special_filesystems_give_one_line_errors(argv, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "s.toml").write_text(GOOD)
+    assert main(argv + ["--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err, err
 
 
 @pytest.mark.skipif(not hasattr(__import__("os"), "geteuid") or __import__("os").geteuid() == 0,
@@ -385,3 +457,17 @@ def test_fuzz_design_constructors(shape, names, values, kw):
             assert "\n" not in str(exc)
             continue
         assert np.all(np.isfinite(res.sigma_abs_m2 if hasattr(res, "sigma_abs_m2") else res["sigma_abs_m2"]))
+
+
+@pytest.mark.parametrize("text,n,last", [("1936.9:1937:0.1", 2, 1937.0), ("0.1:0.3:0.1", 3, 0.3),
+                                         ("400:401:0.3", 4, 400.9), ("400:1000:2", 301, 1000.0),
+                                         ("1:2:0.1", 11, 2.0)])
+def test_study_grids_are_proof_against_decimal_rounding(text, n, last):
+    # Source: arithmetic. A step that divides the range up to rounding reaches STOP exactly;
+    # no point lies beyond STOP (a point a rounding error past a table's end would fail there).
+    from nanoabs.study import _wavelengths
+
+    start, stop, step = (float(v) for v in text.split(":"))
+    g = _wavelengths({"wavelengths": {"start_nm": start, "stop_nm": stop, "step_nm": step}})
+    assert g.size == n and g[-1] == last and g.max() <= stop and g[0] == start
+    np.testing.assert_allclose(np.diff(g), step, rtol=1e-9)

@@ -69,7 +69,8 @@ formats = ["svg"]
     assert "Au 20" in text and (tmp_path / "r" / "spectra.svg").exists()
     df, meta = nanoabs.read_export(tmp_path / "r" / "au_20_hot_carriers.csv")
     # laser: peak irradiance of a Gaussian beam 2P/(pi w^2) at every wavelength
-    assert df.irradiance_W_m2_nm.iloc[0] == pytest.approx(2 * 0.01 / (3.141592653589793 * (5e-4) ** 2))
+    assert df.irradiance_W_m2.iloc[0] == pytest.approx(  # monochromatic: W/m^2 (export format 2)
+        2 * 0.01 / (3.141592653589793 * (5e-4) ** 2))
 
 
 def test_emission_figure_uses_each_metals_fermi_energy(tmp_path, monkeypatch):
@@ -134,21 +135,12 @@ diameter_nm = 20
 
 
 _SMALL = """
-[study]
-title = "names"
-[medium]
-index = 1.33
-[wavelengths]
-start_nm = 450
-stop_nm = 800
-step_nm = 10
-[illumination]
-kind = "flat"
-value_W_m2_nm = 1.0
-[detector]
-barrier_eV = 0.8
-[output]
-figures = false
+study = {title = "names"}
+medium = {index = 1.33}
+wavelengths = {start_nm = 450, stop_nm = 800, step_nm = 10}
+illumination = {kind = "flat", value_W_m2_nm = 1.0}
+detector = {barrier_eV = 0.8}
+output = {figures = false}
 """
 
 

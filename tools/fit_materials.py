@@ -40,6 +40,14 @@ FITS = [
     ("Al", "rakic-1995", (200, 5000), 4, 1.0),
     ("Al", "mcpeak-2015", (200, 1700), 4, 1.0),
     ("TiN", "beliaev-2023-sputtered", (300, 5000), 3, 1.5),
+    # Transition metals: d bands cross E_F, so interband absorption reaches into the infrared;
+    # the lowest oscillator may sit at 0.3 eV and the Drude term is only the free-carrier part.
+    ("Pt", "rakic-1998-ld", (300, 5000), 4, 0.3),
+    ("Pd", "rakic-1998-ld", (300, 5000), 4, 0.3),
+    ("Ni", "rakic-1998-ld", (300, 5000), 4, 0.3),
+    ("Ti", "rakic-1998-ld", (300, 5000), 4, 0.3),
+    ("Cr", "rakic-1998-ld", (300, 5000), 4, 0.3),
+    ("W", "rakic-1998-ld", (300, 5000), 4, 0.3),
 ]
 
 

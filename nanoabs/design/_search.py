@@ -467,7 +467,8 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
             "max_size": max_size, "n_starts": n_starts, "window": window,
             "band_wl": np.concatenate([b[2] for b in band_grids]),
             "inj_meta": inj_meta, "fam_bounds": _family_bounds(bounds, families, min_shell, max_size),
-            "settings": {"method": method, "polarization": polarization, "surface_damping": check_flag("surface_damping", surface_damping)}}
+            "settings": {"method": method, "polarization": polarization,
+                         "surface_damping": check_flag("surface_damping", surface_damping)}}
 
 
 def _injection_inputs(lo, hi, band_wl, mats, illumination, barrier_eV, fermi_energy_eV):
