@@ -69,6 +69,7 @@ import platform  # noqa: E402
 import subprocess  # noqa: E402
 import tempfile  # noqa: E402
 import time  # noqa: E402
+import warnings  # noqa: E402
 
 import numpy as np  # noqa: E402
 
@@ -109,7 +110,10 @@ MIEPYTHON, JIT_ON, T_IMPORT_MIEPYTHON, NUMBA_CACHE_BEFORE, BACKEND_NOTE = _impor
 import scipy  # noqa: E402
 
 import nanoabs  # noqa: E402
-from nanoabs import _compiled, _compiled_mie  # noqa: E402
+from nanoabs import _compiled_mie  # noqa: E402
+from nanoabs.validity import NanoabsWarning  # noqa: E402
+
+warnings.simplefilter("ignore", NanoabsWarning)  # validity cautions of the bench grids (known)
 from nanoabs.mie import mie_cross_sections_nm2, mie_layered, n_terms  # noqa: E402
 
 # ---------------------------------------------------------------------------
