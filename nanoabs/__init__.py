@@ -20,7 +20,7 @@ __version__ = _version()
 from ._errors import NanoabsError  # noqa: E402
 from .drude_lorentz import DrudeLorentz, Oscillator, fit_drude_lorentz, rakic_1998  # noqa: E402
 from .materials import Material, load_table, material  # noqa: E402
-from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid  # noqa: E402
+from .particles import CappedRod, Cylinder, Ellipsoid, LayeredSphere, RoundedDisc, Sphere, spheroid  # noqa: E402
 from .optics import Spectrum, spectrum  # noqa: E402
 from .detector import HotCarrierResult, hot_carrier_estimate  # noqa: E402
 from .export import read_export, write_export  # noqa: E402
@@ -40,6 +40,9 @@ __all__ = [
     "LayeredSphere",
     "Ellipsoid",
     "spheroid",
+    "Cylinder",
+    "CappedRod",
+    "RoundedDisc",
     "Spectrum",
     "spectrum",
     "HotCarrierResult",

@@ -182,6 +182,10 @@ def _cmd_materials(args) -> int:
 # -- particles, spectrum, hot-carriers -------------------------------------------
 
 
+PARTICLE_SHAPES = ["sphere", "shell", "spheroid", "ellipsoid", "cylinder", "capped-rod", "rounded-disc"]
+_AXIAL_SHAPES = ("spheroid", "cylinder", "capped-rod", "rounded-disc")
+
+
 def _material_arg(text, option):
     """'Au' or 'Au:mcpeak-2015' (material:dataset) or a number."""
     from .materials import material
@@ -201,7 +205,7 @@ def _particle_from_args(args):
 
 
 def _build_particle(args):
-    from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid
+    from .particles import CappedRod, Cylinder, Ellipsoid, LayeredSphere, RoundedDisc, Sphere, spheroid
 
     shape = args.shape
     if shape == "sphere":
@@ -228,6 +232,11 @@ def _build_particle(args):
         if args.length is None or args.diameter is None:
             raise NanoabsError("--length and --diameter [nm] are required for --shape spheroid")
         return spheroid(_material_arg(args.material, "--material"), args.length, args.diameter, shell=shell)
+    if shape in ("cylinder", "capped-rod", "rounded-disc"):
+        if args.length is None or args.diameter is None or shell is not None:
+            raise NanoabsError(f"--shape {shape} needs --length and --diameter [nm] (no --shell)")
+        kind = {"cylinder": Cylinder, "capped-rod": CappedRod, "rounded-disc": RoundedDisc}[shape]
+        return kind(_material_arg(args.material, "--material"), args.length, args.diameter)
     if shape == "ellipsoid":
         if args.semi_axes is None:
             raise NanoabsError("--semi-axes A,B,C [nm] is required for --shape ellipsoid")
@@ -238,7 +247,7 @@ def _build_particle(args):
         if len(axes) != 3:
             raise NanoabsError(f"--semi-axes = {args.semi_axes!r}: expected exactly three numbers A,B,C in nm")
         return Ellipsoid(_material_arg(args.material, "--material"), axes, shell)
-    raise NanoabsError(f"--shape = {shape!r}: allowed: sphere, shell, spheroid, ellipsoid")
+    raise NanoabsError(f"--shape = {shape!r}: allowed: {', '.join(PARTICLE_SHAPES)}")
 
 
 def _medium_arg(text):
@@ -252,7 +261,7 @@ def _spectrum_from_args(args):
 
     particle = _particle_from_args(args)
     wl = parse_range(args.wl)
-    pol = args.polarization or ("long" if args.shape == "spheroid" else "x")
+    pol = args.polarization or ("long" if args.shape in _AXIAL_SHAPES else "x")
     spec = spectrum(particle, wl, medium=_medium_arg(args.medium), method=args.method,
                     polarization=pol, surface_damping=not args.no_surface_damping,
                     damping_A=args.damping_a)
@@ -432,21 +441,23 @@ def _print_hot_carrier_summary(res, illum):
 
 def _add_particle_options(p):
     g = p.add_argument_group("particle (lengths in nm)")
-    g.add_argument("--shape", required=True, choices=["sphere", "shell", "spheroid", "ellipsoid"])
+    g.add_argument("--shape", required=True, choices=PARTICLE_SHAPES)
     g.add_argument("--material", help="particle material, e.g. Au or Au:mcpeak-2015 (material:dataset)")
     g.add_argument("--radius", type=float, help="sphere radius [nm]")
     g.add_argument("--core", help="shell: core material (default --material)")
     g.add_argument("--core-radius", type=float, help="shell: core radius [nm]")
     g.add_argument("--shell", action="append", help="shell material (repeat for more shells, core outward)")
     g.add_argument("--thickness", type=float, action="append", help="shell thickness [nm] (one per --shell)")
-    g.add_argument("--length", type=float, help="spheroid: extent along the symmetry axis [nm]")
-    g.add_argument("--diameter", type=float, help="spheroid: diameter [nm]")
+    g.add_argument("--length", type=float, help="spheroid, cylinder, capped-rod, rounded-disc: extent along "
+                   "the symmetry axis (tip to tip) [nm]")
+    g.add_argument("--diameter", type=float, help="spheroid, cylinder, capped-rod, rounded-disc: diameter [nm]")
     g.add_argument("--semi-axes", help="ellipsoid: A,B,C semi-axes along x,y,z [nm]")
-    g.add_argument("--polarization", help="spheroid: long|short|random; ellipsoid: x|y|z|random")
+    g.add_argument("--polarization", help="spheroid, cylinder, capped-rod, rounded-disc: long|short|random; "
+                   "ellipsoid: x|y|z|random")
     g.add_argument("--medium", default="water", help="medium name or refractive index (default water)")
     g.add_argument("--wl", default="400:1000:2",
                    help="wavelengths START:STOP:STEP or a list V1,V2,... [nm] (default 400:1000:2)")
-    g.add_argument("--method", default="auto", help="auto|mie|miepython|quasistatic|mlwa")
+    g.add_argument("--method", default="auto", help="auto|mie|miepython|quasistatic|mlwa|tmatrix")
     g.add_argument("--no-surface-damping", action="store_true", help="turn the size correction off")
     g.add_argument("--damping-a", type=float, default=1.0, help="surface-scattering parameter A (default 1)")
     p.add_argument("-o", "--output", help="write CSV (+ JSON sidecar) or .json")
@@ -524,7 +535,7 @@ def _cmd_export_generation(args) -> int:
     irradiance = parse_irradiance(args.irradiance)
     particle = _particle_from_args(args)
     wl = _parse_values(args.wl, "--wl")
-    pol = args.polarization or ("long" if args.shape == "spheroid" else "x")
+    pol = args.polarization or ("long" if args.shape in _AXIAL_SHAPES else "x")
     from .optics import spectrum
 
     spec = spectrum(particle, wl, medium=_medium_arg(args.medium), method=args.method, polarization=pol,

@@ -352,7 +352,8 @@ def _damping_extra_eV(mat, length_nm, on, A, notes, label):
 
 def _check_particle(particle):
     if not hasattr(particle, "layer_materials"):
-        raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere or Ellipsoid")
+        raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere, Ellipsoid, "
+                           "Cylinder or CappedRod")
 
 
 def _environment(medium, environment):
@@ -442,7 +443,7 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
         "method_reason": reason,
         "solver_backend": resp.backend,
         "method_reference": solver.reference,
-        "polarization": "any (sphere)" if particle.shape != "ellipsoid" else pol,
+        "polarization": "any (sphere)" if particle.shape in ("sphere", "layered sphere") else pol,
         "efficiency_reference_area": ref_area,
         "q_abs_eqvol_reference_area": "pi r_v^2 of the equal-volume sphere",
         "environment": env.describe(),

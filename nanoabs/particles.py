@@ -1,4 +1,5 @@
-"""Particle geometries: sphere, layered sphere, ellipsoid (optionally with a confocal shell), spheroid.
+"""Particle geometries: sphere, layered sphere, ellipsoid (optionally with a confocal shell), spheroid,
+finite cylinder and capped rod.
 
 Sizes are in nm. A size is a real number, or an explicitly shaped array of two or
 more axes: a *family* with a last axis of length 1 (e.g. radius of shape (P, 1)),
@@ -17,6 +18,7 @@ substrate carrying the particle in the x–y plane) when the field is along x or
 y, and along x when the field is along z. A rod from :func:`spheroid` with
 length > diameter lies along x; a disc (length < diameter) has its symmetry axis
 along z. "long" and "short" pick the field along the long or a short axis.
+Cylinders, capped rods and rounded discs follow the same rule (rod along x, disc axis along z).
 """
 
 from __future__ import annotations
@@ -29,8 +31,8 @@ import numpy as np
 
 from ._errors import NanoabsError, _fmt, check_choice, check_positive
 
-__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "MONOLAYER_NM", "MAX_SIZE_NM",
-           "check_size_family"]
+__all__ = ["Sphere", "LayeredSphere", "Ellipsoid", "spheroid", "Cylinder", "CappedRod", "RoundedDisc",
+           "MONOLAYER_NM", "MAX_SIZE_NM", "check_size_family"]
 
 #: Thinnest shell accepted [nm]: about one atomic monolayer of gold/silver
 #: (lattice constant 0.408 nm; (111) spacing 0.236 nm; common practice to call
@@ -364,6 +366,167 @@ def spheroid(material, length_nm, diameter_nm, *, shell=None) -> Ellipsoid:
         if np.all(L < D):
             return Ellipsoid(material, (D / 2, D / 2, L / 2), shell, kind="disc")
     return Ellipsoid(material, (L / 2, D / 2, D / 2), shell, kind="rod")
+
+
+@dataclass
+class _RoundBody:
+    """Homogeneous body of revolution with flat or rounded ends (subclasses set ``shape``).
+
+    ``length_nm`` is the extent along the symmetry axis (tip to tip), ``diameter_nm``
+    across it [nm]. A rod (length >= diameter) lies along x, a disc along z.
+    """
+
+    material: object
+    length_nm: object
+    diameter_nm: object
+
+    def __post_init__(self):
+        self.material = _mat(self.material)
+        self.length_nm = _size("length", self.length_nm)
+        self.diameter_nm = _size("diameter", self.diameter_nm)
+        _common_shape(self.shape, self.length_nm, self.diameter_nm)
+        rods = self.length_nm >= self.diameter_nm
+        if np.any(rods) and not np.all(rods):
+            raise NanoabsError("length/diameter arrays must be all rods (length >= diameter) or all discs")
+        self.kind = "rod" if np.all(rods) else "disc"
+
+    def volume_nm3(self):  # pragma: no cover - each shape defines its own
+        raise NotImplementedError
+
+    def surface_nm2(self):  # pragma: no cover
+        raise NotImplementedError
+
+    def side_area_nm2(self):  # pragma: no cover
+        """Projected area seen from the side (light perpendicular to the axis) [nm²]."""
+        raise NotImplementedError
+
+    def layer_materials(self) -> list:
+        return [self.material]
+
+    def layer_labels(self) -> list:
+        return [self.shape]
+
+    def damping_lengths_nm(self) -> list:
+        """4V/S (Coronado & Schatz, J. Chem. Phys. 119, 3926 (2003))."""
+        return [4.0 * self.volume_nm3() / self.surface_nm2()]
+
+    def outer_semi_axes_nm(self) -> tuple:
+        L, R = self.length_nm / 2, self.diameter_nm / 2
+        return (L, R, R) if self.kind == "rod" else (R, R, L)
+
+    def reference_area_nm2(self, polarization):
+        """(geometric cross-section [nm²], description), as for :class:`Ellipsoid`."""
+        if polarization == "random":
+            return self.surface_nm2() / 4.0, "surface area / 4 (random orientation, Cauchy's theorem)"
+        along_axis = (polarization == "z") == (self.kind == "rod")  # light along the symmetry axis
+        if along_axis:
+            return np.pi * (self.diameter_nm / 2) ** 2, "end-on projected area pi D^2/4 (light along the axis)"
+        return self.side_area_nm2(), "side-on projected area (light perpendicular to the axis)"
+
+    def equal_volume_area_nm2(self):
+        return np.pi * (3 * self.volume_nm3() / (4 * np.pi)) ** (2.0 / 3.0)
+
+    def metal_volume_nm3(self):
+        return self.volume_nm3() if self.material.is_metal else 0.0
+
+    def describe(self) -> dict:
+        return {"shape": self.shape, "material": self.material.label, "length_nm": _plain(self.length_nm),
+                "diameter_nm": _plain(self.diameter_nm), "kind": self.kind}
+
+
+_BODY_PARAMETERS = """
+    Parameters
+    ----------
+    material : str, float or Material
+        Particle material (name, constant refractive index or a material object).
+    length_nm : float or array_like
+        Extent along the symmetry axis, tip to tip [nm]; a family has shape (P, 1).
+    diameter_nm : float or array_like
+        Extent across the axis [nm].
+    """
+
+
+class Cylinder(_RoundBody):
+    __doc__ = ("Finite homogeneous cylinder with flat ends: ``Cylinder(material, length_nm, diameter_nm)``.\n"
+               + _BODY_PARAMETERS)
+
+    shape = "cylinder"
+
+    def volume_nm3(self):
+        return np.pi * (self.diameter_nm / 2) ** 2 * self.length_nm
+
+    def surface_nm2(self):
+        R = self.diameter_nm / 2
+        return 2 * np.pi * R * (R + self.length_nm)
+
+    def side_area_nm2(self):
+        return self.length_nm * self.diameter_nm
+
+
+class CappedRod(_RoundBody):
+    __doc__ = "Rod with hemispherical caps, ``length_nm`` tip to tip (>= ``diameter_nm``).\n" + _BODY_PARAMETERS
+
+    shape = "capped-rod"
+
+    def __post_init__(self):
+        super().__post_init__()
+        if self.kind != "rod":
+            raise NanoabsError(f"length = {_plain(self.length_nm)} nm: a capped rod needs length >= diameter "
+                               f"({_plain(self.diameter_nm)} nm)")
+
+    def volume_nm3(self):
+        R = self.diameter_nm / 2
+        return np.pi * R**2 * (self.length_nm - 2 * R) + 4.0 / 3.0 * np.pi * R**3
+
+    def surface_nm2(self):
+        R = self.diameter_nm / 2
+        return 2 * np.pi * R * (self.length_nm - 2 * R) + 4 * np.pi * R**2
+
+    def side_area_nm2(self):
+        R = self.diameter_nm / 2
+        return 2 * R * (self.length_nm - 2 * R) + np.pi * R**2
+
+
+class RoundedDisc(_RoundBody):
+    """Disc with a rounded rim (a half-torus of radius length/2), ``length_nm`` <= ``diameter_nm``.
+
+    Volume and area by Pappus's theorems: the rim is a half-disc (area π a²/2,
+    centroid at ρ0 + 4a/3π) or a half-circle (length π a, centroid at ρ0 + 2a/π)
+    turned about the axis, with a = length/2 and ρ0 = diameter/2 − a.
+
+    Parameters
+    ----------
+    material : str, float or Material
+        Particle material (name, constant refractive index or a material object).
+    length_nm : float or array_like
+        Thickness of the disc (<= ``diameter_nm``) [nm]; a family has shape (P, 1).
+    diameter_nm : float or array_like
+        Extent across the axis, rim included [nm].
+    """
+
+    shape = "rounded-disc"
+
+    def __post_init__(self):
+        super().__post_init__()
+        if np.any(self.length_nm > self.diameter_nm):
+            raise NanoabsError(f"length = {_plain(self.length_nm)} nm: a rounded disc needs length <= diameter "
+                               f"({_plain(self.diameter_nm)} nm)")
+
+    def _a_rho0(self):
+        a = self.length_nm / 2
+        return a, self.diameter_nm / 2 - a
+
+    def volume_nm3(self):
+        a, p0 = self._a_rho0()
+        return 2 * np.pi * a * p0**2 + np.pi**2 * a**2 * p0 + 4.0 / 3.0 * np.pi * a**3
+
+    def surface_nm2(self):
+        a, p0 = self._a_rho0()
+        return 2 * np.pi * p0**2 + 2 * np.pi**2 * a * p0 + 4 * np.pi * a**2
+
+    def side_area_nm2(self):
+        a, p0 = self._a_rho0()
+        return 4 * a * p0 + np.pi * a**2
 
 
 def resolve_polarization(particle, polarization: str) -> str:

@@ -271,9 +271,10 @@ class Solver:
 
 
 def _table():
-    from . import dipole, mie
+    from . import dipole, mie, tmatrix
 
-    solvers = [mie.MieSolver(), mie.MiepythonSolver(), dipole.StaticDipole(), dipole.CorrectedDipole()]
+    solvers = [mie.MieSolver(), mie.MiepythonSolver(), dipole.StaticDipole(), dipole.CorrectedDipole(),
+               tmatrix.TMatrixSolver()]
     return {s.name: s for s in solvers}
 
 
@@ -281,7 +282,7 @@ def _table():
 METHODS: dict = _table()
 
 #: Preference order of the ``"auto"`` rule: exact methods first, dipole methods last.
-AUTO_ORDER = ("mie", "mlwa")
+AUTO_ORDER = ("mie", "mlwa", "tmatrix")
 
 
 def choose(method: str, particle, environment) -> tuple:
@@ -289,14 +290,14 @@ def choose(method: str, particle, environment) -> tuple:
 
     The ``"auto"`` rule takes the first solver in :data:`AUTO_ORDER` that accepts
     the particle and the environment: full Mie for spheres and layered spheres,
-    the corrected quasi-static model for ellipsoids. The reason is recorded in
-    the metadata.
+    the corrected quasi-static model for ellipsoids, the T-matrix for cylinders,
+    capped rods and rounded discs. The reason is recorded in the metadata.
 
     Parameters
     ----------
     method : str
         ``"auto"`` or a key of :data:`METHODS` (case-insensitive).
-    particle : Sphere, LayeredSphere or Ellipsoid
+    particle : Sphere, LayeredSphere, Ellipsoid, Cylinder, CappedRod or RoundedDisc
         The particle.
     environment : object
         The environment (its ``kind`` must be served by the solver).

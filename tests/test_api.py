@@ -11,7 +11,7 @@ ROOT = Path(__file__).resolve().parents[1]
 EXPECTED = {
     "__version__", "NanoabsError", "DrudeLorentz", "Oscillator", "fit_drude_lorentz", "rakic_1998",
     "Material", "material", "load_table", "Sphere", "LayeredSphere", "Ellipsoid", "spheroid",
-    "Spectrum", "spectrum", "HotCarrierResult", "hot_carrier_estimate", "read_export", "write_export",
+    "Cylinder", "CappedRod", "RoundedDisc", "Spectrum", "spectrum", "HotCarrierResult", "hot_carrier_estimate", "read_export", "write_export",
     "illumination", "design",
 }
 
