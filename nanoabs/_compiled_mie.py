@@ -1,13 +1,16 @@
 """The per-order formulas of the Mie recursion, written once, and their compiled kernel.
 
-The functions ``outer_step``, ``layer_step``, ``coefficients`` and ``expm1_2iz``
-use only arithmetic and numpy ufuncs, so they run unchanged on numpy arrays
+The functions ``outer_order0``, ``outer_step``, ``layer_order0``,
+``layer_step``, ``coefficients``, ``expm1_2iz``, ``recip`` and ``d1_start`` use
+only arithmetic and numpy ufuncs, so they run unchanged on numpy arrays
 (:func:`nanoabs.mie._recursion`, the numpy path, vectorised over points) and on
 scalars inside the numba kernel ``_mie_kernel`` below (registered with numba's
 ``register_jitable`` when the kernel is built).  There is one source of the
-formulas; the kernel adds only the loops: over blocks of points in parallel,
-over the points of a block (typically the wavelengths of one size), over the
-orders n and over the layers.  The formulas and their references are in
+formulas; the kernel adds only the loops: over blocks of 64 points in parallel,
+and within a block, in lockstep over its points (typically the wavelengths of
+one size), the downward D1 recurrences and the orders n and layers.  The only
+formula written twice is the one-line D1 step of Bohren & Huffman eq. 4.89
+(here and in ``mie._d1_down``).  The formulas and their references are in
 :func:`nanoabs.mie.mie_layered` (Notes) and :func:`nanoabs.mie._recursion`.
 
 What the kernel does differently from the numpy path, and why the two still agree
@@ -22,7 +25,10 @@ to round-off (tests/test_compiled_mie.py holds them to 1e-12):
   (``conj(t) / |t|^2``), which is safe for the magnitudes met here (|t| between
   about 1e-8 and 1e8 for size parameters >= 1e-4);
 * only the scattering and absorption sums are formed (no asymmetry or
-  backscattering sums, which spectra do not use).
+  backscattering sums, which spectra do not use);
+* complex reciprocals are ``conj(z)/|z|^2`` (`recip`; numba's own complex
+  division is CPython's, three divisions and branches), and divisions by zero
+  give inf/nan as in numpy (``error_model="numpy"``).
 
 All points share numba's thread pool; calls are serialised by the lock of
 :mod:`nanoabs._compiled`, and the kernel is cached on disk (``cache=True``).  The
