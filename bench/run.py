@@ -150,7 +150,7 @@ def case_b(wl=WL_A, r=R_A):
 
 def case_c(wl=WL_C, length=L_C):
     return nanoabs.spectrum(nanoabs.spheroid("Au", length, D_C), wl, medium=MEDIUM,
-                            polarization="random")
+                            polarization="random", method="mlwa")
 
 
 def case_d():
@@ -199,7 +199,8 @@ FIRST_CALL = (
     "t1 = time.perf_counter(); ok = _compiled_mie.available(); t2 = time.perf_counter()\n"
     "s = nanoabs.spectrum(nanoabs.Sphere('Au', np.linspace(5, 100, 40)[:, None]), np.linspace(400, 900, 500))\n"
     "t3 = time.perf_counter()\n"
-    "e = nanoabs.spectrum(nanoabs.spheroid('Au', np.array([[60.0]]), 20.0), np.linspace(500, 900, 5))\n"
+    "e = nanoabs.spectrum(nanoabs.spheroid('Au', np.array([[60.0]]), 20.0), np.linspace(500, 900, 5),"
+    " method='mlwa')\n"
     "t4 = time.perf_counter()\n"
     "print(json.dumps({'import_s': t1 - t0, 'numba_import_and_build_s': t2 - t1,"
     " 'mie_first_call_s': t3 - t2, 'mlwa_first_call_s': t4 - t3,"

@@ -78,8 +78,18 @@ class HotCarrierResult:
         return write_export(frame, path, metadata=meta, units=units, force=force)
 
     def plot(self, ax=None):
-        """Responsivity [mA/W] (and D* with a device area) against wavelength, cut-off marked;
-        returns the Axes (see :func:`nanoabs.plotting.plot_detector`)."""
+        """Responsivity [mA/W] (and D* with a device area) against wavelength, cut-off marked.
+
+        Parameters
+        ----------
+        ax : matplotlib.axes.Axes, optional
+            Where to draw; a new figure through pyplot when omitted (shown inline in notebooks).
+
+        Returns
+        -------
+        matplotlib.axes.Axes
+            The responsivity axes (see :func:`nanoabs.plotting.plot_detector`).
+        """
         from .plotting import plot_detector
 
         if ax is None:

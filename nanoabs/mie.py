@@ -662,9 +662,11 @@ def mie_coefficients_layered(m, x, n_max):
 # --------------------------------------------------------------------------
 
 
-def _intensity_chunk(m, x, rho, nstop, n_max):
+def _intensity_chunk(m, x, rho, nstop, n_max, weights=None):
     """Angle-averaged <|E|^2>/|E0|^2 at radii ``rho`` (P, R) inside the particle.
 
+    ``weights`` (2, N, P): per-order weights of the TE (M) and TM (N) parts of the
+    exciting field relative to a unit plane wave (None: the plane wave itself).
     Returns (intensity, layer_index) with shape (P, R); layer_index = -1 outside.
     """
     L, P = m.shape
@@ -724,28 +726,36 @@ def _intensity_chunk(m, x, rho, nstop, n_max):
                 Tp = cT * d1w
                 S = cS
             t2 = T.real**2 + T.imag**2
-            acc += (n + 0.5) * aw2 * (
-                S.real**2 + S.imag**2 + Tp.real**2 + Tp.imag**2 + n * (n + 1) * t2 * aw2
-            )
+            if weights is None:
+                acc += (n + 0.5) * aw2 * (
+                    S.real**2 + S.imag**2 + Tp.real**2 + Tp.imag**2 + n * (n + 1) * t2 * aw2
+                )
+            elif n <= weights.shape[1]:
+                acc += (n + 0.5) * aw2 * (weights[0, n - 1][:, None] * (S.real**2 + S.imag**2)
+                                          + weights[1, n - 1][:, None] * (Tp.real**2 + Tp.imag**2
+                                                                          + n * (n + 1) * t2 * aw2))
         out = np.where(inl, acc, out)
         layer = np.where(inl, l, layer)
     return out, layer
 
 
-def _profile_driver(m, x, rho_pts):
-    """Evaluate the intensity for flattened points; rho_pts has shape (P, R)."""
+def _profile_driver(m, x, rho_pts, weights=None):
+    """Evaluate the intensity for flattened points; rho_pts has shape (P, R); weights (2, N, P) or None."""
     L = m.shape[0]
     P = rho_pts.shape[0]
     mf = m.reshape(L, P)
     xf = x.reshape(L, P)
     nstop = n_terms(xf[-1])
+    if weights is not None:
+        nstop = np.maximum(nstop, weights.shape[1])
     R = rho_pts.shape[1]
     inten = np.empty((P, R))
     layer = np.empty((P, R), dtype=int)
     for idx in _chunks(xf[-1], nstop, 4 * L + 10 + 3 * R):
         ns = nstop[idx]
         with np.errstate(under="ignore"):
-            i, la = _intensity_chunk(mf[:, idx], xf[:, idx], rho_pts[idx], ns, int(ns.max()))
+            i, la = _intensity_chunk(mf[:, idx], xf[:, idx], rho_pts[idx], ns, int(ns.max()),
+                                     None if weights is None else weights[:, :, idx])
         inten[idx] = i
         layer[idx] = la
     return inten, layer, mf, xf
@@ -816,7 +826,7 @@ def internal_intensity_profile(m, x, rho):
     return inten.reshape(grid + (rho.size,))
 
 
-def absorption_profile(m, x, rho):
+def absorption_profile(m, x, rho, *, order_weights=None):
     """Radial profile of the absorbed power density inside a layered sphere.
 
     Parameters
@@ -828,6 +838,11 @@ def absorption_profile(m, x, rho):
     rho : float array_like, shape (R,)
         Radial positions k_medium r [1], > 0; values beyond the outer x of a
         grid point lie in the lossless host and give 0.
+    order_weights : float array_like, shape (2, N, *grid), optional, keyword-only
+        For an exciting field other than a plane wave: sum over m of |e_nm|^2 of its
+        TE (index 0) and TM (index 1) regular-wave coefficients of degree n = 1..N,
+        divided by the plane wave's 2 pi (2n + 1) (`nanoabs.vswf` normalisation;
+        the angle average keeps orders and types apart). Default: a plane wave.
 
     Returns
     -------
@@ -865,7 +880,11 @@ def absorption_profile(m, x, rho):
     rho = _check_rho(rho)
     P = int(np.prod(grid, dtype=int))
     pts = np.broadcast_to(rho, (P, rho.size))
-    inten, layer, mf, _ = _profile_driver(m, x, pts)
+    w = None
+    if order_weights is not None:
+        w = np.asarray(order_weights, dtype=float)
+        w = np.broadcast_to(w, w.shape[:2] + grid).reshape(w.shape[:2] + (P,))
+    inten, layer, mf, _ = _profile_driver(m, x, pts, w)
     return _to_q(inten, layer, mf).reshape(grid + (rho.size,))
 
 
@@ -967,6 +986,7 @@ class MieSolver(_Solver):
     name = "mie"
     reference = "Mie series for (layered) spheres, nanoabs.mie (Yang, Appl. Opt. 42, 1710 (2003))"
     shapes = frozenset({"sphere", "layered sphere"})
+    environments = frozenset({"homogeneous", "on_substrate", "buried"})  # planar: multipole method
 
     @staticmethod
     def inputs(problem):
@@ -989,6 +1009,7 @@ class MiepythonSolver(MieSolver):
     name = "miepython"
     reference = "miepython (S. Prahl) homogeneous-sphere Mie series"
     shapes = frozenset({"sphere"})
+    environments = frozenset({"homogeneous"})
 
     def solve(self, problem):
         import miepython

@@ -417,9 +417,9 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
     check_size_family(particle, wl)
     surface_damping = check_flag("surface_damping", surface_damping)
     env = _environment(medium, environment)
-    solver, reason = choose(method, particle, env)
-    pol = resolve_polarization(particle, polarization)
     n_med, cautions = env.host_index(wl)
+    solver, reason = choose(method, particle, env, wavelength_nm=wl, n_medium=n_med)
+    pol = resolve_polarization(particle, polarization)
     notes = {"cautions": cautions, "surface_damping": []}
     damping = [_damping_extra_eV(mat, L, surface_damping, damping_A, notes, label)
                for mat, L, label in zip(particle.layer_materials(), particle.damping_lengths_nm(),

@@ -200,6 +200,8 @@ class Solver:
     shapes: frozenset = frozenset()
     environments: frozenset = frozenset({"homogeneous"})
     max_ka = math.inf
+    #: Largest k a_max for which the "auto" rule keeps this solver when a later one also accepts.
+    auto_max_ka = math.inf
     advice = ""
 
     def accepts(self, particle) -> str | None:
@@ -285,13 +287,27 @@ METHODS: dict = _table()
 AUTO_ORDER = ("mie", "mlwa", "tmatrix")
 
 
-def choose(method: str, particle, environment) -> tuple:
+def _ka_max(particle, wavelength_nm, n_medium) -> float:
+    """Largest k a_max of the particle (family) over the wavelength grid [1]."""
+    axes = particle.outer_semi_axes_nm()
+    a = np.asarray(axes[0], dtype=float)
+    for b in axes[1:]:
+        a = np.maximum(a, b)
+    return float(np.max(2.0 * np.pi * np.asarray(n_medium) / np.asarray(wavelength_nm)) * np.max(a))
+
+
+def choose(method: str, particle, environment, *, wavelength_nm=None, n_medium=None) -> tuple:
     """(solver, reason): the solver for ``method``, or the ``"auto"`` rule's pick.
 
-    The ``"auto"`` rule takes the first solver in :data:`AUTO_ORDER` that accepts
-    the particle and the environment: full Mie for spheres and layered spheres,
-    the corrected quasi-static model for ellipsoids, the T-matrix for cylinders,
-    capped rods and rounded discs. The reason is recorded in the metadata.
+    The ``"auto"`` rule walks :data:`AUTO_ORDER` (exact Mie, the corrected quasi-static
+    model, the T-matrix) and takes the first solver that accepts the particle and the
+    environment, except that a solver is passed over when the particle is larger than its
+    ``auto_max_ka`` and a later solver in the order accepts it. In effect: full Mie for
+    spheres and layered spheres; for spheroids the corrected quasi-static model up to
+    k a_max = 0.5 (its validity; peak within about 2 % of the T-matrix) and the T-matrix beyond; the
+    T-matrix for cylinders, capped rods and rounded discs; the corrected model for coated and
+    triaxial ellipsoids (with a caution beyond its range). The reason is recorded in the
+    metadata.
 
     Parameters
     ----------
@@ -301,6 +317,8 @@ def choose(method: str, particle, environment) -> tuple:
         The particle.
     environment : object
         The environment (its ``kind`` must be served by the solver).
+    wavelength_nm, n_medium : array, optional
+        Vacuum wavelengths [nm] and host index [1]; without them the size rule is not applied.
 
     Returns
     -------
@@ -321,9 +339,16 @@ def choose(method: str, particle, environment) -> tuple:
         solver = METHODS[method]
         solver.check(particle, environment)
         return solver, "chosen by the caller"
-    for name in AUTO_ORDER:
-        solver = METHODS[name]
-        if solver.accepts(particle) is None and environment.kind in solver.environments:
-            return solver, (f"auto: first method in the order {', '.join(AUTO_ORDER)} that accepts a "
-                            f"{particle.shape} in a {environment.kind} environment")
-    raise NanoabsError(f"no method accepts a {particle.shape} in a {environment.kind} environment")
+    able = [METHODS[n] for n in AUTO_ORDER
+            if METHODS[n].accepts(particle) is None and environment.kind in METHODS[n].environments]
+    if not able:
+        raise NanoabsError(f"no method accepts a {particle.shape} in a {environment.kind} environment")
+    ka = None if wavelength_nm is None else _ka_max(particle, wavelength_nm, n_medium)
+    for i, solver in enumerate(able):
+        if ka is not None and ka > solver.auto_max_ka and i + 1 < len(able):
+            continue
+        why = (f"auto: k a_max = {ka:.2g} is above {able[i - 1].name}'s {able[i - 1].auto_max_ka:g}, so the next "
+               f"method in the order that accepts a {particle.shape}" if i else
+               f"auto: first method in the order {', '.join(AUTO_ORDER)} that accepts a {particle.shape} in a "
+               f"{environment.kind} environment")
+        return solver, why

@@ -86,9 +86,9 @@ CASES = [
 @pytest.mark.parametrize("damping", [True, False])
 def test_spectrum_compiled_equals_numpy(name, make, pol, medium, damping, monkeypatch):
     wl = np.linspace(1200, 1550, 71) if medium == "Si" else np.linspace(420, 1400, 99)
-    fast = nanoabs.spectrum(make(), wl, medium=medium, polarization=pol, surface_damping=damping)
+    fast = nanoabs.spectrum(make(), wl, method="mlwa", medium=medium, polarization=pol, surface_damping=damping)
     monkeypatch.setattr(_compiled, "ENABLED", False)
-    slow = nanoabs.spectrum(make(), wl, medium=medium, polarization=pol, surface_damping=damping)
+    slow = nanoabs.spectrum(make(), wl, method="mlwa", medium=medium, polarization=pol, surface_damping=damping)
     assert fast.metadata["solver_backend"] == "compiled (numba)"
     assert slow.metadata["solver_backend"] == "numpy"
     for attr in ("sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2", "geometric_cross_section_m2",
@@ -102,7 +102,7 @@ def test_spectrum_compiled_equals_numpy(name, make, pol, medium, damping, monkey
 
 def test_geometry_varying_with_wavelength_uses_numpy():
     wl = np.linspace(500, 900, 5)
-    s = nanoabs.spectrum(spheroid("Au", np.linspace(40, 80, 5)[None, :], 20.0), wl, medium="water")
+    s = nanoabs.spectrum(spheroid("Au", np.linspace(40, 80, 5)[None, :], 20.0), wl, medium="water", method="mlwa")
     assert s.metadata["solver_backend"] == "numpy"
     assert s.sigma_abs_m2.shape == (1, 5)  # explicit (1, W): a 1-D size array is refused (particles.py)
 
@@ -112,7 +112,7 @@ def test_concurrent_calls_from_threads(in_threads):
     lengths = np.linspace(40, 200, 300)[:, None]
 
     def rods():
-        return nanoabs.spectrum(spheroid("Au", lengths, 20.0), wl, medium="water").sigma_abs_m2
+        return nanoabs.spectrum(spheroid("Au", lengths, 20.0), wl, medium="water", method="mlwa").sigma_abs_m2
 
     want = rods()
     for g in in_threads(rods):
@@ -123,7 +123,7 @@ def test_unavailable_compiler_falls_back(monkeypatch):
     monkeypatch.setitem(_compiled._STATE, "kernel", None)
     monkeypatch.setitem(_compiled._STATE, "error", "ImportError: simulated")
     assert not _compiled.available()
-    s = nanoabs.spectrum(spheroid("Au", 60.0, 20.0), np.linspace(500, 900, 11), medium="water")
+    s = nanoabs.spectrum(spheroid("Au", 60.0, 20.0), np.linspace(500, 900, 11), medium="water", method="mlwa")
     assert s.metadata["solver_backend"] == "numpy"
     assert np.all(s.sigma_abs_m2 > 0)
 
@@ -137,7 +137,7 @@ def test_forked_sweep_after_compiled_call(fresh_python):
     p = fresh_python(
         "import numpy as np, nanoabs\n"
         "wl = np.linspace(500, 1500, 50)\n"
-        "s = nanoabs.spectrum(nanoabs.spheroid('Au', np.linspace(40, 200, 20)[:, None], 20.0), wl)\n"
+        "s = nanoabs.spectrum(nanoabs.spheroid('Au', np.linspace(40, 200, 20)[:, None], 20.0), wl, method='mlwa')\n"
         "assert s.metadata['solver_backend'] == 'compiled (numba)'\n"
         "r = nanoabs.design.sweep('spheroid', {'length_nm': np.linspace(40, 200, 40), 'diameter_nm': [20.0]},"
         " wl, executor='processes', chunk_size=10, progress=False)\n"
@@ -148,7 +148,7 @@ def test_forked_sweep_after_compiled_call(fresh_python):
 def test_spectrum_with_deferred_eps_pickles():
     import pickle
 
-    s = nanoabs.spectrum(spheroid("Au", np.array([[50.0], [80.0]]), 20.0), np.linspace(500, 900, 9))
+    s = nanoabs.spectrum(spheroid("Au", np.array([[50.0], [80.0]]), 20.0), np.linspace(500, 900, 9), method="mlwa")
     assert s.metadata["solver_backend"] == "compiled (numba)"
     t = pickle.loads(pickle.dumps(s))
     np.testing.assert_array_equal(t.sigma_abs_m2, s.sigma_abs_m2)
@@ -158,9 +158,9 @@ def test_spectrum_with_deferred_eps_pickles():
 def test_index_matched_lossless_particle_gives_zero_in_both_paths(monkeypatch):
     """A lossless ellipsoid with the medium's own index has no polarisability (B&H eq. 5.32: alpha = 0)."""
     wl = np.linspace(500, 900, 5)
-    fast = nanoabs.spectrum(spheroid(1.5, np.array([[60.0]]), 20.0), wl, medium=1.5)
+    fast = nanoabs.spectrum(spheroid(1.5, np.array([[60.0]]), 20.0), wl, medium=1.5, method="mlwa")
     monkeypatch.setattr(_compiled, "ENABLED", False)
-    slow = nanoabs.spectrum(spheroid(1.5, np.array([[60.0]]), 20.0), wl, medium=1.5)
+    slow = nanoabs.spectrum(spheroid(1.5, np.array([[60.0]]), 20.0), wl, medium=1.5, method="mlwa")
     assert fast.metadata["solver_backend"] == "compiled (numba)"
     for s in (fast, slow):
         assert np.all(s.sigma_ext_m2 == 0) and not any("non-finite" in w for w in s.metadata["warnings"])

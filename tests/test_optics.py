@@ -79,9 +79,11 @@ def test_multishell_quasistatic_matches_layered_mie_small():
 def test_random_orientation_and_efficiency_references():
     wl = np.arange(500, 1101, 5.0)
     rod = spheroid("Au", 60, 20)
-    long = spectrum(rod, wl, polarization="long")
-    short = spectrum(rod, wl, polarization="short")
-    rnd = spectrum(rod, wl, polarization="random")
+    # dipole-limit identity: the corrected quasi-static model, named (k a_max reaches 0.5 at 500 nm,
+    # where "auto" would hand the rod to the T-matrix)
+    long = spectrum(rod, wl, polarization="long", method="mlwa")
+    short = spectrum(rod, wl, polarization="short", method="mlwa")
+    rnd = spectrum(rod, wl, polarization="random", method="mlwa")
     # orientation average of a spheroid: (sigma_long + 2 sigma_short)/3 (B&H sec. 5.3)
     np.testing.assert_allclose(rnd.sigma_abs_m2, (long.sigma_abs_m2 + 2 * short.sigma_abs_m2) / 3, rtol=1e-12)
     # random orientation: Q against a quarter of the surface area (Cauchy's theorem)
@@ -132,8 +134,11 @@ def test_surface_damping_broadens_small_sphere():
 
 
 def test_dipole_validity_warning():
-    s = spectrum(spheroid("Au", 200, 80), np.arange(500, 1500, 10.0), polarization="long")
+    s = spectrum(spheroid("Au", 200, 80), np.arange(500, 1500, 10.0), polarization="long", method="mlwa")
     assert any("validity" in w for w in s.metadata["warnings"])
+    # "auto" does not use a dipole method outside its validity when the T-matrix accepts the particle
+    assert spectrum(spheroid("Au", 200, 80), np.arange(700, 1500, 20.0), polarization="long").metadata[
+        "method"] == "tmatrix"
 
 
 @pytest.mark.parametrize("make,needle", [
@@ -170,7 +175,7 @@ def test_cli_forms_exactly_as_written(form, tmp_path, monkeypatch, capsys):
     out = form.split()[-1]
     df, meta = nanoabs.read_export(out)
     assert list(df.columns[:7]) == FRAME_COLUMNS[:7]
-    assert meta["metadata"]["method"] in ("mie", "mlwa")
+    assert meta["metadata"]["method"] in ("mie", "mlwa", "tmatrix")
     assert (tmp_path / out.replace(".csv", ".json")).exists()
 
 

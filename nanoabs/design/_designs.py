@@ -35,6 +35,11 @@ _GEOMETRY = {
     "ellipsoid": ("a_nm", "b_nm", "c_nm"),
 }
 _ALIASES = {"shell": {"shell": "material", "core": "core_material"}}
+#: The method a sweep uses for method="auto": the fast method of each shape, so that a design gets
+#: the same method whatever chunk or family it is computed in (the single-particle "auto" rule of
+#: nanoabs.solvers.choose depends on the largest particle of a call). Rows beyond the method's
+#: validity carry its caution; pass method="tmatrix" to sweep spheroids with the exact solver.
+SWEEP_AUTO = {"sphere": "mie", "shell": "mie", "spheroid": "mlwa", "ellipsoid": "mlwa"}
 _GEOMETRY_UNITS = {"radius_nm": "nm", "core_radius_nm": "nm", "thickness_nm": "nm", "length_nm": "nm",
                    "diameter_nm": "nm", "aspect_ratio": "1", "a_nm": "nm", "b_nm": "nm", "c_nm": "nm"}
 _TEXT_UNIT = "1"  # unit recorded for text columns (material labels)
@@ -257,7 +262,8 @@ def _evaluate(shape, t, wl, settings):
         with _warnings.catch_warnings():  # gathered here, issued once per sweep by its caller
             _warnings.simplefilter("ignore", NanoabsWarning)
             s = spectrum(_particle(shape, t, sel, mat, core), wl, medium=t["medium_options"][di],
-                         method=settings["method"], polarization=settings["polarization"],
+                         method=(SWEEP_AUTO[shape] if settings["method"] == "auto" else settings["method"]),
+                         polarization=settings["polarization"],
                          surface_damping=settings["surface_damping"])
         for k in ("sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2", "geometric_cross_section_m2",
                   "equal_volume_area_m2"):

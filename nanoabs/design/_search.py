@@ -11,7 +11,7 @@ from .. import __version__
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
-from ._designs import _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
+from ._designs import SWEEP_AUTO, _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
 from ._engine import collapse, progress_bar, unique
 from ._sweep import _TEXT_UNIT
 
@@ -536,8 +536,6 @@ def _family_bounds(bounds, families, min_shell, max_size):
     return fam_bounds
 
 
-#: The fast method of each family for the coarse stage of a search when method = "auto".
-_COARSE_METHOD = {"sphere": "mie", "shell": "mie", "rod": "mlwa", "disc": "mlwa"}
 
 
 def _problem(cfg, fam, mi, method=None):
@@ -546,7 +544,7 @@ def _problem(cfg, fam, mi, method=None):
     if method is not None:
         settings["method"] = method
     elif settings["method"] == "auto":
-        settings["method"] = _COARSE_METHOD[fam]
+        settings["method"] = SWEEP_AUTO[_FAMILY_SHAPE[fam]]  # the fast method for the coarse stage
     bands = [(lo, hi, wl, inj[id(m)] if cfg["objective"] == "injection" else None)
              for lo, hi, wl, inj in cfg["bands"]]
     return _Problem(fam, m, cfg["core_m"] if fam == "shell" else None, cfg["med"], settings, bands,
