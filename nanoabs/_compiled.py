@@ -125,31 +125,54 @@ def _mlwa_kernel(ar, ai, inv_e, e2, wp2, gamma0, extra, eps_m, k2, rad, k_sc, k4
     return clipped, bad
 
 
-def _build():
-    """Compile (or load from numba's on-disk cache) the kernel; remember a failure."""
-    if _STATE["kernel"] is not None or _STATE["error"] is not None:
-        return _STATE["kernel"]
+def numba_module(state):
+    """numba with the fork-safe thread pool selected, or None (and the reason in ``state``)."""
     try:
         import numba
     except Exception as exc:  # missing, or broken against this numpy
-        _STATE["error"] = f"{type(exc).__name__}: {exc}"
+        state["error"] = f"{type(exc).__name__}: {exc}"
         return None
-
     if "NUMBA_THREADING_LAYER" not in os.environ and numba.config.THREADING_LAYER == "default":
         # numba's own thread pool: fork-safe (sweeps fork worker processes; a forked child of a
         # process that used GNU OpenMP is terminated by numba); it is not thread-safe, hence _LOCK
         numba.config.THREADING_LAYER = "workqueue"
-    global prange
-    prange = numba.prange  # resolved when the kernel is compiled
+    return numba
+
+
+def jit(numba, fn, state, **options):
+    """``fn`` compiled (or loaded from numba's on-disk cache) on all cores; a failure goes to ``state``."""
     try:
         # 'arcp' (x/y as x*(1/y)) and 'contract' (fused multiply-add) let the loop vectorise;
         # no flag that assumes finite values, so NaN/inf still propagate
-        kernel = numba.njit(parallel=True, cache=True, fastmath={"arcp", "contract"})(_mlwa_kernel)
+        state["kernel"] = numba.njit(parallel=True, cache=True, fastmath={"arcp", "contract"},
+                                     **options)(fn)
     except Exception as exc:
-        _STATE["error"] = f"{type(exc).__name__}: {exc}"
+        state["error"] = f"{type(exc).__name__}: {exc}"
+    return state["kernel"]
+
+
+def _build():
+    """Compile (or load from numba's on-disk cache) the kernel; remember a failure."""
+    if _STATE["kernel"] is not None or _STATE["error"] is not None:
+        return _STATE["kernel"]
+    numba = numba_module(_STATE)
+    if numba is None:
         return None
-    _STATE["kernel"] = kernel
-    return kernel
+    global prange
+    prange = numba.prange  # resolved when the kernel is compiled
+    return jit(numba, _mlwa_kernel, _STATE)
+
+
+def call(kernel, state, *args):
+    """Run ``kernel(*args)`` under the lock; a first-call compile failure is remembered in ``state``."""
+    with _LOCK:
+        try:
+            return kernel(*args)
+        except Exception as exc:  # compilation failed on this platform: remember, use numpy
+            if not getattr(kernel, "overloads", None):
+                state["kernel"], state["error"] = None, f"{type(exc).__name__}: {exc}"
+                raise Unavailable(f"compiled path unavailable: {state['error']}") from None
+            raise
 
 
 def available() -> bool:
@@ -213,15 +236,9 @@ def ellipsoid_mlwa_map(eps_bulk, energy_eV, drude, extra_eV, eps_medium, k, depo
     n_size, n_wl = extra.size, e.size
     sa, ss, se = (np.empty((n_size, n_wl)) for _ in range(3))
     c = np.ascontiguousarray
-    with _LOCK:
-        try:
-            n_clip, n_bad = kernel(*(c(x, dtype=f64) for x in per_wl), wp2, gamma0, c(extra), c(eps_m),
-                            c(k2), c(k2 * k / (6.0 * np.pi)), c(k * scale), c(k2 * k2 / (6.0 * np.pi) * scale),
-                            c(depol, dtype=f64), c(dyn_over_4pi_a, dtype=f64), c(weights, dtype=f64),
-                            c(volume, dtype=f64), sa, ss, se)
-        except Exception as exc:  # compilation failed on this platform: remember, use numpy
-            if not getattr(kernel, "overloads", None):
-                _STATE["kernel"], _STATE["error"] = None, f"{type(exc).__name__}: {exc}"
-                raise Unavailable(f"compiled path unavailable: {_STATE['error']}") from None
-            raise
+    n_clip, n_bad = call(kernel, _STATE, *(c(x, dtype=f64) for x in per_wl), wp2, gamma0, c(extra),
+                         c(eps_m), c(k2), c(k2 * k / (6.0 * np.pi)), c(k * scale),
+                         c(k2 * k2 / (6.0 * np.pi) * scale), c(depol, dtype=f64),
+                         c(dyn_over_4pi_a, dtype=f64), c(weights, dtype=f64), c(volume, dtype=f64),
+                         sa, ss, se)
     return sa, ss, se, int(n_clip), int(n_bad)

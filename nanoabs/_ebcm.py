@@ -46,7 +46,6 @@ half-size systems (smaller LU solves, no entries that should vanish but hold rou
 from __future__ import annotations
 
 import numpy as np
-from scipy import special
 
 from ._errors import NanoabsError
 
@@ -137,6 +136,8 @@ def spherical_jn_all(n_max: int, z):
     """
     z = np.asarray(z)
     if not np.iscomplexobj(z) or np.all(z.imag == 0):
+        from scipy import special
+
         n = np.arange(n_max + 1).reshape((-1,) + (1,) * z.ndim)
         return special.spherical_jn(n, z.real).astype(complex)
     start = n_max + 25 + int(np.max(np.abs(z)))
@@ -174,6 +175,8 @@ def wigner_d_all(n_max: int, m: int, theta):
     nothing is divided by sinθ and the poles θ = 0, π are exact.  Returns
     arrays (K, Q) for n = max(m, 1)..n_max.
     """
+    from scipy import special
+
     theta = np.atleast_1d(np.asarray(theta, dtype=float))
     s, c = np.sin(theta), np.cos(theta)
     lead = np.exp(0.5 * special.gammaln(2 * m + 1) - m * np.log(2.0) - special.gammaln(m + 1))

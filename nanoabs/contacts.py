@@ -20,8 +20,8 @@ from __future__ import annotations
 from typing import NamedTuple
 
 import numpy as np
-from scipy import constants as _c
 
+from . import _si as _c
 from ._errors import NanoabsError, check_nonnegative, check_positive, suggest
 from .drude_lorentz import HC_EV_NM
 

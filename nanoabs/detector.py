@@ -35,8 +35,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import constants as _c
 
+from . import _si as _c
 from . import __version__
 from . import carriers as cr
 from . import hotcarriers as hc

@@ -29,8 +29,8 @@ from pathlib import Path
 from typing import Sequence
 
 import numpy as np
-from scipy import constants as _c
 
+from . import _si as _c
 from ._errors import NanoabsError, check_positive
 
 __all__ = [
@@ -44,7 +44,7 @@ __all__ = [
     "surface_damping_correction",
 ]
 
-HC_EV_NM = _c.h * _c.c / _c.e * 1e9  # h c [eV nm] (CODATA via scipy.constants)
+HC_EV_NM = _c.h * _c.c / _c.e * 1e9  # h c [eV nm] (exact SI constants, nanoabs._si)
 HBAR_EV_S = _c.hbar / _c.e  # ħ [eV s]
 
 

@@ -36,7 +36,6 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
 from nanoabs._errors import DataError, NanoabsError
 
@@ -153,6 +152,8 @@ def _jsonable(value, where: str):
 
 def _column_dtype(name: str, series: pd.Series) -> str:
     """The dtype name recorded in the sidecar; refuse what cannot round-trip."""
+    import pandas as pd
+
     dtype = series.dtype
     if isinstance(dtype, np.dtype) and dtype.kind in "fiub":
         return str(dtype)
@@ -172,6 +173,8 @@ def _column_dtype(name: str, series: pd.Series) -> str:
 
 
 def _check_frame(frame, units) -> list[dict]:
+    import pandas as pd
+
     if not isinstance(frame, pd.DataFrame):
         raise NanoabsError(f"frame = {type(frame).__name__}: must be a pandas DataFrame")
     names = list(frame.columns)
@@ -455,6 +458,8 @@ def _parse(value, kind: str):
 
 
 def _to_series(values: list, col: dict, source: Path) -> pd.Series:
+    import pandas as pd
+
     name, dtype = col["name"], col["dtype"]
     if dtype in _TEXT_DTYPES:
         if not all(isinstance(v, str) for v in values):
@@ -505,6 +510,8 @@ def _read_csv_fast(csv_path: Path, columns: list[dict], rows: int):
     NaN) is detected by re-reading the lines that hold NaN with the csv module. On None the caller
     falls back to the slow reader, which names the offending line.
     """
+    import pandas as pd
+
     names = [c["name"] for c in columns]
     dtypes, na = {}, {}
     for c in columns:
@@ -572,6 +579,8 @@ def read_export(path) -> tuple[pd.DataFrame, dict]:
         A missing file or sidecar, a foreign format or version, or data that
         do not match the columns/rows the sidecar lists.
     """
+    import pandas as pd
+
     path = Path(path)
     _targets(path)  # validates the suffix
     if path.suffix.lower() == ".csv":

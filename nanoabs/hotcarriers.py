@@ -28,8 +28,8 @@ from dataclasses import dataclass
 from typing import NamedTuple
 
 import numpy as np
-from scipy import constants as _c
 
+from . import _si as _c
 from ._errors import NanoabsError, check_nonnegative, check_positive, check_range, suggest
 
 __all__ = [
@@ -62,8 +62,8 @@ __all__ = [
     "COUPLING_WARNING_THRESHOLD",
 ]
 
-#: h c / e in eV nm (CODATA via scipy.constants; h, c, e are exact since SI 2019).
-from .drude_lorentz import HC_EV_NM  # noqa: E402  (h c [eV nm], CODATA via scipy.constants)
+#: h c / e in eV nm (exact SI constants, nanoabs._si; h, c, e are exact since SI 2019).
+from .drude_lorentz import HC_EV_NM  # noqa: E402  (h c [eV nm])
 
 SAFETY_CAUTION = """\
 Safety: the laser irradiances used to measure plasmonic photodetectors can injure eyes

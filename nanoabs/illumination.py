@@ -40,9 +40,8 @@ from pathlib import Path
 from typing import Callable
 
 import numpy as np
-from scipy import constants as _c
-from scipy.integrate import trapezoid
 
+from . import _si as _c
 from ._errors import (DataError, NanoabsError, _as_float, _fmt, check_finite_array, check_nonnegative, check_positive,
                       check_range, suggest)
 
@@ -643,6 +642,8 @@ def band_integral(wavelength_nm, values):
             f"values: last axis has length {v.shape[-1] if v.ndim else 0}, expected {wl.size} "
             "(one value per wavelength)"
         )
+    from scipy.integrate import trapezoid
+
     with np.errstate(over="ignore", invalid="ignore"):
         out = trapezoid(v, wl, axis=-1)
     if not np.all(np.isfinite(out)):

@@ -24,7 +24,6 @@ from importlib import resources
 from pathlib import Path
 
 import numpy as np
-from scipy.interpolate import PchipInterpolator
 
 from ._errors import DataError, NanoabsError, _fmt, check_choice, check_finite_array, check_positive, suggest
 from .drude_lorentz import HC_EV_NM, DrudeLorentz, surface_damping_correction, surface_damping_eV
@@ -442,6 +441,8 @@ def _load_cached(key: str, source: str):
 
 def _interpolants(wl, n):
     """PCHIP interpolants of n and k on log(λ) (shape-preserving, no overshoot between points)."""
+    from scipy.interpolate import PchipInterpolator
+
     x = np.log(wl)
     with np.errstate(divide="ignore", over="ignore", invalid="ignore"):  # flat runs (k = 0)
         return (PchipInterpolator(x, n.real, extrapolate=False),

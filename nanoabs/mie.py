@@ -46,12 +46,14 @@ from typing import NamedTuple
 
 import numpy as np
 
+from ._compiled_mie import coefficients, d1_start, expm1_2iz, layer_order0, layer_step, outer_order0, outer_step
 from ._errors import NanoabsError
 
 __all__ = [
     "MieEfficiencies",
     "mie_layered",
     "mie_sphere",
+    "mie_cross_sections_nm2",
     "mie_coefficients_layered",
     "absorption_profile",
     "internal_intensity_profile",
@@ -63,8 +65,6 @@ __all__ = [
 # points at order n_max holds about 4 L arrays of n_max + 1 orders (D1_n and, in the
 # layers, psi_n/psi_{n-1} at both arguments, see _recursion) plus temporaries.
 _CHUNK_ELEMENTS = 3_000_000
-# Extra start index of the downward D1 recurrence (see _d1_down).
-_D1_EXTRA = 16
 
 
 class MieEfficiencies(NamedTuple):
@@ -193,11 +193,11 @@ def _d1_down(z, n_store, *, ratio=False):
     """D1_n(z) = psi_n'(z)/psi_n(z) for n = 0..n_store, shape (n_store+1, *z.shape).
 
     Downward recurrence D_{n-1} = n/z - 1/(D_n + n/z) (Bohren & Huffman 1983,
-    eq. 4.89) started with D = 0 at max(n_store, |z|) + 8 |z|^(1/3) + 16.  The
-    usual start max(n_store, |z|) + 16 (Wiscombe 1980) leaves errors of 1e-6 ..
-    1e-2 for large, nearly real z: the starting error only decays once
-    n - |z| >> |z|^(1/3) (transition region of psi_n); with 8 |z|^(1/3) the
-    efficiencies agree with an independent 50-digit evaluation to ~1e-15 and
+    eq. 4.89) started with D = 0 at `nanoabs._compiled_mie.d1_start` (the
+    largest |z| of the chunk).  The usual start max(n_store, |z|) + 16 (Wiscombe
+    1980) leaves errors of 1e-6 .. 1e-2 for large, nearly real z: the starting
+    error only decays once n - |z| >> |z|^(1/3) (transition region of psi_n).
+    The start used here follows that decay step by step; the efficiencies agree
     with miepython to ~1e-11 up to |m x| = 4000.
 
     A real ``z`` (a lossless layer) runs in real arithmetic and gives a real
@@ -209,7 +209,7 @@ def _d1_down(z, n_store, *, ratio=False):
     z = np.asarray(z)
     z = z.astype(complex if np.iscomplexobj(z) else float, copy=False)
     az = float(np.max(np.abs(z))) if z.size else 0.0
-    n_start = int(max(n_store, az) + 8.0 * np.cbrt(az)) + _D1_EXTRA
+    n_start = d1_start(az, n_store)
     out = np.empty((n_store + 1,) + z.shape, dtype=z.dtype)
     rat = np.zeros((n_store + 1,) + z.shape, dtype=z.dtype) if ratio else None
     d = np.zeros(z.shape, dtype=z.dtype)
@@ -246,35 +246,9 @@ def _q0(z1, z2):
 
 
 def _expm1_2iz(z):
-    """exp(2iz) - 1 = -2 psi_0(z) xi_0(z) for Im z >= 0, from real functions.
-
-    With z = a + ib: exp(2iz) - 1 = expm1(-2b) cos 2a - 2 sin^2 a + i exp(-2b) sin 2a,
-    as accurate as the complex ``np.expm1`` (both real terms are <= 0 for small
-    |z|, so nothing cancels) and less than half its cost.  ``z`` may be real.
-    """
-    a = z.real
-    b = z.imag if np.iscomplexobj(z) else np.zeros_like(a)
-    s, c = np.sin(a), np.cos(a)
-    s2 = s * s
-    out = np.empty(np.shape(z), dtype=complex)
-    out.real = np.expm1(-2.0 * b) * (1.0 - 2.0 * s2) - 2.0 * s2
-    out.imag = 2.0 * np.exp(-2.0 * b) * (s * c)
-    return out
-
-
-def _layer_order0(z1, z2, want_psi_ratio=False):
-    """Order-0 values of one layer from one exp(2iz) - 1 per argument.
-
-    With e = exp(2iz) - 1 = -2 psi_0 xi_0 (`_psixi0`) returns w_0 = i/(psi_0 xi_0)
-    = -2i/e at z1 and z2, Q_0 = exp(2i (z2 - z1)) e(z1)/e(z2) (`_q0`; psi_0/xi_0
-    = psi_0 xi_0 / xi_0^2 with xi_0^2 = -exp(2iz)) and, if asked,
-    psi_0(z1)/psi_0(z2) = exp(-i (z1 - z2)) e(z1)/e(z2) (`_psi_ratio0`), else None.
-    """
-    e1 = _expm1_2iz(z1)
-    e2 = _expm1_2iz(z2)
-    r = e1 / e2
-    pr = np.exp(-1j * (z1 - z2)) * r if want_psi_ratio else None
-    return -2j / e1, -2j / e2, np.exp(2j * (z2 - z1)) * r, pr
+    """exp(2iz) - 1 = -2 psi_0(z) xi_0(z) for Im z >= 0 (`nanoabs._compiled_mie.expm1_2iz`)."""
+    z = np.asarray(z)
+    return expm1_2iz(z.real, z.imag)
 
 
 # --------------------------------------------------------------------------
@@ -325,9 +299,8 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
     """
     L, P = m.shape
     xo = x[-1]
-    xc = xo.astype(complex)
     inv_x = 1.0 / xo
-    D1x = _d1_down(xc, n_max)
+    D1x = _d1_down(xo, n_max)  # real argument: real arithmetic
     # core: H = D1_n(m_1 x_1) for both modes (Yang 2003, eq. 11)
     D1z2 = [_d1_down(_real_if_lossless(m[0]) * x[0], n_max)]
     D1z1, R1, R2, w1, w2, Q, Pr, mu, inv_mu, B1_1, B2_1 = ([None] for _ in range(11))
@@ -338,18 +311,18 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
             d, r = _d1_down(z, n_max, ratio=True)
             D1.append(d)
             R.append(r)
-        for lst, v in zip((w1, w2, Q, Pr), _layer_order0(z1, z2, want_profile)):
+        w1_0, w2_0, q_0, e_ratio = layer_order0(z1, z2)
+        for lst, v in zip((w1, w2, Q), (w1_0, w2_0, q_0)):
             lst.append(v)
+        Pr.append(np.exp(-1j * (z1 - z2)) * e_ratio if want_profile else None)  # psi_0(z1)/psi_0(z2)
         mu.append(m[l] / m[l - 1])
         inv_mu.append(m[l - 1] / m[l])
         B1_1.append(1.0 / z1 - 1j)  # B_1 = xi_1/xi_0 = 1/z - D3_0, D3_0 = i
         B2_1.append(1.0 / z2 - 1j)
 
-    # order n = 0 values
-    pzx = _psixi0(xc)
+    # order n = 0 values: D3_0 = i, psi_0/xi_0 and 1/xi_0 at the real x
+    Rx, inv_xix = outer_order0(xo)
     D3x = np.full(P, 1j)
-    Rx = 1j * np.sin(xo) * np.exp(-1j * xo)  # psi_0/xi_0 (real x)
-    inv_xix = 1j * np.exp(-1j * xo)  # 1/xi_0 (real x)
 
     out = {}
     if want_coeffs:
@@ -371,37 +344,17 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
 
     for n in range(1, n_max + 1):
         keep = n <= nstop
-        # outer (real) argument, Yang (2003) eqs. 18-21: psi_n xi_n, D3_n, psi_n/xi_n, 1/xi_n
-        fac = n * inv_x - D3x  # xi_n/xi_{n-1}, uses D3_{n-1}
-        psr = 1.0 / (D1x[n] + n * inv_x)  # psi_n/psi_{n-1}, no cancellation for small x
-        pzx = pzx * psr * fac
-        Rx = Rx * psr / fac
-        inv_xix = inv_xix / fac
-        D3x = D1x[n] + 1j / pzx
+        # outer (real) argument: D3_n, psi_n/xi_n, 1/xi_n by upward recurrence (see outer_step)
+        D3x, Rx, inv_xix = outer_step(n, inv_x, D1x[n], D3x, Rx, inv_xix)
         # core: H = D1_n(m_1 x_1) for both modes (Yang 2003, eq. 11)
         Ha = D1z2[0][n]
         Hb = Ha
         for l in range(1, L):
-            d1a, d1b = D1z1[l][n], D1z2[l][n]
             r1, r2 = R1[l][n], R2[l][n]
-            # xi_n/xi_{n-1}; R_n - w_{n-1} would cancel near zeros of sin z at n = 1
-            B1 = r1 - w1[l] if n > 1 else B1_1[l]
-            B2 = r2 - w2[l] if n > 1 else B2_1[l]
-            Q[l] = Q[l] * ((B2 * r1) / (B1 * r2))
-            w1[l] = w1[l] / (B1 * r1)  # w_n = i/(psi_n xi_n)
-            w2[l] = w2[l] / (B2 * r2)
-            # interface recursion for the TM (a) and TE (b) modes (Yang 2003, eqs. 12-15),
-            # G1, G2 divided by m_{l-1} (TM) and by m_l (TE)
-            G1a = mu[l] * Ha - d1a
-            G1b = inv_mu[l] * Hb - d1a
-            G2a = G1a - w1[l]
-            G2b = G1b - w1[l]
-            QG1a = Q[l] * G1a
-            QG1b = Q[l] * G1b
-            dena = G2a - QG1a
-            denb = G2b - QG1b
-            Ha = d1b - w2[l] * QG1a / dena
-            Hb = d1b - w2[l] * QG1b / denb
+            # interface recursion for the TM (a) and TE (b) modes (Yang 2003, eqs. 12-19)
+            Ha, Hb, w1[l], w2[l], Q[l], G1a, G2a, G1b, G2b, dena, denb = layer_step(
+                n, Ha, Hb, D1z1[l][n], D1z2[l][n], r1, r2, w1[l], w2[l], Q[l], mu[l], inv_mu[l],
+                B1_1[l], B2_1[l])
             if want_profile:
                 Pr[l] = Pr[l] * (r1 / r2)  # psi_n(z1)/psi_n(z2)
                 G1a_s[l, n - 1], G2a_s[l, n - 1] = G1a, G2a
@@ -410,16 +363,11 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
                 # F_l(z1)/F_l(z2) = Pr (G2 - G1) / (G2 - Q G1), G2 - G1 = -w_n(z1)
                 ra[l, n - 1] = -Pr[l] * w1[l] / dena
                 rb[l, n - 1] = -Pr[l] * w1[l] / denb
-        ha = Ha / m[-1]
-        hb = m[-1] * Hb
-        da = ha - D3x
-        db = hb - D3x
-        # Yang (2003), eq. 16, written as a_n = (psi_n/xi_n)(x) (h_a - D1_n(x)) / (h_a - D3_n(x))
-        an = np.where(keep, Rx * (ha - D1x[n]) / da, 0)
-        bn = np.where(keep, Rx * (hb - D1x[n]) / db, 0)
-        # Re(a_n) - |a_n|^2 = -Im(h_a) Im D3_n(x) / |h_a - D3_n(x)|^2, same for b (see Notes)
-        im3 = inv_xix.real**2 + inv_xix.imag**2  # = Im D3_n(x) = 1/|xi_n(x)|^2
-        t_abs = -(ha.imag / (da.real**2 + da.imag**2) + hb.imag / (db.real**2 + db.imag**2)) * im3
+        # Yang (2003), eq. 16, written as a_n = (psi_n/xi_n)(x) (h_a - D1_n(x)) / (h_a - D3_n(x)),
+        # and Re(a_n) - |a_n|^2 + Re(b_n) - |b_n|^2 without cancellation (see Notes)
+        an, bn, t_abs, da, db = coefficients(Rx, Ha / m[-1], m[-1] * Hb, D1x[n], D3x, inv_xix)
+        an = np.where(keep, an, 0)
+        bn = np.where(keep, bn, 0)
         t_abs = np.where(keep, t_abs, 0.0)
         if want_coeffs:
             out["a"][n - 1] = an
@@ -577,6 +525,68 @@ def mie_layered(m, x, *, n_max=None) -> MieEfficiencies:
         with np.errstate(divide="ignore", invalid="ignore"):
             res["g"][idx] = np.where(qsca > 0, 4 * r["s_g"] / (x2 * qsca), 0.0)
     return MieEfficiencies(*(_scalar(res[k].reshape(grid)) for k in MieEfficiencies._fields))
+
+
+def _relative_inputs(eps_layers, radii, n_med, wl):
+    """m = sqrt(eps)/n_med and x = k r of every layer, (L, *grid), in one broadcast.
+
+    One broadcast of all layers' m and x together: the grid may come from the
+    sizes alone (eps without surface damping has only the wavelength axis).
+    """
+    k = 2 * np.pi * n_med / wl  # [1/nm]
+    L = len(eps_layers)
+    mx = np.broadcast_arrays(*[np.sqrt(e) / n_med for e in eps_layers], *[k * r for r in radii])
+    return np.stack(mx[:L]), np.stack(mx[L:])
+
+
+def mie_cross_sections_nm2(eps_layers, radii, n_med, wl):
+    """Absorption, scattering and extinction cross-sections of (layered) spheres [nm^2].
+
+    Parameters
+    ----------
+    eps_layers : list of complex array_like
+        Permittivity of each layer, core first [1], broadcastable against the
+        wavelength axis (the last axis) and the radii.
+    radii : list of float array_like
+        Outer radius of each layer [nm], non-decreasing outward.
+    n_med : float array_like
+        Real refractive index of the host at each wavelength [1].
+    wl : float array_like
+        Vacuum wavelengths [nm].
+
+    Returns
+    -------
+    sigma_abs, sigma_sca, sigma_ext : ndarray
+        Cross-sections [nm^2] with the broadcast shape of the inputs;
+        ``sigma = Q pi r_outer^2`` with the Q of `mie_layered`.
+    backend : str
+        ``"compiled (numba)"`` when the compiled kernel ran
+        (`nanoabs._compiled_mie`, same formulas, held to 1e-12 of the numpy
+        path by the tests), else ``"numpy"``: numba is missing or
+        ``nanoabs._compiled.ENABLED`` is False, or the grid has fewer than
+        ``nanoabs._compiled_mie.MIN_POINTS`` (20 000) points.
+
+    References
+    ----------
+    As `mie_layered` (Yang 2003; Bohren & Huffman 1983).
+    """
+    from . import _compiled, _compiled_mie
+
+    m, x = _relative_inputs(eps_layers, radii, n_med, wl)
+    L = m.shape[0]
+    area = np.pi * radii[-1] ** 2
+    if _compiled_mie.available(m[0].size):
+        m, x, grid = _prepare(m, x)
+        xf = x.reshape(L, -1)
+        try:
+            qsca, qabs = _compiled_mie.mie_efficiencies(m.reshape(L, -1), xf, n_terms(xf[-1]))
+        except _compiled.Unavailable:
+            pass
+        else:
+            qsca, qabs = qsca.reshape(grid) * area, qabs.reshape(grid) * area
+            return qabs, qsca, qabs + qsca, "compiled (numba)"
+    res = mie_layered(m, x)
+    return res.qabs * area, res.qsca * area, res.qext * area, "numpy"
 
 
 def mie_sphere(m, x, *, n_max=None) -> MieEfficiencies:
@@ -981,17 +991,16 @@ class MieSolver(_Solver):
     @staticmethod
     def inputs(problem):
         """Relative indices m (L, ..., W) and size parameters x (L, ..., W) of the layers."""
-        k = problem.k
-        ms = [np.sqrt(e) / problem.n_medium for e in problem.eps_layers]
-        xs = [k * np.asarray(r, dtype=float) for _, r in problem.particle.layers]
-        a = np.broadcast_arrays(*ms, *xs)  # every layer on the common (..., W) shape before stacking
-        return np.stack(a[:len(ms)]), np.stack(a[len(ms):])
+        return _relative_inputs(problem.eps_layers, _radii(problem), problem.n_medium, problem.wavelength_nm)
 
     def solve(self, problem):
-        m, x = self.inputs(problem)
-        res = mie_layered(m, x)
-        area = np.pi * np.asarray(problem.particle.outer_radius_nm, dtype=float) ** 2
-        return _Response(res.qabs * area, res.qsca * area, res.qext * area)
+        sa, ss, se, backend = mie_cross_sections_nm2(problem.eps_layers, _radii(problem), problem.n_medium,
+                                                     problem.wavelength_nm)
+        return _Response(sa, ss, se, backend=backend)
+
+
+def _radii(problem):
+    return [np.asarray(r, dtype=float) for _, r in problem.particle.layers]
 
 
 class MiepythonSolver(MieSolver):

@@ -9,8 +9,8 @@ D* = sqrt(A) / NEP in cm Hz^1/2 W^-1 (Jones).
 from __future__ import annotations
 
 import numpy as np
-from scipy import constants as _c
 
+from . import _si as _c
 from ._errors import check_nonnegative, check_positive
 
 __all__ = ["noise_current_A_Hz05", "noise_equivalent_power_W_Hz05", "specific_detectivity_Jones"]

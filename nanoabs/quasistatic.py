@@ -40,7 +40,6 @@ R_F, R_D, R_G as implemented in ``scipy.special``).
 from __future__ import annotations
 
 import numpy as np
-from scipy import special
 
 from nanoabs._errors import (NanoabsError, _fmt, check_choice, check_flag, check_nonnegative, check_positive,
                              check_range)
@@ -217,6 +216,8 @@ def depolarization_factors(a, b, c):
     ----------
     B&H eq. 5.33; B. C. Carlson, Numer. Algorithms 10, 13 (1995) (R_D).
     """
+    from scipy import special
+
     a = check_positive("a", a)
     b = check_positive("b", b)
     c = check_positive("c", c)
@@ -336,6 +337,8 @@ def dynamic_depolarization_factors(a, b, c, *, depolarization=None):
     M. Meier and A. Wokaun, Opt. Lett. 8, 581 (1983) (radiation-corrected
     field of a sphere); A. Moroz, J. Opt. Soc. Am. B 26, 517 (2009) (spheroids).
     """
+    from scipy import special
+
     La, Lb, Lc = depolarization_factors(a, b, c) if depolarization is None else depolarization
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
@@ -394,6 +397,8 @@ def ellipsoid_surface_area(a, b, c):
     NIST Digital Library of Mathematical Functions, sec. 19.33 (surface area of
     a triaxial ellipsoid via R_G; equation number from memory: 19.33.1).
     """
+    from scipy import special
+
     a = check_positive("a", a)
     b = check_positive("b", b)
     c = check_positive("c", c)

@@ -7,8 +7,6 @@ paths to agree to round-off, for every polarisation, with and without surface
 damping, including the clipping of a damped eps'' at 0.
 """
 
-import threading
-
 import numpy as np
 import pytest
 
@@ -109,26 +107,15 @@ def test_geometry_varying_with_wavelength_uses_numpy():
     assert s.sigma_abs_m2.shape == (1, 5)  # explicit (1, W): a 1-D size array is refused (particles.py)
 
 
-def test_concurrent_calls_from_threads():
+def test_concurrent_calls_from_threads(in_threads):
     wl = np.linspace(500, 1500, 400)
     lengths = np.linspace(40, 200, 300)[:, None]
-    want = nanoabs.spectrum(spheroid("Au", lengths, 20.0), wl, medium="water", method="mlwa").sigma_abs_m2
-    got, errors = [], []
 
-    def work():
-        try:
-            got.append(nanoabs.spectrum(spheroid("Au", lengths, 20.0), wl, medium="water", method="mlwa").sigma_abs_m2)
-        except Exception as exc:  # pragma: no cover - reported below
-            errors.append(exc)
+    def rods():
+        return nanoabs.spectrum(spheroid("Au", lengths, 20.0), wl, medium="water", method="mlwa").sigma_abs_m2
 
-    threads = [threading.Thread(target=work) for _ in range(4)]
-    for t in threads:
-        t.start()
-    for t in threads:
-        t.join()
-    assert not errors
-    assert len(got) == 4
-    for g in got:
+    want = rods()
+    for g in in_threads(rods):
         np.testing.assert_array_equal(g, want)
 
 
@@ -141,31 +128,20 @@ def test_unavailable_compiler_falls_back(monkeypatch):
     assert np.all(s.sigma_abs_m2 > 0)
 
 
-def test_forked_sweep_after_compiled_call(tmp_path):
+def test_forked_sweep_after_compiled_call(fresh_python):
     """A process-pool sweep (fork) after the kernel ran in the parent must not be killed.
 
     numba terminates a forked child of a process that used GNU OpenMP; nanoabs selects
     numba's fork-safe workqueue pool. Run in a fresh interpreter so the pool state is clean.
     """
-    import os
-    import subprocess
-    import sys
-
-    code = (
+    p = fresh_python(
         "import numpy as np, nanoabs\n"
         "wl = np.linspace(500, 1500, 50)\n"
         "s = nanoabs.spectrum(nanoabs.spheroid('Au', np.linspace(40, 200, 20)[:, None], 20.0), wl, method='mlwa')\n"
         "assert s.metadata['solver_backend'] == 'compiled (numba)'\n"
         "r = nanoabs.design.sweep('spheroid', {'length_nm': np.linspace(40, 200, 40), 'diameter_nm': [20.0]},"
         " wl, executor='processes', chunk_size=10, progress=False)\n"
-        "print(len(r))\n"
-    )
-    env = {k: v for k, v in os.environ.items() if k != "NUMBA_THREADING_LAYER"}
-    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-    env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
-    p = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300,
-                       env=env, cwd=tmp_path)
-    assert p.returncode == 0, p.stderr[-2000:]
+        "print(len(r))\n")
     assert p.stdout.strip().splitlines()[-1] == str(40 * 50)
 
 
