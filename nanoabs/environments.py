@@ -479,6 +479,16 @@ def apply_planar(env, solver, problem):
         meta |= {"environment_method": f"dipole + reflected Green's function ({method})",
                  "sommerfeld_error": float(np.max(out["integration_error"]))}
         s_ext = s_abs + s_rad
+        h, a_max = env.center_height_nm(sizes[-1]), max(sizes)
+        if a_max > h:  # the point dipole and its image overlap the particle: coupling far outside validity
+            from .validity import Caution
+
+            meta["environment_cautions"] = [Caution(
+                "dipole-near-surface",
+                f"the particle's longest semi-axis ({a_max:g} nm) exceeds the distance from its centre to the "
+                f"interface ({h:g} nm): the point-dipole coupling to the substrate is outside its validity and the "
+                "resonance can be far off (use a sphere or shell with the multipole method, or treat the result "
+                "as qualitative)", (float(wl.min()), float(wl.max())))]
     else:
         radii = [float(np.asarray(r, float).reshape(-1)[0]) for _, r in problem.particle.layers]
         out = sphere_on_stack(env, problem.eps_layers, radii, wl)

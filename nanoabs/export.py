@@ -631,8 +631,9 @@ def read_export(path) -> tuple[pd.DataFrame, dict]:
 
 # --------------------------------------------------------------------------- other files
 
-#: Largest user input file (illumination spectrum, material table) read [bytes]: 50 MB.
-MAX_INPUT_BYTES = 50_000_000
+#: Largest user input file (illumination spectrum, material table) read [bytes]: the one bound of
+#: the material reader (20 MB).
+from .materials import MAX_USER_FILE_BYTES as MAX_INPUT_BYTES  # noqa: E402
 
 
 def check_input_file(path, what: str, *, max_bytes: int = MAX_INPUT_BYTES) -> Path:

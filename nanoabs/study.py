@@ -33,6 +33,9 @@ _NUM = (int, float)
 SCHEMA = {
     "study": {"title": (str, True), "description": (str, False), "lab": (str, False)},
     "medium": {"name": (str, False), "index": (_NUM, False), "thermal_conductivity_W_mK": (_NUM, False)},
+    "environment": {"substrate": ((str,) + _NUM, True), "superstrate": ((str,) + _NUM, False),
+                    "gap_nm": (_NUM, False), "depth_nm": (_NUM, False), "spacer": (str, False),
+                    "incidence": (str, False), "angle_deg": (_NUM, False), "polarization": (str, False)},
     "wavelengths": {"start_nm": (_NUM, True), "stop_nm": (_NUM, True), "step_nm": (_NUM, True)},
     "illumination": {"kind": (str, True), "spectrum": (str, False), "irradiance_W_m2": (_NUM, False),
                      "power_W": (_NUM, False), "beam_radius_nm": (_NUM, False),
@@ -228,6 +231,25 @@ def _medium(doc):
     return material(m.get("name", "water"))
 
 
+def _environment(doc):
+    """The [environment] table as an environment object (particles on or in a substrate), or None."""
+    from . import environments as envs
+
+    e = doc.get("environment")
+    if not e:
+        return None
+    if "name" in doc.get("medium", {}) or "index" in doc.get("medium", {}):
+        raise DataError("study sections [medium] (name/index) and [environment]: give one (the environment "
+                        "names the particle's host)")
+    kw = {"superstrate": e.get("superstrate", "air"), "incidence": e.get("incidence", "front"),
+          "angle_deg": e.get("angle_deg", 0.0), "polarization": e.get("polarization", "s")}
+    if "depth_nm" in e:
+        if "gap_nm" in e or "spacer" in e:
+            raise DataError("study key environment.depth_nm (buried particle) excludes gap_nm and spacer")
+        return envs.buried(e["substrate"], depth_nm=e["depth_nm"], **kw)
+    return envs.on_substrate(e["substrate"], gap_nm=e.get("gap_nm", 0.0), spacer=e.get("spacer"), **kw)
+
+
 def _illumination(doc):
     from . import illumination as il
 
@@ -369,7 +391,11 @@ def _output_dir(out_dir, force) -> Path:
 
 def _prepare(doc):
     """Everything the report needs, validated; nothing is written here."""
-    job = {"doc": doc, "wl": _wavelengths(doc), "medium": _medium(doc), "illum": _illumination(doc),
+    env = _environment(doc)
+    job = {"doc": doc, "wl": _wavelengths(doc), "env": env,
+           "medium": env.host_material() if env is not None else _medium(doc),
+           "where": {"environment": env} if env is not None else {"medium": _medium(doc)},
+           "illum": _illumination(doc),
            "det": doc.get("detector", {}), "figures": doc.get("output", {}).get("figures", True),
            "fmts": doc.get("output", {}).get("formats", ["png"]),
            "kappa": doc.get("medium", {}).get("thermal_conductivity_W_mK")}
@@ -398,7 +424,7 @@ def _sweep_inputs(t, job, stem):
         if k in t and k != param:
             params[k] = np.array([float(t[k])])
     kw = {"material": t.get("shell", t.get("material", "Au")) if shape == "shell" else t.get("material", "Au"),
-          "medium": job["medium"]}
+          "medium": job["env"] if job["env"] is not None else job["medium"]}
     if shape == "shell":
         kw["core"] = t.get("core", "SiO2")
     if "polarization" in t:
@@ -419,7 +445,8 @@ def _search_inputs(doc, job):
         raise DataError(f"study key search.band_nm = {b!r}: must be [low, high] in nm with low < high")
     kw = dict(families=sd.get("families", ["sphere", "shell", "rod"]),
               objective=sd.get("objective", "absorbed_fraction"), materials=sd.get("materials", ["Au"]),
-              medium=job["medium"], illumination=job["illum"], barrier_eV=job["barrier"][0],
+              **({"environment": job["env"]} if job["env"] is not None else {"medium": job["medium"]}),
+              illumination=job["illum"], barrier_eV=job["barrier"][0],
               max_size_nm=sd.get("max_size_nm", 200.0), min_shell_nm=sd.get("min_shell_nm", 5.0),
               top=int(sd.get("top", 10)))
     search_inputs((float(b[0]), float(b[1])), bounds=None, core="SiO2", fermi_energy_eV=None,
@@ -477,7 +504,7 @@ def _write_report(job, rep, progress):
         L += [f"*{s['lab']}*", ""]
     if s.get("description"):
         L += [s["description"].strip(), ""]
-    L += [f"- medium: {job['medium'].label}", f"- wavelengths: {wl[0]:g}–{wl[-1]:g} nm ({wl.size} points)",
+    L += [_where_line(job), f"- wavelengths: {wl[0]:g}–{wl[-1]:g} nm ({wl.size} points)",
           f"- illumination: {job['illum'].description}",
           f"- Schottky barrier: {barrier[0]:g} eV ({barrier[1]}); photoemission cut-off hc/φ_B = "
           f"{HC_EV_NM / barrier[0]:.0f} nm" if barrier[0] else "- Schottky barrier: —",
@@ -497,6 +524,22 @@ def _write_report(job, rep, progress):
           "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files))]
     text = "\n".join(L) + "\n"
     write_file_atomic(rep.path("summary.md"), lambda fh: fh.write(text), force=True)
+
+
+def _where_line(job) -> str:
+    """One line saying where the particles sit and how cross-sections are referred."""
+    env = job["env"]
+    if env is None:
+        return f"- medium: {job['medium'].label}"
+    d = env.describe()
+    place = (f"{d['depth_nm']:g} nm deep in {d['substrate']}" if d["kind"] == "buried" else
+             f"on {d['substrate']}" + (f" with a {d['spacer']['thickness_nm']:g} nm {d['spacer']['material']} "
+                                       "spacer" if d.get("spacer") else "") +
+             f", {d['gap_nm']:g} nm gap, in {d['superstrate']}")
+    light = "from the front (superstrate side)" if d["incidence"] == "front" else "through the substrate (back)"
+    return (f"- environment: particles {place}; lit {light} at {d['angle_deg']:g}°. Cross-sections and "
+            "responsivities are per irradiance of the incident light in the incidence medium (external), "
+            "the reflection at the surface included")
 
 
 def _data_sources(job) -> list:
@@ -538,10 +581,11 @@ def _particles_section(job, rep):
     wl, det, L = job["wl"], job["det"], rep.lines
     L += ["## Candidate particles", "",
           "| particle | method | peak [nm] | FWHM [nm] | peak σ_abs [m²] | σ_abs/σ_ext at peak | "
-          "photocurrent per particle [A] | ΔT [K] |", "|---|---|---|---|---|---|---|---|"]
+          "photocurrent per particle [A] | external responsivity [mA/W] | ΔT [K] |",
+          "|---|---|---|---|---|---|---|---|---|"]
     curves, warn_lines, resp_curves = [], [], []
     for t, p, stem in job["particles"]:
-        spec = spectrum(p, wl, medium=job["medium"], method=t.get("method", "auto"),
+        spec = spectrum(p, wl, **job["where"], method=t.get("method", "auto"),
                         polarization=t.get("polarization", "long" if t["shape"] == "spheroid" else "x"),
                         surface_damping=t.get("surface_damping", True))
         res = hot_carrier_estimate(spec, p, job["illum"], barrier_eV=job["barrier"][0],
@@ -561,10 +605,12 @@ def _particles_section(job, rep):
         tot = res.totals
         cur = tot.get("photocurrent_A", tot.get("peak_photocurrent_A"))
         dT = tot.get("temperature_rise_K")
+        resp = tot.get("band_responsivity_A_W", tot.get("peak_responsivity_A_W"))
         peak = _f(sm["peak_wavelength_nm"], ".0f") if sm["peak_status"] == "peak" else sm["peak_status"]
         L.append(f"| {t['name']} | {spec.metadata['method']} | {peak} | "
                  f"{_f(sm['fwhm_nm'], '.0f')} | {sm['peak_sigma_abs_m2']:.3g} | "
-                 f"{sm['absorbed_fraction_at_peak']:.2f} | {cur:.3g} | {_f(dT, '.2g')} |")
+                 f"{sm['absorbed_fraction_at_peak']:.2f} | {cur:.3g} | "
+                 f"{_f(None if resp is None else resp * 1e3, '.3g')} | {_f(dT, '.2g')} |")
         curves.append((t["name"], wl, spec.sigma_abs_m2))
         if "responsivity_A_W" in res.frame:
             resp_curves.append((t["name"], res.frame["responsivity_A_W"].to_numpy()))
@@ -574,7 +620,9 @@ def _particles_section(job, rep):
     if warn_lines:
         L += ["Warnings:", ""] + warn_lines + [""]
     L += ["Photocurrent per particle: band-integrated for a broadband source, at the absorption peak "
-          "for a monochromatic one; ΔT: steady state of one isolated particle.", ""]
+          "for a monochromatic one. External responsivity: of the particle array per light incident on the "
+          "device (band average for a broadband source, peak for a monochromatic one). ΔT: steady state of "
+          "one isolated particle.", ""]
     if job["figures"]:
         band = job["doc"].get("search", {}).get("band_nm")
         rep.figure(plot_spectra(curves, ylabel="absorption cross-section [nm²]", scale=1e18,
@@ -606,7 +654,8 @@ def _sweep_reduced(path, param, n, wl, band):
         sa = chunk["sigma_abs_m2"].to_numpy(dtype=float).reshape(-1, W)
         ids = chunk["design_id"].to_numpy()[::W]
         vals.append(chunk[param].to_numpy(dtype=float)[::W])
-        peaks.append(wl[np.argmax(sa, axis=1)])
+        j = np.argmax(sa, axis=1)  # a maximum on the window edge is not a peak (NaN)
+        peaks.append(np.where((j > 0) & (j < wl.size - 1), wl[j], np.nan))
         foms.append(sa[:, inb].mean(axis=1) if inb.any() else np.full(ids.size, np.nan))
         map_ids.append(ids[ids % step == 0])
         map_rows.append(sa[ids % step == 0])
@@ -631,8 +680,8 @@ def _sweep_section(job, sw, rep, progress):
     rep.add(rep.path(f"{stem}_sweep.json"))
     vals, peaks, fom, map_vals, grid, step = _sweep_reduced(path, param, len(t["values_nm"]), wl, band)
     L += [f"## Sweep: {t['name']}", "",
-          f"{param} from {vals.min():g} to {vals.max():g} nm ({vals.size} values); absorption peak moves "
-          f"from {peaks[0]:.0f} nm to {peaks[-1]:.0f} nm. Data: `{stem}_sweep.csv`.", ""]
+          f"{param} from {vals.min():g} to {vals.max():g} nm ({vals.size} values); {_peak_words(peaks, wl)}. "
+          f"Data: `{stem}_sweep.csv`.", ""]
     if band and fom is not None:
         best = vals[int(np.argmax(fom))]
         L[-1:-1] = [f"Band-averaged σ_abs over {band[0]:g}–{band[1]:g} nm is largest at "
@@ -647,6 +696,18 @@ def _sweep_section(job, sw, rep, progress):
     title = t["name"] + (f" (every {step}th of {vals.size} designs)" if step > 1 else "")
     rep.figure(plot_map(wl, map_vals, grid * 1e18, param_label=param.replace("_nm", " [nm]"),
                         value_label="absorption cross-section [nm²]", band=band, title=title), f"{stem}_map")
+
+
+def _peak_words(peaks, wl) -> str:
+    """How the absorption peak moves over a sweep, without calling a window-edge maximum a peak."""
+    def one(p):
+        return f"{p:.0f} nm" if p == p else "beyond the window"
+    inside = int(np.sum(np.isfinite(peaks)))
+    text = f"absorption peak from {one(peaks[0])} to {one(peaks[-1])}"
+    if inside < len(peaks):
+        text += (f" ({len(peaks) - inside} of {len(peaks)} designs have no peak inside "
+                 f"{wl[0]:g}-{wl[-1]:g} nm: their absorption rises beyond the window)")
+    return text
 
 
 def _search_section(job, rep, progress):

@@ -20,11 +20,9 @@ import numpy as np
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, spectrum
 from ..validity import NanoabsWarning
-from ..particles import MONOLAYER_NM, Ellipsoid, LayeredSphere, Sphere, spheroid
+from ..particles import MAX_SIZE_NM, MONOLAYER_NM, Ellipsoid, LayeredSphere, Sphere, spheroid
 from ._engine import unique
 
-#: Largest size [nm] (radius, thickness, length, diameter, semi-axis) a design may have: 100 um.
-MAX_SIZE_NM = 1e5
 #: Shape families of :func:`nanoabs.design.sweep` and :func:`nanoabs.design.ensemble_average`.
 SHAPES = ("sphere", "shell", "spheroid", "ellipsoid")
 
@@ -59,7 +57,14 @@ def _material_label(value) -> str:
     return str(getattr(value, "label", getattr(value, "name", type(value).__name__)))
 
 
+def is_environment(value) -> bool:
+    """True for an environment object (nanoabs.on_substrate, buried, homogeneous), not a material."""
+    return hasattr(value, "apply") and hasattr(value, "describe")
+
+
 def _material_meta(value) -> dict:
+    if is_environment(value):
+        return value.describe()
     m = _resolve_material(value)
     meta = m.metadata() if callable(getattr(m, "metadata", None)) else {}
     return meta if isinstance(meta, dict) else {"description": str(meta)}
@@ -156,8 +161,10 @@ def _make_plan(shape, params, wavelength_nm, *, material, core, medium, polariza
     if "medium_index" not in canon:
         from ..materials import material as _m
 
-        if not hasattr(medium, "permittivity"):
+        if not hasattr(medium, "permittivity") and not is_environment(medium):
             _m(medium)
+    elif is_environment(medium):
+        raise NanoabsError("medium_index cannot be swept in a planar environment (the environment names the host)")
     names = list(canon)
     lengths = [len(canon[n]) for n in names]
     plan = {
@@ -259,20 +266,25 @@ def _evaluate(shape, t, wl, settings):
             if ("c", ci) not in cache:
                 cache[("c", ci)] = _resolve_material(t["core_material_options"][ci])
             core = cache[("c", ci)]
-        with _warnings.catch_warnings():  # gathered here, issued once per sweep by its caller
-            _warnings.simplefilter("ignore", NanoabsWarning)
-            s = spectrum(_particle(shape, t, sel, mat, core), wl, medium=t["medium_options"][di],
-                         method=(SWEEP_AUTO[shape] if settings["method"] == "auto" else settings["method"]),
-                         polarization=settings["polarization"],
-                         surface_damping=settings["surface_damping"])
-        for k in ("sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2", "geometric_cross_section_m2",
-                  "equal_volume_area_m2"):
-            out[k][sel] = np.broadcast_to(getattr(s, k), (sel.size, W))
-        out["n_medium"][sel] = np.broadcast_to(s.n_medium, (sel.size, W))
-        mv = np.asarray(s.metal_volume_m3, dtype=float).reshape(-1)  # (G,) or one value (no metal: 0)
-        out["metal_volume_m3"][sel] = mv if mv.size == sel.size else mv[0]
-        warnings += list(s.metadata.get("warnings", []))
-        methods.append(s.metadata.get("method"))
+        where = t["medium_options"][di]
+        planar = is_environment(where)
+        # a planar environment takes one particle per call: its designs are computed one by one
+        for part in ([sel[i:i + 1] for i in range(sel.size)] if planar else [sel]):
+            with _warnings.catch_warnings():  # gathered here, issued once per sweep by its caller
+                _warnings.simplefilter("ignore", NanoabsWarning)
+                s = spectrum(_particle(shape, t, part, mat, core), wl,
+                             **({"environment": where} if planar else {"medium": where}),
+                             method=(SWEEP_AUTO[shape] if settings["method"] == "auto" else settings["method"]),
+                             polarization=settings["polarization"],
+                             surface_damping=settings["surface_damping"])
+            for k in ("sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2", "geometric_cross_section_m2",
+                      "equal_volume_area_m2"):
+                out[k][part] = np.broadcast_to(getattr(s, k), (part.size, W))
+            out["n_medium"][part] = np.broadcast_to(s.n_medium, (part.size, W))
+            mv = np.asarray(s.metal_volume_m3, dtype=float).reshape(-1)  # (G,) or one value (no metal: 0)
+            out["metal_volume_m3"][part] = mv if mv.size == part.size else mv[0]
+            warnings += list(s.metadata.get("warnings", []))
+            methods.append(s.metadata.get("method"))
     out["warnings"] = sorted(set(warnings))
     out["methods"] = sorted({m for m in methods if m})
     return out

@@ -11,7 +11,7 @@ from .. import __version__
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
-from ._designs import SWEEP_AUTO, _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
+from ._designs import SWEEP_AUTO, is_environment, _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
 from ._engine import collapse, progress_bar, unique
 from ._sweep import _TEXT_UNIT
 
@@ -202,7 +202,7 @@ class _Problem:
         if self.peak_in_band:
             fom = np.where(in_band, fom, -np.inf)
         return {"fom": fom, "per_band": per_band, "absorbed_fraction": np.mean(afs, axis=0),
-                "peak_nm": peak, "in_band": in_band}
+                "peak_nm": peak, "in_band": in_band, "sigma_abs_m2": res["sigma_abs_m2"]}
 
     def fom(self, g):
         """(figure of merit, band-average absorbed fraction) of designs g."""
@@ -249,7 +249,7 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
            materials=("Au",), core="SiO2", medium="water", illumination=None, barrier_eV=None,
            fermi_energy_eV=None, min_shell_nm=2.0, max_size_nm=150.0, polarization="random",
            method="auto", surface_damping=True, wavelength_nm=None, n_starts=2, top=10, progress=None,
-           combine="worst", peak_in_band=True, recheck=True):
+           combine="worst", peak_in_band=True, recheck=True, environment=None):
     """Rank particle designs by a figure of merit averaged over one or several target bands.
 
     Algorithm: per family and material, (1) one vectorised spectrum call over a
@@ -320,6 +320,9 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     progress : bool or None, keyword-only
         Progress bar on stderr for searches longer than ~0.5 s: True always,
         False never, None (default) only when stderr is a terminal.
+    environment : environment object, keyword-only
+        Where the particles sit (:func:`nanoabs.on_substrate`, :func:`nanoabs.buried`) instead of
+        ``medium``; every design is then computed on its own (slower than a homogeneous host).
     combine : {"worst", "mean"}, keyword-only
         Several bands: rank by the worst band's figure of merit (default: the design must
         serve every band) or by their mean.
@@ -359,7 +362,7 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
                          fermi_energy_eV=fermi_energy_eV, min_shell_nm=min_shell_nm, max_size_nm=max_size_nm,
                          polarization=polarization, method=method, surface_damping=surface_damping,
                          wavelength_nm=wavelength_nm, n_starts=n_starts, top=top, combine=combine,
-                         peak_in_band=peak_in_band)
+                         peak_in_band=peak_in_band, environment=environment)
     cfg["recheck"] = bool(recheck)
     n_tasks = len(cfg["families"]) * len(cfg["mats"]) * (1 + n_starts) + top
     bar = progress_bar(n_tasks, "search", progress)
@@ -409,9 +412,9 @@ def _bands(band_nm):
     return out
 
 
-def search_inputs(band_nm, *, families, objective, bounds, materials, core, medium, illumination, barrier_eV,
+def search_inputs(band_nm, *, families, objective, bounds, materials, core, medium="water", illumination, barrier_eV,
                    fermi_energy_eV, min_shell_nm, max_size_nm, polarization, method, surface_damping,
-                   wavelength_nm, n_starts, top, combine="worst", peak_in_band=True):
+                   wavelength_nm, n_starts, top, combine="worst", peak_in_band=True, environment=None):
     """The validated inputs of :func:`search` as one dict; raises before any spectrum is computed."""
     bands = _bands(band_nm)
     lo, hi = bands[0][0], bands[-1][1]
@@ -432,7 +435,14 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
         raise NanoabsError("materials is empty: give at least one metal")
     mats = [_resolve_material(m) for m in materials]
     core_m = _resolve_material(core)
-    med = _resolve_material(medium)
+    if environment is not None:
+        if medium != "water":
+            raise NanoabsError("medium and environment: give one (the environment names the particle's host)")
+        if not is_environment(environment):
+            raise NanoabsError(f"environment = {environment!r}: expected nanoabs.on_substrate(...), buried(...) "
+                               "or homogeneous(...)")
+        medium = environment
+    med = environment.host_material() if environment is not None else _resolve_material(medium)
     min_shell = float(check_finite_array("min_shell_nm", min_shell_nm)[0])
     max_size = float(check_finite_array("max_size_nm", max_size_nm)[0])
     if min_shell < MONOLAYER_NM:
@@ -463,7 +473,8 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
         band_grids.append((b_lo, b_hi, band_wl, inj))
     return {"lo": lo, "hi": hi, "bands": band_grids, "objective": objective, "combine": combine,
             "peak_in_band": bool(peak_in_band), "families": families, "materials": materials,
-            "mats": mats, "core": core, "core_m": core_m, "medium": medium, "med": med, "min_shell": min_shell,
+            "mats": mats, "core": core, "core_m": core_m, "medium": medium, "med": med,
+            "where": environment if environment is not None else med, "min_shell": min_shell,
             "max_size": max_size, "n_starts": n_starts, "window": window,
             "band_wl": np.concatenate([b[2] for b in band_grids]),
             "inj_meta": inj_meta, "fam_bounds": _family_bounds(bounds, families, min_shell, max_size),
@@ -544,10 +555,13 @@ def _problem(cfg, fam, mi, method=None):
     if method is not None:
         settings["method"] = method
     elif settings["method"] == "auto":
-        settings["method"] = SWEEP_AUTO[_FAMILY_SHAPE[fam]]  # the fast method for the coarse stage
+        planar = is_environment(cfg["where"]) and cfg["where"].kind != "homogeneous"
+        # the fast method for the coarse stage (in a planar environment the dipole with the reflected
+        # Green's function; the recheck uses the multipole method)
+        settings["method"] = "mlwa" if planar else SWEEP_AUTO[_FAMILY_SHAPE[fam]]
     bands = [(lo, hi, wl, inj[id(m)] if cfg["objective"] == "injection" else None)
              for lo, hi, wl, inj in cfg["bands"]]
-    return _Problem(fam, m, cfg["core_m"] if fam == "shell" else None, cfg["med"], settings, bands,
+    return _Problem(fam, m, cfg["core_m"] if fam == "shell" else None, cfg["where"], settings, bands,
                     cfg["window"], cfg["objective"], cfg["combine"], cfg["peak_in_band"])
 
 
@@ -654,24 +668,28 @@ def _validity(prob, g, window):
     from ..solvers import METHODS, Problem
 
     solver = METHODS[prob.settings["method"]]
-    n_med = np.atleast_1d(prob.medium.refractive_index(window)).real
+    n_med = (prob.medium.host_index(window)[0] if is_environment(prob.medium)
+             else np.atleast_1d(prob.medium.refractive_index(window)).real)
     prb = Problem(_one_particle(prob, g), window, n_med, "x", None, [])
     codes = sorted({c.code for c in solver.validity(prb)})
     return ";".join(codes) if codes else "ok"
 
 
 def _recheck(cfg, c, g):
-    """Peak and figure of merit of design ``g`` with the best available solver ("auto" rule)."""
+    """Peak and figure of merit of design ``g`` with the best available solver (the size-aware
+    "auto" rule of :func:`nanoabs.solvers.choose`), on the search's evaluation grid."""
     from ..solvers import Homogeneous, choose
 
     prob0 = _problem(cfg, c["family"], c["mi"])
-    best, _ = choose("auto", _one_particle(prob0, g), Homogeneous(prob0.medium))
+    where = prob0.medium if is_environment(prob0.medium) else Homogeneous(prob0.medium)
+    window = cfg["window"]
+    best, _ = choose("auto", _one_particle(prob0, g), where, wavelength_nm=window,
+                     n_medium=where.host_index(window)[0])
     prob = _problem(cfg, c["family"], c["mi"], method=best.name)
     ev = prob.evaluate(g)
     per_band = ev["per_band"][0]
-    res = prob.spectra(g, cfg["window"])
     return {"recheck_method": best.name,
-            "recheck_peak_wavelength_nm": float(_peak(cfg["window"], res["sigma_abs_m2"][0])),
+            "recheck_peak_wavelength_nm": float(_peak(prob.grid, ev["sigma_abs_m2"][0])),
             "recheck_figure_of_merit": float(per_band.min() if cfg["combine"] == "worst" else per_band.mean())}
 
 

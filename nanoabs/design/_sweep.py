@@ -17,7 +17,7 @@ from .._errors import NanoabsError
 from ..optics import UNITS as _SPECTRUM_UNITS
 from ..validity import emit_messages
 from . import _engine
-from ._designs import (_GEOMETRY, _design_columns, _designs, _evaluate, _make_plan, _material_label,
+from ._designs import (is_environment, _GEOMETRY, _design_columns, _designs, _evaluate, _make_plan, _material_label,
                        _material_meta, _resolve_material, _settings)
 
 #: Largest sweep (designs x wavelengths) run without an explicit ``max_points``.
@@ -106,6 +106,14 @@ def _content_token(value, wavelength_nm) -> str:
     """
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         return repr(float(value))
+    if is_environment(value):  # its description plus the content of every material it names
+        h = hashlib.sha256(json.dumps(value.describe(), sort_keys=True, default=str).encode())
+        for name in ("medium", "substrate", "superstrate"):
+            if getattr(value, name, None) is not None:
+                h.update(_content_token(getattr(value, name), wavelength_nm).encode())
+        if getattr(value, "spacer", None):
+            h.update(_content_token(value.spacer[0], wavelength_nm).encode())
+        return h.hexdigest()
     m = _resolve_material(value)
     h = hashlib.sha256(f"{type(m).__name__}|{_material_label(value)}".encode())
     h.update(json.dumps(_material_meta(m), sort_keys=True, default=str).encode())
@@ -174,7 +182,7 @@ def _sweep_metadata(plan, n_chunks, warnings, methods, executor_name):
 def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="water",
           polarization="random", method="auto", surface_damping=True, executor=None, chunk_size=64,
           progress=None, out=None, force=False, memory_budget_MB=256.0, max_points=MAX_POINTS,
-          as_dataset=False):
+          as_dataset=False, environment=None):
     """Spectra of the Cartesian product of design parameters, as one tidy table (or an N-D dataset).
 
     Parameters
@@ -246,6 +254,11 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
         Largest number of designs x wavelengths allowed (default
         :data:`MAX_POINTS`, 1e8, about 10 GB of CSV); a larger sweep is refused
         unless this is raised explicitly.
+    environment : environment object, keyword-only
+        Where the particles sit (:func:`nanoabs.on_substrate`, :func:`nanoabs.buried`) instead of a
+        homogeneous ``medium``; each design is then computed on its own (planar environments take
+        one particle per call), and the environment's description and materials enter the
+        resume identity.
     as_dataset : bool, keyword-only
         Return an :class:`xarray.Dataset` with dims ``wavelength_nm`` plus the swept
         parameters and CF ``units`` attributes (:func:`nanoabs.dataset.sweep_dataset`;
@@ -275,6 +288,10 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
     >>> df = sweep("sphere", {"radius_nm": [10, 20, 40]}, np.linspace(400, 800, 201), progress=False)
     >>> peaks = df.groupby("radius_nm").apply(lambda g: g.wavelength_nm[g.sigma_abs_m2.idxmax()])
     """
+    if environment is not None:
+        if medium != "water":
+            raise NanoabsError("medium and environment: give one (the environment names the particle's host)")
+        medium = environment
     if as_dataset:
         if out is not None:
             raise NanoabsError("as_dataset=True returns the sweep in memory; write it with "
