@@ -306,11 +306,18 @@ def _print_warnings(meta):
         print(f"warning: {w}", file=sys.stderr)
 
 
-def _cmd_spectrum(args) -> int:
-    from .export import check_writable
+def _check_outputs(args):
+    """Every output of a command is checked before any work (nothing is half-written)."""
+    from .export import check_file_target, check_writable
 
-    if args.output:
+    if args.output is not None:
         check_writable(args.output, force=args.force)
+    if getattr(args, "plot", None) is not None:
+        check_file_target(args.plot, force=args.force, suffixes=(".png", ".svg"), what="plot file")
+
+
+def _cmd_spectrum(args) -> int:
+    _check_outputs(args)
     particle, spec = _spectrum_from_args(args)
     _print_warnings(spec.metadata)
     summ = spec.summary()
@@ -400,13 +407,11 @@ def _illumination_from_args(args):
 
 def _cmd_hot_carriers(args) -> int:
     from .detector import hot_carrier_estimate
-    from .export import check_writable
     from .hotcarriers import SAFETY_CAUTION
 
-    if args.output:
-        check_writable(args.output, force=args.force)
-    if args.plot and Path(args.plot).exists() and not args.force:
-        raise NanoabsError(f"--plot {args.plot!r} exists; give --force to overwrite")
+    _check_outputs(args)
+    if args.total_irradiance is not None and not str(args.spectrum or "").startswith("blackbody"):
+        raise NanoabsError("--total-irradiance scales a blackbody: give it with --spectrum blackbody:T_K")
     if (args.barrier is None) == (args.schottky is None):
         raise NanoabsError("give exactly one of --barrier EV or --schottky METAL/SEMICONDUCTOR (e.g. Au/Si, Au/p-Si)")
     if args.barrier is not None and args.area is not None:

@@ -338,6 +338,21 @@ def _barrier_opts(contact, barrier_eV, carrier, bias_V, doping_cm3, temperature_
     return phi, c.carrier, meta, c
 
 
+def _contact_plausibility(c, metal, spec) -> list:
+    """Warnings when the tabulated contact does not match the particle's metal or its host."""
+    out = []
+    if c.metal != metal.name and not (c.metal.endswith("Si") and c.metal.startswith(metal.name)):
+        out.append(f"the Schottky pair {c.label} has metal {c.metal}, but the particle's metal is {metal.name}: "
+                   "check the pair (the barrier belongs to the pair, not to the particle)")
+    env = spec.metadata.get("environment") or {}
+    host = (env.get("substrate") if env.get("kind") in ("on_substrate", "buried")
+            else (env.get("medium") or {}).get("material", ""))
+    if host and str(host).split()[0] != c.semiconductor:
+        out.append(f"the Schottky pair {c.label} is on {c.semiconductor}, but the particle sits in or on {host}: "
+                   "carriers cross only where the metal touches the contact semiconductor")
+    return out
+
+
 def _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings):
     """Cut-off wavelength hc/phi [nm]; warnings for rows beyond it and for a peak or band end near it."""
     lam_c = float(HC_EV_NM / phi)
@@ -480,7 +495,7 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     opts = _options(metal, fermi_energy_eV, attenuation_length_nm, momentum_factor, contact_fraction)
     opts.update({"phi": phi, "carrier": carrier, "yield_model": yield_model, "geometry": geometry,
                  "generation": generation, "temperature_K": float(temperature_K), "bias_V": float(bias_V)})
-    warnings = list(spec.metadata.get("warnings", []))
+    warnings = list(spec.metadata.get("warnings", [])) + (_contact_plausibility(c, metal, spec) if c else [])
     notes = []
 
     E_lam = np.asarray(check_illumination(illumination).spectral_irradiance(wl), dtype=float)
@@ -642,11 +657,7 @@ def _methods(geometry, generation):
 
 
 def _main_metal(particle):
-    if isinstance(particle, Ellipsoid):
-        mats = [particle.material] + ([particle.shell[0]] if particle.shell else [])
-    else:
-        mats = [m for m, _ in particle.layers]
-    metals = [m for m in mats if m.is_metal]
+    metals = [m for m in particle.layer_materials() if m.is_metal]
     if not metals:
         raise NanoabsError("hot-carrier estimate: the particle has no metal part")
     return metals[-1]

@@ -194,6 +194,19 @@ class Material:
     def is_metal(self) -> bool:
         return self.kind == "metal"
 
+    def __repr__(self) -> str:
+        lo, hi = self.range_nm
+        span = "any wavelength" if self._constant is not None else f"{lo:g}-{hi:g} nm"
+        fit = ", Drude-Lorentz fit" if self.model is not None else ""
+        return f"Material({self.label}: {self.kind}, {span}{fit})"
+
+    def _repr_html_(self) -> str:
+        import html
+
+        ref = self.info.get("reference", "")
+        return (f"<div><b>{html.escape(self.label)}</b> ({html.escape(self.kind)})<br>"
+                f"{html.escape(repr(self))}<br><small>{html.escape(str(ref))}</small></div>")
+
     def outside(self, wavelength_nm) -> np.ndarray:
         """Boolean mask of wavelengths outside the tabulated range."""
         wl = np.asarray(wavelength_nm, dtype=float)

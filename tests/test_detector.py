@@ -347,3 +347,25 @@ def test_device_input_errors(kw, needle):
     with pytest.raises(NanoabsError) as e:
         hot_carrier_estimate(s, p, il.monochromatic(10.0), **args)
     assert needle in str(e.value) and "\n" not in str(e.value)
+
+
+def test_plausibility_warnings_for_a_mismatched_contact():
+    # Contract (reliability issue): a Schottky pair whose metal is not the particle's, or whose
+    # semiconductor is not the host, is flagged; a matching pair is not.
+    wl = np.array([1300.0, 1400.0])
+    ag = Sphere("Ag", 20.0)
+    res = hot_carrier_estimate(spectrum(ag, wl, medium="water"), ag, il.monochromatic(10.0), contact="Au/Si")
+    text = " ".join(res.metadata["warnings"])
+    assert "particle's metal is Ag" in text and "sits in or on H2O" in text
+    au = Sphere("Au", 20.0)
+    ok = hot_carrier_estimate(spectrum(au, wl, medium="Si"), au, il.monochromatic(10.0), contact="Au/Si")
+    assert not any("Schottky pair" in w for w in ok.metadata["warnings"])
+
+
+def test_cli_checks_every_output_before_work(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert main("spectrum --shape sphere --material Au --radius 20 --wl 500:600:10 -o x.csv --plot x.jpg".split()) == 2
+    assert not (tmp_path / "x.csv").exists()  # the bad plot path is refused before the CSV is written
+    assert main("hot-carriers --shape sphere --material Au --radius 20 --wl 500:600:10 --barrier 0.8 "
+                "--irradiance 10 --total-irradiance 5".split()) == 2
+    assert "--total-irradiance" in capsys.readouterr().err

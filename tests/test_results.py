@@ -83,3 +83,20 @@ def test_sweep_as_dataset_and_cli_netcdf(tmp_path):
     assert back.sigma_abs_m2.shape == (3, 71) and back.wavelength_nm.attrs["units"] == "nm"
     assert main(["sweep", "--shape", "sphere", "--param", "radius_nm=10", "--wl", "500:600:10", "-o",
                  str(out), "--quiet"]) == 2  # exists: never overwritten without --force
+
+
+def test_material_and_hot_carrier_reprs_are_short():
+    m = nanoabs.material("Au")
+    assert len(repr(m)) < 120 and "Au" in repr(m) and "nm" in repr(m)
+    assert "<div>" in m._repr_html_()
+    from nanoabs import illumination as il
+
+    s = nanoabs.spectrum(nanoabs.Sphere("Au", 20.0), np.linspace(500.0, 700.0, 21))
+    r = nanoabs.hot_carrier_estimate(s, nanoabs.Sphere("Au", 20.0), il.monochromatic(10.0), barrier_eV=0.8,
+                                     density_per_um2=10)
+    assert len(repr(r)) < 300 and "mA/W" in repr(r)
+    import matplotlib.pyplot as plt
+
+    ax = r.plot()
+    assert "mA/W" in ax.get_ylabel()
+    plt.close("all")
