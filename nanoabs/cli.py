@@ -115,7 +115,7 @@ def _cmd_materials(args) -> int:
     if args.name is None:
         raise NanoabsError(f"materials {args.action}: give a material NAME (see 'nanoabs materials')")
     if args.action == "show":
-        m = mat.material(args.name, args.source)
+        m = mat.material(args.name, args.source, extrapolate=_EXTRAPOLATE)
         if args.wl:
             wl = parse_range(args.wl)
         else:
@@ -192,7 +192,7 @@ def _material_arg(text, option):
 
     if text is None:
         raise NanoabsError(f"{option} is required for this shape")
-    return material(text)
+    return material(text, extrapolate=_EXTRAPOLATE)
 
 
 def _particle_from_args(args):
@@ -253,7 +253,17 @@ def _build_particle(args):
 def _medium_arg(text):
     from .materials import material
 
-    return material(text)
+    return material(text, extrapolate=_EXTRAPOLATE)
+
+
+#: Set from --extrapolate for the running command: every material it reads may use the fitted
+#: Drude-Lorentz model outside its tabulated range (the metadata says so where it does).
+_EXTRAPOLATE = False
+
+
+def _named_material(text):
+    """A material name as given, or (with --extrapolate) the material object that extrapolates."""
+    return _medium_arg(text) if _EXTRAPOLATE else text
 
 
 def _spectrum_from_args(args, particle=None):
@@ -291,6 +301,7 @@ def _where_from_args(args):
         raise NanoabsError(f"--{next(iter(planar))} needs --substrate MATERIAL")
     if "depth" in planar and "gap" in planar:
         raise NanoabsError("--depth (buried particle) and --gap (particle on the surface): give one")
+    planar.update({k: _named_material(planar[k]) for k in ("substrate", "superstrate") if k in planar})
     kw = {"superstrate": planar.get("superstrate", "air"), "incidence": planar.get("incidence", "front"),
           "angle_deg": planar.get("angle", 0.0), "polarization": light or "s"}
     if "depth" in planar:
@@ -477,6 +488,11 @@ def _print_hot_carrier_summary(res, illum):
               "give --thermal-conductivity)")
 
 
+def _add_extrapolate(p):
+    p.add_argument("--extrapolate", action="store_true",
+                   help="beyond a table's range, use its fitted Drude-Lorentz model (metadata says where)")
+
+
 def _add_particle_options(p):
     g = p.add_argument_group("particle (lengths in nm)")
     g.add_argument("--shape", required=True, choices=PARTICLE_SHAPES)
@@ -508,6 +524,7 @@ def _add_particle_options(p):
                                                "give --polarization s or p with it")
     g.add_argument("--no-surface-damping", action="store_true", help="turn the size correction off")
     g.add_argument("--damping-a", type=float, default=1.0, help="surface-scattering parameter A (default 1)")
+    _add_extrapolate(g)
     p.add_argument("-o", "--output", help="write CSV (+ JSON sidecar) or .json")
     p.add_argument("--force", action="store_true", help="overwrite existing output files")
 
@@ -629,7 +646,9 @@ def _table_or_material(text):
     from .export import check_input_file
     from .materials import load_table
 
-    return load_table(check_input_file(text, "material table")) if str(text).lower().endswith(".csv") else text
+    if str(text).lower().endswith(".csv"):
+        return load_table(check_input_file(text, "material table"))
+    return _named_material(text)
 
 
 def _cmd_sweep(args) -> int:
@@ -734,7 +753,7 @@ def _cmd_search(args) -> int:
     elif args.spectrum:
         illum = _spectrum_source(args.spectrum)
     ranked = design.search(b, families=[f.strip() for f in args.families.split(",")],
-                           objective=args.objective, materials=[m.strip() for m in args.materials.split(",")],
+                           objective=args.objective, materials=[_named_material(m.strip()) for m in args.materials.split(",")],
                            medium=_medium_arg(args.medium), illumination=illum, barrier_eV=barrier,
                            max_size_nm=args.max_size, min_shell_nm=args.min_shell, top=args.top,
                            progress=not args.quiet and sys.stderr.isatty(), combine=args.combine,
@@ -758,6 +777,7 @@ def _cmd_search(args) -> int:
 
 def _register_design_commands(sub):
     w = sub.add_parser("sweep", help="spectra over a grid of sizes (tidy table, map)")
+    _add_extrapolate(w)
     w.add_argument("--shape", required=True, choices=["sphere", "shell", "spheroid", "ellipsoid"])
     w.add_argument("--param", action="append", help="NAME=VALUES, e.g. length_nm=40:100:5 or diameter_nm=20 "
                    "(names: radius_nm, core_radius_nm, thickness_nm, length_nm, diameter_nm, aspect_ratio, "
@@ -780,6 +800,7 @@ def _register_design_commands(sub):
     w.set_defaults(func=_cmd_sweep)
 
     q = sub.add_parser("search", help="ranked particle designs for a target band")
+    _add_extrapolate(q)
     q.add_argument("--band", action="append", help="band edges LO:HI [nm]; repeat for several bands")
     q.add_argument("--center", type=float, help="band centre [nm] (with --width)")
     q.add_argument("--width", type=float, help="band width [nm]")
@@ -849,6 +870,7 @@ def build_parser() -> argparse.ArgumentParser:
     m.add_argument("action", nargs="?", choices=["list", "show", "fit"], help="default: list")
     m.add_argument("name", nargs="?", help="material name, e.g. Au")
     m.add_argument("--source", help="dataset key (default: the material's default dataset)")
+    _add_extrapolate(m)
     m.add_argument("--wl", help="show: wavelengths START:STOP:STEP [nm]")
     m.add_argument("--plot", help="show: save a plot of n, k, eps', eps'' (.png or .svg)")
     m.add_argument("--range", help="fit: window START:STOP [nm] (default: whole table)")
@@ -869,9 +891,11 @@ def build_parser() -> argparse.ArgumentParser:
 def _run(argv) -> int:
     from . import export
 
+    global _EXTRAPOLATE
     export.COMMAND_LINE = ["nanoabs", *argv]
     parser = build_parser()
     args = parser.parse_args(argv)
+    _EXTRAPOLATE = bool(getattr(args, "extrapolate", False))
     if getattr(args, "func", None) is None:
         parser.print_help()
         return 0

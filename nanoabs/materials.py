@@ -223,7 +223,7 @@ class Material:
             if not (self.extrapolate and self.model is not None):
                 lo, hi = self.range_nm
                 how = ("; no fitted model to extrapolate with" if self.extrapolate else
-                       "; pass extrapolate=True to use the fitted Drude-Lorentz model there"
+                       "; use the fitted Drude-Lorentz model there with extrapolate=True (--extrapolate on the command line)"
                        if self.model is not None else "")
                 raise NanoabsError(
                     f"wavelength {wl.min():g}-{wl.max():g} nm is outside material {self.name} "

@@ -55,3 +55,17 @@ def test_errors_one_line_no_traceback(capsys, argv, needle):
     assert code == 2
     assert needle in err
     assert err.count("\n") == 1 and "Traceback" not in err
+
+
+@pytest.mark.parametrize("cmd", [
+    "spectrum --shape sphere --material Au --radius 20 --medium 1.5 --wl 1800:2200:100",
+    "sweep --shape sphere --param radius_nm=10,20 --medium 1.5 --wl 1800:2200:100 --quiet",
+    "materials show Au --wl 2000:2100:50",
+])
+def test_extrapolate_on_every_command_that_reads_materials(cmd, capsys, tmp_path, monkeypatch):
+    # Johnson & Christy (1972) gold ends at 1937 nm: refused without --extrapolate (the message names
+    # the CLI option), accepted with it (the shipped Drude-Lorentz fit extends the table).
+    monkeypatch.chdir(tmp_path)
+    assert main(cmd.split()) == 2
+    assert "--extrapolate" in capsys.readouterr().err
+    assert main(cmd.split() + ["--extrapolate"]) == 0

@@ -239,7 +239,7 @@ def _search_window(lo, hi, ranges):
 def _ranges(*materials):
     out = []
     for m in materials:
-        r = getattr(m, "range_nm", None)
+        r = None if getattr(m, "extrapolate", False) else getattr(m, "range_nm", None)
         if r is not None:
             out.append((float(r[0]), float(r[1])))
     return out
