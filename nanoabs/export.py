@@ -205,8 +205,30 @@ def _check_frame(frame, units) -> list[dict]:
     return columns
 
 
-def provenance() -> dict:
-    """What produced a file: versions of nanoabs and its dependencies, Python, platform, command line."""
+def _dataset_files(metadata) -> dict:
+    """{file name: sha256} of every shipped optical-constant table named in ``metadata``."""
+    import hashlib
+
+    from .materials import _data_dir
+
+    found, stack = {}, [metadata]
+    while stack:
+        node = stack.pop()
+        if isinstance(node, Mapping):
+            mat, src = node.get("material"), node.get("source")
+            if isinstance(mat, str) and isinstance(src, str):
+                path = _data_dir() / f"{mat}__{src}.csv"
+                if path.name not in found and path.is_file():
+                    found[path.name] = hashlib.sha256(path.read_bytes()).hexdigest()
+            stack.extend(node.values())
+        elif isinstance(node, (list, tuple)):
+            stack.extend(node)
+    return dict(sorted(found.items()))
+
+
+def provenance(metadata=None) -> dict:
+    """What produced a file: versions of nanoabs and its dependencies, Python, platform, command line,
+    and the sha256 of every shipped optical-constant table the metadata names."""
     import platform
     import sys
     from importlib.metadata import PackageNotFoundError, version
@@ -218,7 +240,8 @@ def provenance() -> dict:
         except PackageNotFoundError:
             deps[name] = None
     return {"nanoabs": _package_version(), "dependencies": deps, "python": sys.version.split()[0],
-            "platform": platform.platform(), "command_line": COMMAND_LINE}
+            "platform": platform.platform(), "command_line": COMMAND_LINE,
+            "material_files_sha256": _dataset_files(metadata) if metadata is not None else {}}
 
 
 def _package_version() -> str:
@@ -350,7 +373,7 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
         "data_file": None if single else targets[0].name,
         "rows": int(len(frame)),
         "columns": columns,
-        "provenance": provenance(),
+        "provenance": provenance(metadata),
         "metadata": _jsonable(metadata, ""),
     }
     json_text = _json_text(doc, _json_data(frame, columns) if single else None)

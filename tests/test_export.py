@@ -282,3 +282,20 @@ def test_fast_reader_detects_a_short_line(tmp_path):
     (tmp_path / "s.csv").write_text("\n".join(lines) + "\n")
     with pytest.raises(DataError, match="line 4"):
         read_export(tmp_path / "s.csv")
+
+
+def test_provenance_hashes_the_shipped_tables_used(tmp_path):
+    # Reproducibility: the sidecar carries the sha256 of every shipped optical-constant file the
+    # result used (the reference is hashlib over the installed file itself).
+    import hashlib
+
+    import nanoabs
+    from nanoabs.materials import _data_dir
+
+    s = nanoabs.spectrum(nanoabs.Sphere("Au", 20.0), np.linspace(500.0, 600.0, 11), medium="water")
+    s.write(tmp_path / "s.csv")
+    _, header = read_export(tmp_path / "s.csv")
+    files = header["provenance"]["material_files_sha256"]
+    assert "Au__johnson-christy-1972.csv" in files and any(f.startswith("H2O__") for f in files)
+    for name, digest in files.items():
+        assert digest == hashlib.sha256((_data_dir() / name).read_bytes()).hexdigest()
