@@ -29,6 +29,12 @@ class NanoabsError(ValueError):
 
     Subclasses ``ValueError`` so callers that already catch ``ValueError`` keep
     working. ``exit_code`` is what the CLI returns for it (see README, "Exit codes").
+
+    Parameters
+    ----------
+    message : str
+        What is wrong: the parameter, its value and the allowed range. Runs of
+        whitespace (including newlines) are collapsed so the message is one line.
     """
 
     exit_code = 2

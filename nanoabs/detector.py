@@ -59,7 +59,20 @@ EXTRA_COLUMNS = ["photon_energy_eV", "power_interband_W", "power_intraband_bulk_
 
 @dataclass
 class HotCarrierResult:
-    """Per-wavelength table, band totals and metadata of a hot-carrier estimate."""
+    """Per-wavelength table, band totals and metadata of a hot-carrier estimate.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        One row per wavelength; column names carry the unit (``wavelength_nm``, ``absorbed_power_W``, ...).
+    totals : dict
+        Band totals and peak values (cut-off wavelength [nm], peak responsivity [A W^-1], ...),
+        the unit in each key.
+    metadata : dict
+        Inputs, materials, Schottky contact, methods and warnings.
+    units : dict, optional
+        Column name of ``frame`` -> unit string (``"nm"``, ``"W"``, ``"1"``).
+    """
 
     frame: object
     totals: dict
@@ -67,7 +80,15 @@ class HotCarrierResult:
     units: dict = field(default_factory=dict)
 
     def write(self, path, *, force=False):
-        """Export CSV + JSON sidecar (or one JSON) atomically; see :func:`nanoabs.export.write_export`."""
+        """Export CSV + JSON sidecar (or one JSON) atomically; see :func:`nanoabs.export.write_export`.
+
+        Parameters
+        ----------
+        path : str or os.PathLike
+            Output file: ``.csv`` (plus a ``.json`` sidecar holding metadata and totals) or ``.json``.
+        force : bool, keyword-only
+            Replace files that already exist; without it an existing file is an error.
+        """
         from .export import write_export
 
         meta = dict(self.metadata)

@@ -348,6 +348,11 @@ def equal_volume_radius(a, b, c):
     """Radius of the sphere with the volume of an ellipsoid of semi-axes a, b, c.
 
     R_eq = (a b c)^(1/3) [same unit as the semi-axes] (common practice).
+
+    Parameters
+    ----------
+    a, b, c : float or array_like
+        Semi-axes, > 0, in one length unit (e.g. [nm]); the result is in that unit.
     """
     a = check_positive("a", a)
     b = check_positive("b", b)
@@ -491,6 +496,13 @@ def external_quantum_efficiency(responsivity_A_W, wavelength_nm):
     Collected electrons per incident photon, from the responsivity [A W^-1]
     (common practice; hc/q = 1239.84198 V nm). NaN responsivities (zero
     irradiance) propagate.
+
+    Parameters
+    ----------
+    responsivity_A_W : float or array_like
+        Responsivity R [A W^-1].
+    wavelength_nm : float or array_like
+        Vacuum wavelength lambda [nm], > 0, broadcastable against ``responsivity_A_W``.
     """
     r = np.asarray(responsivity_A_W, dtype=float)
     wl = check_positive("wavelength_nm", wavelength_nm, unit="nm")
@@ -576,7 +588,16 @@ def partition_by_mechanism(absorbed_power, eps_imag_parts):
 # ---------------------------------------------------------------------------
 
 class Sourced(NamedTuple):
-    """A tabulated value and where it comes from; unpacks as (value, source)."""
+    """A tabulated value and where it comes from; unpacks as (value, source).
+
+    Parameters
+    ----------
+    value : float
+        The value, in the unit of its table ([nm] for :func:`attenuation_length_nm`,
+        [W m^-1 K^-1] for :func:`thermal_conductivity`).
+    source : str
+        Reference of the value, with its caveats (e.g. "from memory").
+    """
 
     value: float
     source: str
@@ -584,7 +605,19 @@ class Sourced(NamedTuple):
 
 @dataclass(frozen=True)
 class FreeElectronMetal:
-    """Free-electron parameters of a metal."""
+    """Free-electron parameters of a metal.
+
+    Parameters
+    ----------
+    electron_density_m3 : float
+        Conduction-electron density n [m^-3].
+    fermi_energy_eV : float
+        Fermi energy E_F measured from the band bottom [eV].
+    fermi_velocity_m_s : float
+        Fermi velocity v_F [m s^-1].
+    source : str
+        Reference of the values.
+    """
 
     electron_density_m3: float  # conduction-electron density n [m^-3]
     fermi_energy_eV: float  # E_F from the band bottom [eV]
@@ -649,17 +682,35 @@ def _lookup(table: dict, key: str, what: str):
 
 
 def free_electron(metal: str) -> FreeElectronMetal:
-    """Free-electron parameters (n, E_F, v_F) of 'Au', 'Ag', 'Cu' or 'Al' (case-insensitive)."""
+    """Free-electron parameters (n, E_F, v_F) of 'Au', 'Ag', 'Cu' or 'Al' (case-insensitive).
+
+    Parameters
+    ----------
+    metal : str
+        Metal symbol, case-insensitive.
+    """
     return _lookup(FREE_ELECTRON, metal, "metal")
 
 
 def attenuation_length_nm(metal: str) -> Sourced:
-    """Hot-electron attenuation length [nm] of a metal as (value, source)."""
+    """Hot-electron attenuation length [nm] of a metal as (value, source).
+
+    Parameters
+    ----------
+    metal : str
+        Metal symbol in ``ATTENUATION_LENGTH_NM`` (e.g. 'Au', 'Pt', 'TiN'), case-insensitive.
+    """
     return _lookup(ATTENUATION_LENGTH_NM, metal, "metal")
 
 
 def thermal_conductivity(medium: str) -> Sourced:
-    """Thermal conductivity [W m^-1 K^-1] of a surrounding medium as (value, source)."""
+    """Thermal conductivity [W m^-1 K^-1] of a surrounding medium as (value, source).
+
+    Parameters
+    ----------
+    medium : str
+        Medium name in ``THERMAL_CONDUCTIVITY_W_MK`` (e.g. 'water', 'SiO2'), case-insensitive.
+    """
     return _lookup(THERMAL_CONDUCTIVITY_W_MK, medium, "medium")
 
 

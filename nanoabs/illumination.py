@@ -93,22 +93,33 @@ class Illumination:
     Build instances with :func:`monochromatic`, :func:`laser`, :func:`solar`,
     :func:`blackbody`, :func:`flat` or :func:`from_csv` rather than directly.
 
-    Attributes
+    Parameters
     ----------
     kind : str
         ``'monochromatic'``, ``'laser'``, ``'solar'``, ``'blackbody'``, ``'flat'``,
         ``'csv'``, or ``'<kind>+filter'`` after :meth:`filtered`.
     description : str
         One human-readable line.
-    is_monochromatic : bool
-        True when ``spectral_irradiance`` returns an irradiance in W m^-2 applied at
+    evaluate : callable
+        Maps an array of wavelengths [nm] (already checked against ``range_nm``) to
+        the spectral irradiance [W m^-2 nm^-1], or [W m^-2] when ``is_monochromatic``.
+    is_monochromatic : bool, keyword-only
+        True when ``spectral_irradiance`` returns an irradiance [W m^-2] applied at
         each wavelength separately; then band integrals are not meaningful.
+    range_nm : tuple of float, keyword-only
+        Wavelengths [nm] where the source is defined; outside it evaluation raises.
+    nodes_nm : numpy.ndarray or None, keyword-only
+        The tabulated wavelengths [nm] of a table source (solar, CSV), else None.
+    parameters : dict or None, keyword-only
+        The constructor's inputs, with the unit in each key (e.g. ``irradiance_W_m2``),
+        for metadata and exports.
+    source : str, keyword-only
+        Reference or origin of the spectrum (citation, ``'user'`` or the file).
+
+    Attributes
+    ----------
     unit : str
         ``'W m^-2'`` (monochromatic) or ``'W m^-2 nm^-1'`` (spectral).
-    range_nm : tuple of float
-        Wavelengths [nm] where the source is defined; outside it evaluation raises.
-    nodes_nm : numpy.ndarray or None
-        The tabulated wavelengths [nm] of a table source (solar, CSV), else None.
     """
 
     def __init__(
@@ -266,6 +277,11 @@ def monochromatic(irradiance_W_m2: float) -> Illumination:
     this irradiance, so per-wavelength outputs (absorbed power [W], photocurrent
     [A], temperature rise [K]) are for that irradiance, while integrals over
     wavelength are not meaningful (``is_monochromatic = True``).
+
+    Parameters
+    ----------
+    irradiance_W_m2 : float
+        Irradiance [W m^-2], >= 0.
     """
     value = check_nonnegative("irradiance_W_m2", irradiance_W_m2, unit="W/m^2", scalar=True)
     return Illumination(
@@ -306,6 +322,15 @@ def gaussian_beam_irradiance(r_nm, power_W, beam_radius_nm):
     """Irradiance of a Gaussian beam at distance ``r_nm`` from its axis [W m^-2].
 
     I(r) = 2P/(pi w^2) exp(-2 r^2/w^2) (Siegman, *Lasers*, 1986, ch. 17).
+
+    Parameters
+    ----------
+    r_nm : float or array_like
+        Distance r from the beam axis [nm], >= 0.
+    power_W : float or array_like
+        Beam power P [W], >= 0.
+    beam_radius_nm : float or array_like
+        1/e^2 intensity radius w [nm], > 0.
     """
     r = check_nonnegative("r_nm", r_nm, unit="nm")
     w = check_positive("beam_radius_nm", beam_radius_nm, unit="nm")
@@ -447,6 +472,15 @@ def blackbody(
     ``temperature_K`` must lie in ``BLACKBODY_RANGE_K`` (1 K to 1e6 K): below it the
     spectrum underflows to zero at every tabulated wavelength, and a source of negligible
     temperature "scaled to a total" would divide by sigma T^4 ~ 0.
+
+    Parameters
+    ----------
+    temperature_K : float
+        Blackbody temperature T [K], within ``BLACKBODY_RANGE_K``.
+    total_irradiance_W_m2 : float or None, keyword-only
+        Scale the spectrum so its integral over all wavelengths is this irradiance [W m^-2], >= 0.
+    solid_angle_sr : float or None, keyword-only
+        Solid angle Omega subtended by the source [sr], in (0, 2 pi].
     """
     t = check_range("temperature_K", temperature_K, *BLACKBODY_RANGE_K, unit="K", scalar=True)
     if total_irradiance_W_m2 is not None and solid_angle_sr is not None:
@@ -486,7 +520,13 @@ def blackbody(
 # ---------------------------------------------------------------------------
 
 def flat(value_W_m2_nm: float) -> Illumination:
-    """A wavelength-independent spectral irradiance ``value_W_m2_nm`` [W m^-2 nm^-1]."""
+    """A wavelength-independent spectral irradiance ``value_W_m2_nm`` [W m^-2 nm^-1].
+
+    Parameters
+    ----------
+    value_W_m2_nm : float
+        Spectral irradiance [W m^-2 nm^-1], >= 0, at every wavelength.
+    """
     v = check_nonnegative("value_W_m2_nm", value_W_m2_nm, unit="W m^-2 nm^-1", scalar=True)
     return Illumination(
         "flat",
@@ -573,6 +613,11 @@ def from_csv(path) -> Illumination:
     wavelengths (> 0) and finite irradiances (>= 0). Any other content raises a
     one-line :class:`DataError` naming the file, line, column and value. Evaluation
     outside the table's wavelength range raises a NanoabsError.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The CSV file (wavelengths [nm], irradiances [W m^-2 nm^-1]).
     """
     from .materials import user_path
 

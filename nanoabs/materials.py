@@ -168,6 +168,26 @@ class Material:
 
     Use :func:`material` to obtain one. ``permittivity`` and ``refractive_index``
     take scalars or arrays of wavelengths [nm] and keep their shape.
+
+    Parameters
+    ----------
+    name : str
+        Material name (e.g. ``'Au'``), used in labels, messages and metadata.
+    source : str
+        Dataset the constants come from: its key, ``'constant'`` for a constant index,
+        or ``'user'`` for a user table without a ``# source`` header.
+    kind : str, optional
+        ``'metal'``, ``'dielectric'`` or ``'medium'``; only ``'metal'`` layers count
+        towards the metal volume and get surface damping.
+    info : dict, optional
+        Dataset metadata (reference, DOI, dataset, convention, note) copied into exports.
+    range_nm : tuple of float, optional
+        (shortest, longest) tabulated vacuum wavelength [nm]; outside it evaluation
+        raises unless ``extrapolate`` is set and a fitted ``model`` exists.
+    extrapolate : bool, optional
+        Use the fitted Drude-Lorentz ``model`` outside ``range_nm`` instead of raising.
+    model : DrudeLorentz or None, optional
+        Drude-Lorentz fit of the dataset, used for extrapolation and surface damping.
     """
 
     name: str
@@ -208,13 +228,26 @@ class Material:
                 f"{html.escape(repr(self))}<br><small>{html.escape(str(ref))}</small></div>")
 
     def outside(self, wavelength_nm) -> np.ndarray:
-        """Boolean mask of wavelengths outside the tabulated range."""
+        """Boolean mask of wavelengths outside the tabulated range.
+
+        Parameters
+        ----------
+        wavelength_nm : float or array_like
+            Vacuum wavelengths [nm], any shape.
+        """
         wl = np.asarray(wavelength_nm, dtype=float)
         lo, hi = self.range_nm
         return (wl < lo * (1 - 1e-12)) | (wl > hi * (1 + 1e-12))
 
     def refractive_index(self, wavelength_nm):
-        """Complex refractive index n + ik (k ≥ 0) at vacuum wavelengths [nm]."""
+        """Complex refractive index n + ik (k ≥ 0) at vacuum wavelengths [nm].
+
+        Parameters
+        ----------
+        wavelength_nm : float or array_like
+            Vacuum wavelengths [nm], > 0, any shape (the result keeps it); within
+            ``range_nm`` unless ``extrapolate`` is set.
+        """
         wl = check_positive("wavelength", wavelength_nm, unit="nm")
         if self._constant is not None:
             return np.full(wl.shape, self._constant, dtype=complex)[()]
@@ -242,7 +275,14 @@ class Material:
         return np.asarray(n)[()]
 
     def permittivity(self, wavelength_nm):
-        """Complex permittivity ε = (n + ik)² (ε″ ≥ 0) at vacuum wavelengths [nm]."""
+        """Complex permittivity ε = (n + ik)² (ε″ ≥ 0) at vacuum wavelengths [nm].
+
+        Parameters
+        ----------
+        wavelength_nm : float or array_like
+            Vacuum wavelengths [nm], > 0, any shape (the result keeps it); within
+            ``range_nm`` unless ``extrapolate`` is set.
+        """
         return np.asarray(self.refractive_index(wavelength_nm)) ** 2
 
     def with_surface_damping(self, length_nm: float, *, A: float = 1.0,
@@ -252,6 +292,16 @@ class Material:
         ε(ω, L) = ε_bulk(ω) + ω_p²/(ω² + iγω) − ω_p²/(ω² + i(γ + A v_F/L)ω)
         (Kreibig & Vollmer 1995, Sec. 2.2.4), with ω_p and γ from the dataset's
         shipped Drude–Lorentz fit and v_F from Ashcroft & Mermin (1976) Table 2.1.
+
+        Parameters
+        ----------
+        length_nm : float
+            Effective electron mean free path L [nm] (4V/S for a convex particle).
+        A : float, keyword-only
+            Dimensionless surface-scattering parameter [1] (≈ 1 for diffuse scattering).
+        fermi_velocity_m_s : float or None, keyword-only
+            Fermi velocity v_F [m s^-1]; by default the tabulated value for Au, Ag, Cu
+            or Al (other metals need it given).
         """
         if self.model is None or self.model.plasma_energy_eV <= 0:
             raise NanoabsError(f"surface damping needs a Drude term: material {self.label} has no "
@@ -489,6 +539,16 @@ def load_table(path, *, name: str | None = None, kind: str = "metal") -> Materia
     and the material's metadata says so; a column whose sign changes is an error.
     A UTF-8 byte-order mark is accepted; files larger than ``MAX_USER_FILE_BYTES`` (20 MB)
     are refused before they are read, and error messages never quote the file's contents.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The CSV file; wavelengths [nm] strictly increasing.
+    name : str or None, keyword-only
+        Material name; by default the file's ``# material`` header, else the file stem.
+    kind : str, keyword-only
+        ``'metal'``, ``'dielectric'`` or ``'medium'``; a ``# kind`` header in the file
+        takes precedence.
     """
     p = user_path(path, "material table")
     if name is not None and not isinstance(name, str):

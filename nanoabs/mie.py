@@ -70,7 +70,7 @@ _CHUNK_ELEMENTS = 3_000_000
 class MieEfficiencies(NamedTuple):
     """Far-field efficiencies (dimensionless, cross-section / (pi r_outer^2)).
 
-    Attributes
+    Parameters
     ----------
     qext, qsca, qabs, qback : ndarray
         Extinction, scattering, absorption and backscattering efficiencies [1].

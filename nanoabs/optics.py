@@ -49,15 +49,26 @@ NM2_TO_M2 = 1e-18
 class Spectrum:
     """Result of :func:`spectrum`. Arrays have shape (..., W) for W wavelengths.
 
-    Attributes
+    Parameters
     ----------
-    wavelength_nm : (W,) vacuum wavelengths [nm]
-    sigma_abs_m2, sigma_sca_m2, sigma_ext_m2 : cross-sections [m²]
-    geometric_cross_section_m2 : the reference area of q_* [m²] (see metadata)
-    equal_volume_area_m2 : π r_v² of the equal-volume sphere [m²]
-    metal_volume_m3 : volume of the metal parts [m³]
-    n_medium : (W,) real refractive index of the medium
-    metadata : dict (method, materials, medium, damping lengths, warnings, version)
+    wavelength_nm : numpy.ndarray
+        (W,) vacuum wavelengths [nm].
+    sigma_abs_m2 : numpy.ndarray
+        Absorption cross-section [m²].
+    sigma_sca_m2 : numpy.ndarray
+        Scattering cross-section [m²].
+    sigma_ext_m2 : numpy.ndarray
+        Extinction cross-section [m²].
+    geometric_cross_section_m2 : numpy.ndarray
+        The reference area of the efficiencies ``q_abs``, ``q_sca``, ``q_ext`` [m²] (see metadata).
+    equal_volume_area_m2 : numpy.ndarray
+        π r_v² of the sphere of equal volume [m²].
+    metal_volume_m3 : numpy.ndarray
+        Volume of the metal parts [m³].
+    n_medium : numpy.ndarray
+        (W,) real refractive index of the surrounding medium [1].
+    metadata : dict, optional
+        Method, materials, medium, damping lengths, warnings, version.
     """
 
     wavelength_nm: np.ndarray
@@ -232,7 +243,15 @@ class Spectrum:
         return spectrum_dataset(self, dims)
 
     def write(self, path, *, force: bool = False):
-        """Export :meth:`to_frame` with :data:`UNITS`, the metadata and :meth:`summary` (CSV + JSON)."""
+        """Export :meth:`to_frame` with :data:`UNITS`, the metadata and :meth:`summary` (CSV + JSON).
+
+        Parameters
+        ----------
+        path : str or os.PathLike
+            ``*.csv`` writes the table and a ``.json`` sidecar; ``*.json`` writes one file.
+        force : bool, keyword-only
+            Overwrite existing files (refused otherwise).
+        """
         from .export import write_export
 
         meta = dict(self.metadata)

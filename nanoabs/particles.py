@@ -173,7 +173,15 @@ class _Spherical:
 
 @dataclass
 class Sphere(_Spherical):
-    """Homogeneous sphere of ``radius_nm`` [nm]."""
+    """Homogeneous sphere of ``radius_nm`` [nm].
+
+    Parameters
+    ----------
+    material : str, number or Material
+        Material name, constant refractive index [1], or a :class:`~nanoabs.materials.Material`.
+    radius_nm : float or array_like
+        Radius [nm]: a number or a family of shape (P, 1) (see the module docstring).
+    """
 
     material: object
     radius_nm: object
@@ -196,7 +204,18 @@ class Sphere(_Spherical):
 
 @dataclass
 class LayeredSphere(_Spherical):
-    """Core of ``core_radius_nm`` [nm] with shells [(material, thickness_nm), ...] outward."""
+    """Core of ``core_radius_nm`` [nm] with shells [(material, thickness_nm), ...] outward.
+
+    Parameters
+    ----------
+    core : str, number or Material
+        Core material: name, constant refractive index [1], or a Material.
+    core_radius_nm : float or array_like
+        Core radius [nm]: a number or a family of shape (P, 1).
+    shells : sequence of (material, thickness_nm)
+        At least one shell, from the core outward; each thickness [nm] is at least
+        ``MONOLAYER_NM``.
+    """
 
     core: object
     core_radius_nm: object
@@ -245,6 +264,17 @@ class Ellipsoid:
     ``shell`` = (material, thickness_nm): a confocal coating whose thickness is
     measured along the shortest semi-axis (the confocal family then fixes the
     thickness along the others; they are thinner along longer axes).
+
+    Parameters
+    ----------
+    material : str, number or Material
+        Core material: name, constant refractive index [1], or a Material.
+    semi_axes_nm : sequence of 3 float
+        Semi-axes (a, b, c) [nm] along x, y, z.
+    shell : (material, thickness_nm) or None, optional
+        Confocal coating; thickness [nm] along the shortest semi-axis.
+    kind : str, optional
+        Label in outputs: ``'ellipsoid'``, or ``'rod'`` / ``'disc'`` when built by :func:`spheroid`.
     """
 
     material: object
@@ -288,12 +318,25 @@ class Ellipsoid:
         return 4.0 / 3.0 * np.pi * a * b * c
 
     def surface_nm2(self, axes=None):
+        """Surface area of an ellipsoid [nm²].
+
+        Parameters
+        ----------
+        axes : tuple of 3 float, optional
+            Semi-axes [nm]; by default the outer semi-axes (of the shell, if any).
+        """
         from .quasistatic import ellipsoid_surface_area
 
         return ellipsoid_surface_area(*(axes or self.outer_axes_nm))
 
     def projected_area_nm2(self, axis: str):
-        """Geometric cross-section for the field along ``axis`` (module docstring convention)."""
+        """Geometric cross-section [nm²] for the field along ``axis`` (module docstring convention).
+
+        Parameters
+        ----------
+        axis : str
+            Field direction ``'x'``, ``'y'`` (light along z: π a b) or ``'z'`` (light along x: π b c).
+        """
         a, b, c = self.outer_axes_nm
         return np.pi * a * b if axis in ("x", "y") else np.pi * b * c
 
@@ -318,6 +361,11 @@ class Ellipsoid:
 
         Fixed field: the projected area for the light direction of the module convention;
         random orientation: surface area / 4 (Cauchy's theorem for convex bodies).
+
+        Parameters
+        ----------
+        polarization : str
+            Field direction ``'x'``, ``'y'`` or ``'z'``, or ``'random'`` for random orientation.
         """
         if polarization == "random":
             return self.surface_nm2() / 4.0, "surface area / 4 (random orientation, Cauchy's theorem)"
@@ -350,10 +398,14 @@ def spheroid(material, length_nm, diameter_nm, *, shell=None) -> Ellipsoid:
 
     Parameters
     ----------
+    material : str, number or Material
+        Material name, constant refractive index [1], or a Material.
     length_nm : float
         Extent along the symmetry axis [nm].
     diameter_nm : float
         Extent across it [nm].
+    shell : (material, thickness_nm) or None, keyword-only
+        Confocal coating; thickness [nm] along the shortest semi-axis (see :class:`Ellipsoid`).
     """
     L = _size("length", length_nm)
     D = _size("diameter", diameter_nm)
