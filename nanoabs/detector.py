@@ -270,7 +270,16 @@ def _partition(spec, metal, wl, P, notes):
     return hc.partition_by_mechanism(P, _mechanism_fractions(metal, wl, extra))
 
 
+def _spherical(particle) -> bool:
+    """Spheres and layered spheres (Mie internal fields); every other shape uses the uniform-field model."""
+    return particle.shape in ("sphere", "layered sphere")
+
+
 def _metal_axes(particle, notes):
+    if not hasattr(particle, "semi_axes_nm"):  # a T-matrix body (cylinder, capped rod, rounded disc)
+        notes.append(f"{particle.shape}: emission is computed for the spheroid of the same length and diameter "
+                     "with uniform generation (a documented approximation; its internal field is not uniform)")
+        return particle.outer_semi_axes_nm()
     if particle.material.is_metal:
         return particle.semi_axes_nm
     notes.append("metal shell on a dielectric ellipsoid: emission is computed for a solid ellipsoid of the "
@@ -281,7 +290,7 @@ def _metal_axes(particle, notes):
 def _escape_weights(particle, spec, E, c, ell_E, geometry, cf, notes):
     """Escape weight W(E) per wavelength without and with attenuation: arrays (L or 1, m)."""
     flat = 0.5 * (1.0 - c)
-    if isinstance(particle, Ellipsoid):
+    if not _spherical(particle):
         axes = [float(a) for a in _metal_axes(particle, notes)]
         notes.append("ellipsoid: quasi-static internal field is uniform, so generation is uniform in the metal")
         if geometry == "flat":
@@ -502,8 +511,9 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     """
     import pandas as pd
 
-    if not isinstance(particle, (Sphere, LayeredSphere, Ellipsoid)):
-        raise NanoabsError(f"particle = {type(particle).__name__}: expected Sphere, LayeredSphere or Ellipsoid")
+    if not hasattr(particle, "layer_materials"):
+        raise NanoabsError(f"particle = {type(particle).__name__}: expected a nanoabs particle (Sphere, "
+                           "LayeredSphere, Ellipsoid, Cylinder, CappedRod, RoundedDisc)")
     for name, value, allowed in (("geometry", geometry, ("particle", "flat")),
                                  ("generation", generation, ("band-edges", "flat")),
                                  ("yield model", yield_model, ("escape-cone", "fowler"))):
@@ -531,9 +541,9 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     if parts is None:
         parts = {k: np.full(wl.shape, np.nan) for k in cr.CHANNELS}
         per = {k: np.full(wl.shape, np.nan) for k in cr.CHANNELS}
-    surface_fraction = None if isinstance(particle, Ellipsoid) else _surface_fraction(particle, spec, depth_nm)
-    R = (float(hc.equal_volume_radius(*particle.outer_axes_nm)) if isinstance(particle, Ellipsoid)
-         else float(particle.outer_radius_nm))
+    surface_fraction = _surface_fraction(particle, spec, depth_nm) if _spherical(particle) else None
+    R = (float(particle.outer_radius_nm) if _spherical(particle)
+         else float(hc.equal_volume_radius(*(float(a) for a in particle.outer_semi_axes_nm()))))
 
     rate_col = f"injected_{carrier}_rate_per_s"
     chan_cols = {k: f"injected_{carrier}_rate_{k}_per_s" for k in cr.CHANNELS}

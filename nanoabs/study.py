@@ -60,7 +60,7 @@ SCHEMA = {
     "output": {"figures": (bool, False), "formats": (list, False)},
 }
 _LISTS = {"particle", "sweep"}  # arrays of tables
-_SHAPES = ["sphere", "shell", "spheroid", "ellipsoid"]
+_SHAPES = ["sphere", "shell", "spheroid", "ellipsoid", "cylinder", "capped-rod", "rounded-disc"]
 _ILLUM = ["monochromatic", "laser", "solar", "blackbody", "flat", "csv"]
 
 
@@ -231,6 +231,12 @@ def _medium(doc):
     return material(m.get("name", "water"))
 
 
+def _bodies():
+    from .particles import CappedRod, Cylinder, RoundedDisc
+
+    return {"cylinder": Cylinder, "capped-rod": CappedRod, "rounded-disc": RoundedDisc}
+
+
 def _environment(doc):
     """The [environment] table as an environment object (particles on or in a substrate), or None."""
     from . import environments as envs
@@ -322,6 +328,10 @@ def _particle(t):
     shell = (mat("shell"), num("thickness_nm")) if "shell" in t else None
     if shape == "spheroid":
         return spheroid(mat("material"), num("length_nm"), num("diameter_nm"), shell=shell)
+    if shape in _bodies():
+        if shell is not None:
+            raise DataError(f"study key {t['name']!r}: shape {shape!r} takes no shell (homogeneous T-matrix bodies)")
+        return _bodies()[shape](mat("material"), num("length_nm"), num("diameter_nm"))
     axes = t.get("semi_axes_nm")
     if not isinstance(axes, list) or len(axes) != 3:
         raise DataError(f"study key {t['name']!r}: semi_axes_nm must be [a, b, c] in nm")
@@ -586,7 +596,8 @@ def _particles_section(job, rep):
     curves, warn_lines, resp_curves = [], [], []
     for t, p, stem in job["particles"]:
         spec = spectrum(p, wl, **job["where"], method=t.get("method", "auto"),
-                        polarization=t.get("polarization", "long" if t["shape"] == "spheroid" else "x"),
+                        polarization=t.get("polarization", "x" if t["shape"] in ("sphere", "shell", "ellipsoid")
+                                           else "long"),
                         surface_damping=t.get("surface_damping", True))
         res = hot_carrier_estimate(spec, p, job["illum"], barrier_eV=job["barrier"][0],
                                    fermi_energy_eV=det.get("fermi_energy_eV"),

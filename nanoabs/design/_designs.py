@@ -20,16 +20,22 @@ import numpy as np
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, spectrum
 from ..validity import NanoabsWarning
-from ..particles import MAX_SIZE_NM, MONOLAYER_NM, Ellipsoid, LayeredSphere, Sphere, spheroid
+from ..particles import (MAX_SIZE_NM, MONOLAYER_NM, CappedRod, Cylinder, Ellipsoid, LayeredSphere,
+                         RoundedDisc, Sphere, spheroid)
 from ._engine import unique
 
 #: Shape families of :func:`nanoabs.design.sweep` and :func:`nanoabs.design.ensemble_average`.
-SHAPES = ("sphere", "shell", "spheroid", "ellipsoid")
+SHAPES = ("sphere", "shell", "spheroid", "ellipsoid", "cylinder", "capped-rod", "rounded-disc")
+#: Bodies of revolution given by length and diameter (rods and discs), and their constructors.
+AXIAL = ("spheroid", "cylinder", "capped-rod", "rounded-disc")
 
 _GEOMETRY = {
     "sphere": ("radius_nm",),
     "shell": ("core_radius_nm", "thickness_nm"),
     "spheroid": ("length_nm", "diameter_nm", "aspect_ratio"),
+    "cylinder": ("length_nm", "diameter_nm", "aspect_ratio"),
+    "capped-rod": ("length_nm", "diameter_nm", "aspect_ratio"),
+    "rounded-disc": ("length_nm", "diameter_nm", "aspect_ratio"),
     "ellipsoid": ("a_nm", "b_nm", "c_nm"),
 }
 _ALIASES = {"shell": {"shell": "material", "core": "core_material"}}
@@ -37,7 +43,8 @@ _ALIASES = {"shell": {"shell": "material", "core": "core_material"}}
 #: the same method whatever chunk or family it is computed in (the single-particle "auto" rule of
 #: nanoabs.solvers.choose depends on the largest particle of a call). Rows beyond the method's
 #: validity carry its caution; pass method="tmatrix" to sweep spheroids with the exact solver.
-SWEEP_AUTO = {"sphere": "mie", "shell": "mie", "spheroid": "mlwa", "ellipsoid": "mlwa"}
+SWEEP_AUTO = {"sphere": "mie", "shell": "mie", "spheroid": "mlwa", "ellipsoid": "mlwa", "cylinder": "tmatrix",
+              "capped-rod": "tmatrix", "rounded-disc": "tmatrix"}
 _GEOMETRY_UNITS = {"radius_nm": "nm", "core_radius_nm": "nm", "thickness_nm": "nm", "length_nm": "nm",
                    "diameter_nm": "nm", "aspect_ratio": "1", "a_nm": "nm", "b_nm": "nm", "c_nm": "nm"}
 _TEXT_UNIT = "1"  # unit recorded for text columns (material labels)
@@ -130,9 +137,9 @@ def _canonical_params(shape, params, *, what="params"):
                                f"{MONOLAYER_NM:g} nm (about one atomic monolayer)")
         out[name] = arr
     geo = [n for n in _GEOMETRY[shape] if n in out]
-    if shape == "spheroid":
+    if shape in AXIAL:
         if len(geo) != 2:
-            raise NanoabsError(f"{what} for shape 'spheroid' give {', '.join(geo) or 'no size'}: give exactly "
+            raise NanoabsError(f"{what} for shape {shape!r} give {', '.join(geo) or 'no size'}: give exactly "
                                "two of length_nm, diameter_nm, aspect_ratio")
     else:
         missing = [n for n in _GEOMETRY[shape] if n not in out]
@@ -150,7 +157,7 @@ def _make_plan(shape, params, wavelength_nm, *, material, core, medium, polariza
     if np.any(wl <= 0):
         raise NanoabsError(f"wavelength_nm = {float(wl.min()):g} nm: must be > 0")
     method = check_choice("method", method, ["auto", *METHODS])
-    if shape == "spheroid":
+    if shape in AXIAL:
         polarization = check_choice("polarization", polarization, ["long", "short", "random", "x", "y", "z"])
     elif shape == "ellipsoid":
         polarization = check_choice("polarization", polarization, ["x", "y", "z", "random"])
@@ -199,7 +206,7 @@ def _designs(plan, ids):
     for g in _GEOMETRY[plan["shape"]]:
         if g in vals:
             t[g] = np.asarray(vals[g], dtype=float)[pos[g]]
-    if plan["shape"] == "spheroid":
+    if plan["shape"] in AXIAL:
         if "aspect_ratio" not in t:
             t["aspect_ratio"] = t["length_nm"] / t["diameter_nm"]
         elif "diameter_nm" in t:
@@ -236,6 +243,9 @@ def _particle(shape, t, sel, mat, core):
         return LayeredSphere(core, col("core_radius_nm"), [(mat, col("thickness_nm"))])
     if shape == "spheroid":
         return spheroid(mat, col("length_nm"), col("diameter_nm"))
+    if shape in AXIAL:
+        return {"cylinder": Cylinder, "capped-rod": CappedRod, "rounded-disc": RoundedDisc}[shape](
+            mat, col("length_nm"), col("diameter_nm"))
     return Ellipsoid(mat, tuple(col(k) for k in ("a_nm", "b_nm", "c_nm")))
 
 
@@ -251,7 +261,7 @@ def _evaluate(shape, t, wl, settings):
                                          "geometric_cross_section_m2", "equal_volume_area_m2", "n_medium")}
     out["metal_volume_m3"] = np.empty(n)
     warnings, methods = [], []
-    kind = (t["length_nm"] < t["diameter_nm"]).astype(np.int64) if shape == "spheroid" else np.zeros(n, np.int64)
+    kind = (t["length_nm"] < t["diameter_nm"]).astype(np.int64) if shape in AXIAL else np.zeros(n, np.int64)
     core_code = t.get("core_material_code", np.zeros(n, np.int64))
     keys = np.stack([t["material_code"], core_code, t["medium_code"], kind], axis=1) if n else np.zeros((0, 4))
     cache = {}

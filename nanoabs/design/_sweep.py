@@ -169,7 +169,7 @@ def _sweep_metadata(plan, n_chunks, warnings, methods, executor_name):
         "n_designs": plan["n_designs"], "n_wavelengths": int(plan["wavelength_nm"].size),
         "wavelength_range_nm": [float(plan["wavelength_nm"][0]), float(plan["wavelength_nm"][-1])],
         "materials": mats, "medium": medium,
-        "polarization": plan["polarization"] if shape in ("spheroid", "ellipsoid") else "any (sphere)",
+        "polarization": plan["polarization"] if shape not in ("sphere", "shell") else "any (sphere)",
         "method": plan["method"], "methods_used": methods, "surface_damping": plan["surface_damping"],
         "chunk_size": plan["chunk_size"], "n_chunks": n_chunks, "executor": executor_name,
         "efficiency_reference_area": "as nanoabs.spectrum: pi r_outer^2 for spheres; projected area for "
@@ -187,7 +187,7 @@ def sweep(shape, params, wavelength_nm, *, material="Au", core="SiO2", medium="w
 
     Parameters
     ----------
-    shape : {"sphere", "shell", "spheroid", "ellipsoid"}
+    shape : {"sphere", "shell", "spheroid", "ellipsoid", "cylinder", "capped-rod", "rounded-disc"}
     params : dict
         Parameter name -> 1-D array of values (scalars count as one value); the
         sweep is their Cartesian product, first name varying slowest. Names per
