@@ -4,7 +4,8 @@ The ``plot_*`` functions draw into ``ax=`` when given (else into a new Figure) a
 return the Figure; :func:`spectrum_axes` (behind :meth:`nanoabs.Spectrum.plot`) returns
 the Axes and, with no ``ax``, draws through pyplot so notebooks show the figure inline.
 :func:`save_figure` writes PNG or SVG atomically. Axis labels carry units; colour maps are perceptually
-uniform (viridis / cividis).
+uniform (viridis); curves of a report take their colours in the same order, so one particle keeps
+one colour across the report's figures.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ import numpy as np
 from ._errors import NanoabsError
 
 __all__ = ["plot_material", "plot_spectra", "plot_map", "plot_curves", "plot_detector", "spectrum_axes",
-           "save_figure"]
+           "sweep_axes", "save_figure"]
 
 #: Plot label and scale of each spectrum quantity (one table: values, labels and units never disagree).
 QUANTITY_LABELS = {
@@ -74,6 +75,42 @@ def spectrum_axes(spec, quantity="sigma_abs_m2", *, ax=None, **line_kw):
                  f"polarisation {m.get('polarization', '?')}", fontsize=9)
     if "label" in line_kw:
         ax.legend(frameon=False, fontsize=8)
+    return ax
+
+
+def sweep_axes(frame, quantity="sigma_abs_m2", *, ax=None):
+    """Map of a sweep table (:func:`nanoabs.design.sweep`): wavelength × design; returns the Axes.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        A sweep table with its ``attrs`` (one row per design and wavelength).
+    quantity : str
+        A result column (a key of ``QUANTITY_LABELS``); cross-sections in [nm²].
+    ax : matplotlib.axes.Axes, optional
+        Where to draw; a new figure through pyplot when omitted.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+        With one parameter swept its values are the vertical axis; with several, the
+        ``design_id`` (the label says which parameters vary), so nothing is averaged away.
+    """
+    from ._errors import check_choice
+
+    quantity = check_choice("quantity", quantity, [q for q in QUANTITY_LABELS if q in frame.columns])
+    label, scale = QUANTITY_LABELS[quantity]
+    swept = [n for n, v in frame.attrs.get("metadata", {}).get("parameters", {}).items() if len(v) > 1]
+    key = swept[0] if len(swept) == 1 and swept[0] in frame.columns and swept[0] != "material" else "design_id"
+    grid = frame.pivot_table(index=key, columns="wavelength_nm", values=quantity).sort_index()
+    if ax is None:
+        import matplotlib.pyplot as plt
+
+        _, ax = plt.subplots(figsize=(6.4, 4.2), layout="constrained")
+    plabel = key.replace("_nm", " [nm]") if key != "design_id" else "design_id (" + " x ".join(
+        n for n, v in frame.attrs.get("metadata", {}).get("parameters", {}).items() if len(v) > 1) + ")"
+    plot_map(grid.columns.values, grid.index.values, grid.values * scale, param_label=plabel, value_label=label,
+             ax=ax)
     return ax
 
 
@@ -289,9 +326,9 @@ def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False, ax=None):
     import matplotlib
 
     fig, ax = _figure(ax=ax)
-    cmap = matplotlib.colormaps["cividis"]
+    cmap = matplotlib.colormaps["viridis"]  # the colours of plot_spectra: one particle, one colour per report
     for i, (label, y) in enumerate(curves):
-        ax.plot(x, y, label=label, color=cmap(0.85 * i / max(1, len(curves) - 1)))
+        ax.plot(x, y, label=label, color=cmap(0.9 * i / max(1, len(curves) - 1)))
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     if logy:

@@ -57,7 +57,7 @@ SCHEMA = {
     "search": {"band_nm": (list, True), "families": (list, False), "objective": (str, False),
                "materials": (list, False), "max_size_nm": (_NUM, False), "min_shell_nm": (_NUM, False),
                "top": (int, False)},
-    "output": {"figures": (bool, False), "formats": (list, False)},
+    "output": {"figures": (bool, False), "formats": (list, False), "log_emission": (bool, False)},
 }
 _LISTS = {"particle", "sweep"}  # arrays of tables
 _SHAPES = ["sphere", "shell", "spheroid", "ellipsoid", "cylinder", "capped-rod", "rounded-disc"]
@@ -639,9 +639,17 @@ def _particles_section(job, rep):
         rep.figure(plot_spectra(curves, ylabel="absorption cross-section [nm²]", scale=1e18,
                                 band=band, title="candidate particles"), "spectra")
         if resp_curves:
-            rep.figure(plot_curves(wl, resp_curves, xlabel="wavelength [nm]", ylabel="array responsivity [A/W]",
-                                   title=f"{det.get('density_per_um2')} particles per µm² (sparse-array estimate)"),
-                       "responsivity")
+            cut = HC_EV_NM / job["barrier"][0] if job["barrier"][0] else None
+            fig = plot_curves(wl, [(n, r * 1e3) for n, r in resp_curves], xlabel="wavelength [nm]",
+                              ylabel="external array responsivity [mA/W]",
+                              title=f"{det.get('density_per_um2')} particles per µm² (sparse-array estimate)")
+            ax = fig.axes[0]
+            if band:
+                ax.axvspan(band[0], band[1], color="0.9", zorder=0, label="target band")
+            if cut and wl[0] <= cut <= wl[-1]:
+                ax.axvline(cut, color="0.3", ls="--", lw=1, label=f"cut-off hc/φ_B = {cut:.0f} nm")
+            ax.legend(frameon=False, fontsize=8)
+            rep.figure(fig, "responsivity")
 
 
 #: Designs drawn in a study sweep's map at most (every k-th design beyond that).
@@ -758,7 +766,8 @@ def _yield_figure(job, rep):
                    (f"Fowler small-excess form ({tag})", fowler_yield(E, barrier[0], ef))]
     if curves:
         rep.figure(plot_curves(wl, curves, xlabel="wavelength [nm]", ylabel="emission probability per absorbed photon",
-                               title=f"internal photoemission over a {barrier[0]:g} eV barrier"),
+                               title=f"internal photoemission over a {barrier[0]:g} eV barrier",
+                               logy=bool(job["doc"].get("output", {}).get("log_emission", True))),
                    "emission_probability")
     else:
         rep.lines.extend(["Emission-probability figure not drawn: no metal of this study has tabulated "

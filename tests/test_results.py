@@ -100,3 +100,18 @@ def test_material_and_hot_carrier_reprs_are_short():
     ax = r.plot()
     assert "mA/W" in ax.get_ylabel()
     plt.close("all")
+
+
+def test_sweep_map_returns_axes_and_keeps_every_design():
+    import matplotlib.pyplot as plt
+    from nanoabs import design
+    from nanoabs.plotting import sweep_axes
+
+    wl = np.linspace(450.0, 700.0, 26)
+    one = design.sweep("sphere", {"radius_nm": [10.0, 20.0, 30.0]}, wl, progress=False)
+    ax = sweep_axes(one)
+    assert isinstance(ax, matplotlib.axes.Axes) and "radius" in ax.get_ylabel()
+    two = design.sweep("sphere", {"radius_nm": [10.0, 20.0], "material": ["Au", "Ag"]}, wl, progress=False)
+    ax2 = sweep_axes(two, quantity="q_abs")
+    assert "design_id" in ax2.get_ylabel() and "material" in ax2.get_ylabel()
+    plt.close("all")
