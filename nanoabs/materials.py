@@ -15,6 +15,7 @@ overshoots the data between points.
 from __future__ import annotations
 
 import csv
+import hashlib
 import io
 import math
 import os
@@ -318,7 +319,7 @@ class Material:
     def metadata(self) -> dict:
         d = {"material": self.name, "source": self.source, "kind": self.kind,
              "range_nm": list(self.range_nm)}
-        for key in ("reference", "doi", "dataset", "values", "convention", "note"):
+        for key in ("reference", "doi", "dataset", "values", "convention", "note", "file_sha256"):
             if self.info.get(key):
                 d[key] = self.info[key]
         if self.extrapolate:
@@ -554,8 +555,10 @@ def load_table(path, *, name: str | None = None, kind: str = "metal") -> Materia
     if name is not None and not isinstance(name, str):
         raise NanoabsError(f"name = {_fmt(name)}: must be a string")
     kind = check_choice("kind", kind, ["metal", "dielectric", "medium"])
-    header, wl, n, note = _parse_table(p, read_user_text(p, "material table"))
+    text = read_user_text(p, "material table")
+    header, wl, n, note = _parse_table(p, text)
     info = dict(header)
+    info["file_sha256"] = hashlib.sha256(text.encode("utf-8")).hexdigest()  # provenance of the user's file
     info.setdefault("dataset", f"user table {p.name}")
     if note:
         info["note"] = note

@@ -299,3 +299,19 @@ def test_provenance_hashes_the_shipped_tables_used(tmp_path):
     assert "Au__johnson-christy-1972.csv" in files and any(f.startswith("H2O__") for f in files)
     for name, digest in files.items():
         assert digest == hashlib.sha256((_data_dir() / name).read_bytes()).hexdigest()
+
+
+def test_provenance_of_a_user_table(tmp_path):
+    # A user's optical-constant file is identified by the sha256 of its text in the material metadata
+    # that every sidecar carries (hashlib over the file written here).
+    import hashlib
+
+    import nanoabs
+
+    text = "wavelength_nm,n,k\n400,1.5,0\n900,1.5,0\n"
+    (tmp_path / "film.csv").write_text(text)
+    m = nanoabs.load_table(tmp_path / "film.csv", kind="dielectric")
+    s = nanoabs.spectrum(nanoabs.Sphere("Au", 20.0), np.linspace(500.0, 600.0, 6), medium=m)
+    s.write(tmp_path / "s.csv")
+    _, header = read_export(tmp_path / "s.csv")
+    assert header["metadata"]["medium"]["file_sha256"] == hashlib.sha256(text.encode()).hexdigest()
