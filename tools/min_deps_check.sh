@@ -11,7 +11,7 @@ work=$(mktemp -d)
 python3.10 -m venv "$work/venv"
 . "$work/venv/bin/activate"
 pip install -q "numpy==2.0.2" "scipy==1.13.1" "pandas==2.2.2" "matplotlib==3.8.4" "miepython==3.3.0" \
-    "numba==0.60.0" "tqdm==4.64.1" "tomli==2.0.1" pytest hypothesis
+    "numba==0.60.0" "tqdm==4.64.1" "tomli==2.0.1" pytest hypothesis tmm pytmatrixc
 pip install -q --no-deps "$here"
 cd "$here" && python -m pytest -q -m "not slow" -p no:cacheprovider \
     --ignore=tests/test_docs_build.py --ignore=tests/test_docstrings.py
