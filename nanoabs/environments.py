@@ -506,8 +506,7 @@ def apply_planar(env, solver, problem):
                         (float(wl.min()), float(wl.max())))
             meta["environment_cautions"] = [c]  # spectrum() adds them to its cautions
     meta["field_factor"] = np.asarray(out["field_factor"]).tolist()
-    incident = env.superstrate if env.incidence == "front" else env.substrate
-    meta["incidence_index"] = np.real(np.atleast_1d(_mat(incident).refractive_index(wl))).tolist()
+    meta["incidence_index"] = np.broadcast_to(np.real(env.resolve(wl).n_inc), wl.shape).tolist()
     return Response(s_abs, s_ext - s_abs, s_ext, metadata=meta)
 
 
