@@ -536,6 +536,16 @@ def _write_report(job, rep, progress):
     write_file_atomic(rep.path("summary.md"), lambda fh: fh.write(text), force=True)
 
 
+def _where_short(job) -> str:
+    """A few words for figure titles: the host, or the substrate and how the device is lit."""
+    env = job["env"]
+    if env is None:
+        return f"in {job['medium'].name}"
+    d = {k: str(v).split(" (")[0] for k, v in env.describe().items()}  # names without dataset keys
+    where = f"in {d['substrate']}" if d["kind"] == "buried" else f"on {d['substrate']} under {d['superstrate']}"
+    return f"{where}, lit from the {d['incidence']}"
+
+
 def _where_line(job) -> str:
     """One line saying where the particles sit and how cross-sections are referred."""
     env = job["env"]
@@ -637,7 +647,7 @@ def _particles_section(job, rep):
     if job["figures"]:
         band = job["doc"].get("search", {}).get("band_nm")
         rep.figure(plot_spectra(curves, ylabel="absorption cross-section [nm²]", scale=1e18,
-                                band=band, title="candidate particles"), "spectra")
+                                band=band, title=f"candidate particles, {_where_short(job)}"), "spectra")
         if resp_curves:
             cut = HC_EV_NM / job["barrier"][0] if job["barrier"][0] else None
             fig = plot_curves(wl, [(n, r * 1e3) for n, r in resp_curves], xlabel="wavelength [nm]",
