@@ -41,5 +41,8 @@ def test_constants_match_scipy(name):
 
     from nanoabs import _si
 
-    # reference: scipy.constants (CODATA 2022; h, c, e, k exact): equal to round-off, no absolute floor
-    assert getattr(_si, name) == pytest.approx(getattr(constants, name), rel=1e-15, abs=0.0)
+    # reference: scipy.constants. h, c, e, k (and hbar) are exact in the 2019 SI: equal to round-off.
+    # m_e and epsilon_0 are measured (CODATA 2022 here; scipy < 1.15 carries CODATA 2018, which differs
+    # by ~1e-9 relative) and Stefan-Boltzmann is tabulated to 10 digits: 1e-8 relative for those.
+    exact = name in ("h", "c", "e", "k", "hbar")
+    assert getattr(_si, name) == pytest.approx(getattr(constants, name), rel=1e-15 if exact else 1e-8, abs=0.0)
