@@ -29,7 +29,7 @@ from . import __version__
 from ._errors import NanoabsError, check_finite_array, check_flag
 from .drude_lorentz import surface_damping_eV
 from .particles import _plain, check_size_family, resolve_polarization
-from .solvers import METHODS, Homogeneous, Problem, choose
+from .solvers import METHODS, Homogeneous, Problem, choose, is_environment
 from .validity import Caution, emit
 
 __all__ = ["Spectrum", "spectrum", "METHODS", "FRAME_COLUMNS", "UNITS"]
@@ -392,7 +392,7 @@ def _environment(medium, environment):
         if medium is not None:
             raise NanoabsError("medium and environment: give one or the other (the environment names the "
                                "particle's host)")
-        if not hasattr(environment, "apply"):
+        if not is_environment(environment):
             raise NanoabsError(f"environment = {environment!r}: expected an environment object such as "
                                "nanoabs.solvers.Homogeneous")
         return environment

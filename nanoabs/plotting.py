@@ -114,6 +114,15 @@ def sweep_axes(frame, quantity="sigma_abs_m2", *, ax=None):
     return ax
 
 
+def _colours(n):
+    """The colour order of every curve plot: curve i of n in every figure of a report gets the same
+    viridis colour, so one particle keeps one colour across the report."""
+    import matplotlib
+
+    cmap = matplotlib.colormaps["viridis"]
+    return [cmap(0.9 * i / max(1, n - 1)) for i in range(n)]
+
+
 def _figure(nrows=1, ncols=1, ax=None, **kw):
     from matplotlib.figure import Figure
 
@@ -228,13 +237,9 @@ def plot_spectra(curves, *, ylabel="absorption cross-section [nm²]", title=None
     -------
     matplotlib.figure.Figure
     """
-    import matplotlib
-
     fig, ax = _figure(ax=ax)
-    cmap = matplotlib.colormaps["viridis"]
-    for i, (label, wl, y) in enumerate(curves):
-        ax.plot(wl, np.asarray(y) * scale, label=label,
-                color=cmap(0.9 * i / max(1, len(curves) - 1)))
+    for (label, wl, y), colour in zip(curves, _colours(len(curves))):
+        ax.plot(wl, np.asarray(y) * scale, label=label, color=colour)
     if band is not None:
         ax.axvspan(band[0], band[1], color="0.85", zorder=0, label="target band")
     ax.set_xlabel("wavelength [nm]")
@@ -323,12 +328,9 @@ def plot_curves(x, curves, *, xlabel, ylabel, title=None, logy=False, ax=None):
     -------
     matplotlib.figure.Figure
     """
-    import matplotlib
-
     fig, ax = _figure(ax=ax)
-    cmap = matplotlib.colormaps["viridis"]  # the colours of plot_spectra: one particle, one colour per report
-    for i, (label, y) in enumerate(curves):
-        ax.plot(x, y, label=label, color=cmap(0.9 * i / max(1, len(curves) - 1)))
+    for (label, y), colour in zip(curves, _colours(len(curves))):
+        ax.plot(x, y, label=label, color=colour)
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     if logy:

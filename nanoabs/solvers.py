@@ -31,7 +31,18 @@ import numpy as np
 from ._errors import NanoabsError, check_choice
 from .validity import Caution, size_check
 
-__all__ = ["Problem", "Response", "Solver", "Homogeneous", "METHODS", "AUTO_ORDER", "choose"]
+__all__ = ["Problem", "Response", "Solver", "Homogeneous", "METHODS", "AUTO_ORDER", "choose", "is_environment"]
+
+
+def is_environment(value) -> bool:
+    """True for an environment object (``homogeneous``, ``on_substrate``, ``buried``), not a material.
+
+    Parameters
+    ----------
+    value : object
+        A medium given by the caller: a material name, number, Material, or an environment.
+    """
+    return hasattr(value, "apply") and hasattr(value, "describe")
 
 
 @dataclass

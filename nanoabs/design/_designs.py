@@ -19,6 +19,7 @@ import numpy as np
 
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, spectrum
+from ..solvers import is_environment
 from ..validity import NanoabsWarning
 from ..particles import (MAX_SIZE_NM, MONOLAYER_NM, CappedRod, Cylinder, Ellipsoid, LayeredSphere,
                          RoundedDisc, Sphere, spheroid)
@@ -62,11 +63,6 @@ def _material_label(value) -> str:
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         return f"n={float(value):g}"
     return str(getattr(value, "label", getattr(value, "name", type(value).__name__)))
-
-
-def is_environment(value) -> bool:
-    """True for an environment object (nanoabs.on_substrate, buried, homogeneous), not a material."""
-    return hasattr(value, "apply") and hasattr(value, "describe")
 
 
 def _material_meta(value) -> dict:
