@@ -603,7 +603,8 @@ def _cmd_export_generation(args) -> int:
     _print_warnings(spec.metadata)
     frame = generation_profile(spec, particle, irradiance, n_points=args.points)
     meta = {"what": "carrier generation rate inside the particle (one electron-hole pair per absorbed "
-                    "photon), angle-averaged internal field",
+                    "photon), angle-averaged internal field (on or in a planar stack: the field of the multipole "
+                    "solution there)",
             "irradiance_W_m2": irradiance, "spectrum": spec.metadata,
             "absorbed_photon_rate_per_s": absorbed_photon_rate(spec, irradiance).tolist()}
     write_export(frame, args.output, metadata=meta, units=GENERATION_UNITS, force=args.force)

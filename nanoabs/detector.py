@@ -177,15 +177,47 @@ def _mie_inputs(spec, particle):
     return k, m, x
 
 
+def _profile_q(spec, particle, r_nm):
+    """Dimensionless absorbed power density q (W, R) at radii ``r_nm`` of a (layered) sphere.
+
+    p(r) = I₀ k q(k r), k = 2π n_medium/λ, I₀ the irradiance of the incident wave (in the
+    incidence medium for a planar environment). In a homogeneous host q is the plane-wave
+    Mie profile (`nanoabs.mie.absorption_profile`; Bohren & Huffman 1983, Sec. 4.4). On or
+    in a planar stack the sphere is driven by the incident, reflected and scattered-back
+    fields: the multipole solution (`nanoabs.surface.sphere_on_stack`) gives each order's
+    exciting amplitude and `nanoabs.surface.sphere_absorption_profile` weights the orders,
+    so the profile integrates to the σ_abs of that environment.
+    """
+    from .mie import absorption_profile
+
+    wl = spec.wavelength_nm
+    r = np.asarray(r_nm, dtype=float)
+    k, m, x = _mie_inputs(spec, particle)
+    env = getattr(spec, "_environment", None)
+    q = np.empty((wl.size, r.size))
+    if env is None or not hasattr(env, "resolve"):  # homogeneous host
+        for j in range(wl.size):  # the profile is vectorised over the grid; rho differs per wavelength
+            q[j] = absorption_profile(m[:, j], x[:, j], k[j] * r)
+        return q
+    from .surface import sphere_absorption_profile, sphere_on_stack
+
+    eps = [np.broadcast_to(np.asarray(e, dtype=complex), wl.shape) for e in spec.layer_eps]
+    radii = [float(np.asarray(rr, dtype=float).reshape(-1)[0]) for _, rr in particle.layers]
+    out = sphere_on_stack(env, eps, radii, wl)
+    for j in range(wl.size):
+        one = {"n_max": out["n_max"], "e": {mm: e[j:j + 1] for mm, e in out["e"].items()}}
+        q[j] = sphere_absorption_profile(env, one, [e[j:j + 1] for e in eps], radii, wl[j:j + 1], k[j] * r)[0]
+    return q
+
+
 def _sphere_weights(particle, spec, notes, n_rho=96):
     """Radii of the outermost metal layer, its inner radius and normalised absorption weights.
 
     Returns (r (n,), inner radius, weights (W, n)): the weights are q(r) r^2 dr of the Mie
     absorption profile, normalised over all metal layers, so carriers born in an inner metal
-    layer (behind a dielectric layer) count as absorbed but not emitted.
+    layer (behind a dielectric layer) count as absorbed but not emitted. The profile is the
+    one of the particle's environment (`_profile_q`).
     """
-    from .mie import absorption_profile
-
     layers = particle.layers
     metals = _metal_layers(particle)
     if not metals:
@@ -196,15 +228,11 @@ def _sphere_weights(particle, spec, notes, n_rho=96):
     if len(metals) > 1:
         notes.append("carriers absorbed in inner metal layers are taken as not emitted")
     wl = spec.wavelength_nm
-    k, m, x = _mie_inputs(spec, particle)
     den = np.zeros(wl.shape)
     for _, _, r_in, r_out in metals:
         h = (float(r_out) - float(r_in)) / n_rho
         r = float(r_in) + h * (np.arange(n_rho) + 0.5)  # midpoint rule
-        q = np.empty((wl.size, r.size))
-        for j in range(wl.size):  # profile is vectorised over the grid; rho differs per wavelength
-            q[j] = absorption_profile(m[:, j], x[:, j], k[j] * r)
-        g = q * r**2 * h
+        g = _profile_q(spec, particle, r) * r**2 * h
         den += g.sum(axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
         w = np.where(den[:, None] > 0, g / den[:, None], 0.0)
@@ -216,7 +244,10 @@ def absorbed_power_density(spec, particle, r_nm, irradiance_W_m2=1.0):
 
     p(r) = I₀ k q(k r) with q = Im(m²)⟨|E|²⟩/|E₀|² from the internal Mie fields
     (:func:`nanoabs.mie.absorption_profile`; Bohren & Huffman 1983, Sec. 4.4) and
-    k = 2π n_medium/λ. Its volume integral ∫ p 4πr² dr equals σ_abs I₀.
+    k = 2π n_medium/λ. Its volume integral ∫ p 4πr² dr equals σ_abs I₀. On or in a planar
+    stack the internal field is the one the multipole method solves for (incident,
+    reflected and scattered-back waves), I₀ is the irradiance of the incident wave in the
+    incidence medium, and the integral equals that environment's σ_abs I₀.
 
     Parameters
     ----------
@@ -231,15 +262,13 @@ def absorbed_power_density(spec, particle, r_nm, irradiance_W_m2=1.0):
     -------
     ndarray, shape (W, R)
     """
-    from .mie import absorption_profile
-
     if not isinstance(particle, (Sphere, LayeredSphere)):
         raise NanoabsError("absorbed_power_density: the internal field of an ellipsoid in the quasi-static "
                            "limit is uniform; the profile is defined here for spheres and layered spheres")
     wl = spec.wavelength_nm
     r = check_positive("radius r", np.atleast_1d(np.asarray(r_nm, dtype=float)), unit="nm")
-    k_nm, m, x = _mie_inputs(spec, particle)
-    q = np.stack([absorption_profile(m[:, j], x[:, j], k_nm[j] * r) for j in range(wl.size)])
+    k_nm = 2 * np.pi * spec.n_medium / wl
+    q = _profile_q(spec, particle, r)
     I0 = np.broadcast_to(np.asarray(irradiance_W_m2, dtype=float), wl.shape)
     return I0[:, None] * (k_nm * 1e9)[:, None] * q
 

@@ -81,6 +81,7 @@ class Spectrum:
     n_medium: np.ndarray
     metadata: dict = field(default_factory=dict)
     _layer_eps: object = field(default_factory=list, repr=False)  # list, or a callable returning it
+    _environment: object = field(default=None, repr=False)  # the environment object that was solved in
 
     @property
     def layer_eps(self) -> list:
@@ -489,7 +490,7 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
     eps = problem._eps if problem._eps is not None else (lambda: problem.eps_layers)
     return Spectrum(wl, sa, ss, se, np.broadcast_to(np.asarray(geo) * NM2_TO_M2, shape),
                     np.broadcast_to(np.asarray(particle.equal_volume_area_nm2()) * NM2_TO_M2, shape),
-                    np.asarray(particle.metal_volume_nm3(), dtype=float) * 1e-27, n_med, meta, eps)
+                    np.asarray(particle.metal_volume_nm3(), dtype=float) * 1e-27, n_med, meta, eps, env)
 
 
 _CLIP_NOTE = "surface-damped eps'' of {} clipped at 0 at some wavelengths"
