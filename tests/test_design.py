@@ -580,7 +580,8 @@ def test_search_injection_matches_the_hot_carrier_pipeline():
     # the search's injection objective is the flat-interface, all-flat-generation form (issue 13 keeps it as
     # the geometry="flat", generation="flat" option of the pipeline)
     hcr = nanoabs.hot_carrier_estimate(nanoabs.spectrum(p, wl), p, sun, barrier_eV=0.8,
-                                       attenuation_length_nm=1e9, geometry="flat", generation="flat")
+                                       attenuation_length_nm=1e9, geometry="flat", generation="flat",
+                                       surface_emission="cone")
     assert best.figure_of_merit == pytest.approx(hcr.totals["injected_electron_rate_per_s"], rel=2e-3)
     # the same integral written out: sigma E lambda/(hc) eta
     s = nanoabs.spectrum(p, wl)
