@@ -73,12 +73,12 @@ formats = ["svg"]
         2 * 0.01 / (3.141592653589793 * (5e-4) ** 2))
 
 
-def test_emission_figure_uses_each_metals_fermi_energy(tmp_path, monkeypatch):
-    """The yield figure is drawn with the Fermi energy of the study's own metals.
+def test_emission_figure_uses_the_energy_resolved_pipeline(tmp_path, monkeypatch):
+    """The emission figure draws, per candidate particle, the hot-carrier pipeline's injected carriers per
+    absorbed photon (total and surface part), not the flat escape-cone yield on all absorbed power.
 
-    E_F values: free-electron table in nanoabs.hotcarriers (Ashcroft & Mermin 1976, Table 2.1, from
-    memory);
-    the curves must equal escape_cone_yield / fowler_yield evaluated with them.
+    Source: nanoabs.hot_carrier_estimate for the same particle, spectrum and illumination (rtol 1e-12);
+    the flat escape-cone curve (Scales & Berini 2010) must differ from it (issue 13).
     """
     import numpy as np
 
@@ -126,11 +126,22 @@ diameter_nm = 20
     assert len(emission) == 1
     wl, curves, _ = emission[0]
     labels = [name for name, _ in curves]
-    for metal in ("Ag", "Cu"):
-        ef = FREE_ELECTRON[metal].fermi_energy_eV
-        (name, y), = [(n, y) for n, y in curves if n.startswith("escape-cone") and f"{metal}," in n]
-        assert f"E_F = {ef:g} eV" in name
-        np.testing.assert_allclose(y, escape_cone_yield(photon_energy_eV(wl), 0.8, ef), rtol=1e-12)
+    particles = {"Ag 15": (nanoabs.Sphere("Ag", 15.0), "x"),
+                 "Cu rod": (nanoabs.spheroid("Cu", length_nm=60, diameter_nm=20), "long")}
+    for name, (particle, pol) in particles.items():
+        spec = nanoabs.spectrum(particle, wl, medium=1.5, polarization=pol)
+        res = nanoabs.hot_carrier_estimate(spec, particle, nanoabs.illumination.flat(1.0), barrier_eV=0.8)
+        f = res.frame
+        gamma = f["absorbed_photon_rate_per_s"].to_numpy()
+        ok = gamma > 0
+        (y,) = [y for n, y in curves if n == f"{name}: volume + surface"]
+        (ys,) = [y for n, y in curves if n == f"{name}: surface"]
+        np.testing.assert_allclose(y[ok], f["injected_electron_rate_per_s"].to_numpy()[ok] / gamma[ok], rtol=1e-12)
+        np.testing.assert_allclose(ys[ok], f["injected_electron_rate_surface_per_s"].to_numpy()[ok] / gamma[ok],
+                                   rtol=1e-12)
+        metal = particle.layer_materials()[-1].name
+        flat = escape_cone_yield(photon_energy_eV(wl), 0.8, FREE_ELECTRON[metal].fermi_energy_eV)
+        assert not np.allclose(y[ok], flat[ok], rtol=0.1)
     assert not any("Au" in n for n in labels)
 
 
