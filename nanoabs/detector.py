@@ -323,9 +323,10 @@ def _injection(spec, particle, metal, E_ph, parts, P, opts, notes):
           for k in cr.CHANNELS}
     fr["intraband_bulk"] = np.where((P > 0) & (parts is not None), fr["intraband_bulk"], 1.0)
     zero = {k: np.zeros(L) for k in cr.CHANNELS}
-    if phi >= E_ph.max():
+    kT = _c.k * opts["temperature_K"] / _c.e if opts["fermi_smearing"] else 0.0
+    if phi >= E_ph.max() + 40 * kT:
         return np.zeros(L), np.ones(L), zero
-    E = cr.energy_grid(phi, E_ph.max())
+    E = cr.energy_grid(phi, E_ph.max() + 40 * kT, n=240 if kT > 0 else 160)
     c = cr.cone_cosine(E, phi, ef, opts["yield_model"])
     ell = opts["ell"]
     ell_E = np.full(E.shape, ell) if opts["ell_fixed"] else cr.mean_free_path_nm(E, ell)
@@ -336,7 +337,7 @@ def _injection(spec, particle, metal, E_ph, parts, P, opts, notes):
         fr["intraband_surface"] = np.zeros(L)
     for k in cr.CHANNELS:
         lo, hi = cr.excess_energy_bounds(E_ph, name, k, carrier)
-        y_inf, y_ell = (cr.channel_yield(W, E, lo, hi) for W in (W_inf, W_ell))
+        y_inf, y_ell = (cr.channel_yield(W, E, lo, hi, kT_eV=kT) for W in (W_inf, W_ell))
         eta_inf += fr[k] * y_inf
         eta_ell += fr[k] * y_ell
         per[k] = fr[k] * y_ell
@@ -450,13 +451,15 @@ def _contact_plausibility(c, metal, spec) -> list:
     return out
 
 
-def _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings):
+def _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings, smeared=False):
     """Cut-off wavelength hc/phi [nm]; warnings for rows beyond it and for a peak or band end near it."""
     lam_c = float(HC_EV_NM / phi)
     beyond = wl > lam_c
     if np.any(beyond):
         warnings.append(f"{int(beyond.sum())} wavelength(s) beyond the cut-off {lam_c:.0f} nm (hc/phi_B, "
-                        f"phi_B = {phi:.3g} eV): no carrier can cross, injection is zero there")
+                        f"phi_B = {phi:.3g} eV): " + (
+                            "only the thermal (Fermi-Dirac) tail of the carriers crosses there" if smeared else
+                            "no carrier can cross, injection is zero there"))
     margin = max(0.1, 0.1 * phi)  # our choice: within 0.1 eV or 10 % of the barrier
     near = f"within {margin:.2g} eV of the barrier {phi:.3g} eV (cut-off {lam_c:.0f} nm)"
     i_pk = int(np.argmax(P))
@@ -617,7 +620,7 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     P = hc.absorbed_power(spec.sigma_abs_m2, E_lam)
     gamma = hc.photon_rate(P, wl)
     parts = _partition(spec, metal, wl, P, notes)
-    lam_c = _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings)
+    lam_c = _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings, smeared=fermi_smearing)
     eta, T, per = _injection(spec, particle, metal, E_ph, parts, P, opts, notes)
     rate_volume = gamma * eta * T
     rate_surface = (_surface_rate(spec, particle, metal, P, E_ph, opts, notes) if surface_emission == "field"
