@@ -361,7 +361,19 @@ def fowler_function(x, *, n_terms: int = 400):
 
 
 def fermi_dirac(energy_eV, temperature_K):
-    """Occupation 1/(1 + exp(E/kT)) of a state E above the Fermi level [-] (a step at T = 0)."""
+    """Occupation 1/(1 + exp(E/kT)) of a state E above the Fermi level [-] (a step at T = 0).
+
+    Parameters
+    ----------
+    energy_eV : float or array_like
+        Energy above the Fermi level [eV].
+    temperature_K : float
+        Temperature [K], >= 0.
+
+    Returns
+    -------
+    numpy.ndarray
+    """
     from ._si import e, k
 
     E = np.asarray(energy_eV, dtype=float)

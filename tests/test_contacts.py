@@ -1,6 +1,7 @@
 """Contacts: barrier table, image-force lowering, cut-off, thermionic dark current, noise figures."""
 
 import re
+
 import numpy as np
 import pytest
 from scipy import constants as c

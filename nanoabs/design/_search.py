@@ -281,10 +281,13 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         σ_abs [m²]), "sigma_abs_per_volume" (band average of σ_abs per metal
         volume [m⁻¹]), "q_abs" (band average of Q_abs [1]),
         "absorbed_fraction" (band average of σ_abs/σ_ext [1]), "injection"
-        (band integral of σ_abs E_λ λ/(hc) η(λ) [s⁻¹]: injected electrons per
-        second per particle with the escape-cone yield η of
-        :func:`nanoabs.hotcarriers.escape_cone_yield` and transport factor 1,
-        i.e. every hot carrier reaches the interface — an upper bound),
+        (band integral of the injected-electron rate per particle [s⁻¹] from
+        :func:`nanoabs.hot_carrier_estimate` with its defaults: energy-resolved
+        generation, escape at the curved wall with attenuation, surface
+        photoemission; designs are explored with a size-independent screen —
+        band-edge generation with the bulk split of ε″, uniform-sphere escape
+        1 − c³, no attenuation — and every ranked row is recomputed with the
+        pipeline, which sets its rank; electrons over ``barrier_eV``),
         "selectivity" (band average of σ_abs divided by its average over the rest of
         the window [1]: in-band relative to out-of-band absorption).
     bounds : dict, keyword-only
@@ -306,7 +309,7 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         Schottky barrier [eV], required for "injection".
     fermi_energy_eV : float, keyword-only
         Fermi energy [eV] for "injection"; default from
-        :func:`nanoabs.hotcarriers.free_electron` by the metal's name.
+        :func:`nanoabs.carriers.fermi_energy` by the metal's name.
     min_shell_nm : float, keyword-only
         Thinnest metal allowed [nm]: shell thickness and disc thickness (default 2).
     max_size_nm : float, keyword-only
