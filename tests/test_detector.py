@@ -249,6 +249,8 @@ def test_issue13_contract_forms(form, tmp_path, monkeypatch, capsys):
     total = df[f"injected_{carrier}_rate_per_s"]
     parts = sum(df[f"injected_{carrier}_rate_{k}_per_s"] for k in ("intraband_bulk", "intraband_surface", "interband"))
     np.testing.assert_allclose(parts, total, rtol=1e-9, atol=1e-30)
+    split = sum(df[f"injected_{carrier}_rate_{k}_per_s"] for k in ("volume", "surface"))
+    np.testing.assert_allclose(split, total, rtol=1e-9, atol=1e-30)  # volume + surface emission
     lam_c = md["cutoff_wavelength_nm"]
     assert np.all(total[df.wavelength_nm > lam_c] == 0)
     if "--area" in form:

@@ -197,3 +197,27 @@ def test_pipeline_columns_volume_plus_surface():
     rate = F["absorbed_photon_rate_per_s"] * F["emission_probability"] * F["transport_factor"]
     assert np.allclose(rate, tot, rtol=1e-10)
     assert f.metadata["schottky"]["surface_emission"] == "field"
+
+
+def test_cli_surface_and_thermal_options(tmp_path, monkeypatch, capsys):
+    # Contract: --surface-emission and --fermi-smearing reach the pipeline; the export carries the volume and
+    # surface columns (per-nm densities under broadband light), the summary prints the split, and with
+    # smearing the row beyond the cut-off (hc/0.8 eV = 1550 nm) is a small positive thermal tail.
+    from nanoabs.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    base = ("hot-carriers --shape sphere --material Au --radius 20 --medium 1.45 --barrier 0.8 --spectrum am1.5g "
+            "--wl 1400:1700:20").split()
+    assert main(base + ["-o", "a.csv", "--fermi-smearing"]) == 0
+    out = capsys.readouterr().out
+    assert "volume" in out and "surface" in out and "surface emission: field" in out
+    df, meta = na.read_export(tmp_path / "a.csv")
+    vol, surf = df["injected_electron_rate_volume_per_s_per_nm"], df["injected_electron_rate_surface_per_s_per_nm"]
+    assert np.allclose(vol + surf, df["injected_electron_rate_per_s_per_nm"], rtol=1e-12)
+    assert meta["metadata"]["schottky"]["fermi_smearing"] is True
+    assert df["injected_electron_rate_per_s_per_nm"].iloc[-1] > 0  # 1700 nm, thermal tail
+    assert main(base + ["-o", "b.csv", "--surface-emission", "cone"]) == 0
+    df2, _ = na.read_export(tmp_path / "b.csv")
+    assert np.all(df2["injected_electron_rate_surface_per_s_per_nm"] == 0)
+    assert df2["injected_electron_rate_per_s_per_nm"].iloc[-1] == 0  # sharp threshold
+    assert main(base + ["-o", "c.csv", "--surface-emission", "both"]) == 2
