@@ -705,6 +705,7 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
                      "attenuation_energy_dependent": not opts["ell_fixed"], "yield_model": yield_model,
                      "geometry": geometry, "generation": generation, "momentum_factor": opts["mf"],
                      "surface_emission": surface_emission, "fermi_smearing": fermi_smearing,
+                     "temperature_K": opts["temperature_K"],
                      "contact_fraction": opts["cf"], "cutoff_wavelength_nm": lam_c})
     meta = dict(spec.metadata)
     meta.update({

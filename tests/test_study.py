@@ -286,3 +286,25 @@ figures = false
     np.testing.assert_allclose(df[df.length_nm == 80].sigma_abs_m2.to_numpy(), s.sigma_abs_m2, rtol=1e-12)
     text = (tmp_path / "r" / "summary.md").read_text()
     assert "| capped rod | tmatrix |" in text
+
+
+def test_study_detector_surface_and_thermal_keys(tmp_path):
+    # Contract: detector.surface_emission, fermi_smearing and temperature_K reach the hot-carrier estimate
+    # (recorded in its sidecar); "cone" leaves no surface rate; a non-boolean fermi_smearing is refused.
+    text = _SMALL.replace("detector = {barrier_eV = 0.8}",
+                          'detector = {barrier_eV = 0.8, surface_emission = "cone", fermi_smearing = true, '
+                          "temperature_K = 250}")
+    text += '[[particle]]\nname = "Au 10"\nshape = "sphere"\nmaterial = "Au"\nradius_nm = 10\n'
+    p = tmp_path / "s.toml"
+    p.write_text(text)
+    run_study(p, tmp_path / "rep", progress=False)
+    df, meta = nanoabs.read_export(tmp_path / "rep" / "au_10_hot_carriers.csv")
+    sch = meta["metadata"]["schottky"]
+    assert sch["surface_emission"] == "cone" and sch["fermi_smearing"] is True
+    assert sch["temperature_K"] == 250
+    surf = [c for c in df.columns if c.startswith("injected_electron_rate_surface")]
+    assert surf and np.all(df[surf[0]] == 0)
+    bad = tmp_path / "bad.toml"
+    bad.write_text(text.replace("fermi_smearing = true", 'fermi_smearing = "yes"'))
+    with pytest.raises(Exception, match="fermi_smearing"):
+        load_study(bad)
