@@ -434,6 +434,7 @@ def _cmd_hot_carriers(args) -> int:
                                fermi_energy_eV=args.fermi_energy, attenuation_length_nm=args.attenuation_length,
                                yield_model=args.yield_model, geometry=args.geometry, generation=args.generation,
                                momentum_factor=args.momentum_factor, contact_fraction=args.contact_fraction,
+                               surface_emission=args.surface_emission, fermi_smearing=args.fermi_smearing,
                                density_per_um2=args.density, area_um2=args.area, temperature_K=args.temperature,
                                bias_V=args.bias, doping_cm3=args.doping, load_ohm=args.load,
                                thermal_conductivity_W_mK=args.thermal_conductivity)
@@ -465,6 +466,9 @@ def _print_hot_carrier_summary(res, illum):
         chans = ", ".join(f"{k} {v:.3g}" for k, v in rates.items() if np.isfinite(v))
         if chans:
             print(f"injected {carrier}s per second by channel: {chans}")
+        vol, surf = (t.get(f"injected_{carrier}_rate_{k}_per_s", np.nan) for k in ("volume", "surface"))
+        print(f"injected {carrier}s per second: volume {vol:.3g}, surface {surf:.3g} "
+              f"(surface emission: {sch.get('surface_emission', 'cone')})")
     else:
         print(f"peak absorbed power per particle: {t['peak_absorbed_power_W']:.4g} W at "
               f"{t['peak_absorbed_power_wavelength_nm']:g} nm; peak photocurrent {t['peak_photocurrent_A']:.4g} A")
@@ -562,6 +566,11 @@ def _register_particle_commands(sub):
     d.add_argument("--momentum-factor", type=float, default=1.0, help="empirical emission multiplier")
     d.add_argument("--contact-fraction", type=float, default=1.0,
                    help="fraction of surface on the semiconductor (ellipsoids: the facet with the lowest z)")
+    d.add_argument("--surface-emission", default="field", choices=["field", "cone"],
+                   help="surface-assisted absorption emitted by the normal field at the contact (default) "
+                        "or through the escape cone like the volume channels")
+    d.add_argument("--fermi-smearing", action="store_true",
+                   help="smear the threshold with the Fermi-Dirac occupation at --temperature (default: sharp)")
     d.add_argument("--density", type=float, help="particles per um^2 (adds array columns)")
     d.add_argument("--area", type=float, help="device area [um^2]: adds dark current, NEP and D* (needs --density)")
     d.add_argument("--temperature", type=float, default=300.0, help="device temperature [K] (default 300)")

@@ -95,8 +95,8 @@ class Contact(NamedTuple):
 _T_SZE = _SZE + ", ch. 3, table of measured barrier heights (from memory)"
 _T_TUNG = ("R. T. Tung, Appl. Phys. Rev. 1, 011304 (2014), compilation of barrier heights "
            "(from memory)")
-_SUM = ("estimate from phi_Bn + phi_Bp ~ E_g (" + _SZE + ", Sec. 3.2) with the n-type value of "
-        "this table at 300 K")
+_SUM = ("estimate from phi_Bn + phi_Bp ~ E_g (" + _SZE + ", Sec. 3.2; from memory) with the n-type "
+        "value of this table at 300 K")
 _IR = ("low-temperature infrared-detector value (77 K): B.-Y. Tsaur, M. M. Weeks, R. Trubiano, "
        "P. W. Pellegrini and T.-R. Yew, IEEE Electron Device Lett. 9, 650 (1988) for IrSi; "
        "F. D. Shepherd, Proc. SPIE (1980s) for PtSi and Pd2Si (from memory)")

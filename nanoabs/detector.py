@@ -16,7 +16,9 @@
 5. emission: escape cone at the curved wall where each straight path ends,
    survival exp(−s/ℓ(E)), over the Mie absorption profile of (layered) spheres
    or the uniform field of ellipsoids (``geometry="flat"``: flat-interface cone
-   with the straight radial path);
+   with the straight radial path); the surface-assisted share is instead emitted
+   by the surface photoeffect of the normal field at the contact
+   (:mod:`nanoabs.surface_emission`; volume and surface rates reported apart);
 6. per particle: injected carrier rate by channel and photocurrent; for an
    array of N particles per µm²: absorptance N σ_abs (sparse limit),
    photocurrent density, responsivity and external quantum efficiency; with a
@@ -26,8 +28,8 @@
 
 This is an order-of-magnitude estimate of the kind used to compare designs; it
 ignores carrier–carrier scattering cascades (attenuated carriers are lost),
-reflections at the wall, interface roughness, surface photoemission and
-momentum-shaped distributions beyond the user factor ``momentum_factor``.
+reflections at the wall, interface roughness, image-force rounding of the step in
+the surface channel and momentum-shaped distributions beyond the user factor ``momentum_factor``.
 """
 
 from __future__ import annotations
@@ -40,7 +42,7 @@ from . import _si as _c
 from . import __version__
 from . import carriers as cr
 from . import hotcarriers as hc
-from ._errors import NanoabsError, check_nonnegative, check_positive
+from ._errors import NanoabsError, check_flag, check_nonnegative, check_positive
 from .drude_lorentz import HC_EV_NM
 from .illumination import band_integral, check_illumination
 from .particles import Ellipsoid, LayeredSphere, Sphere
@@ -350,18 +352,21 @@ def _injection(spec, particle, metal, E_ph, parts, P, opts, notes):
           for k in cr.CHANNELS}
     fr["intraband_bulk"] = np.where((P > 0) & (parts is not None), fr["intraband_bulk"], 1.0)
     zero = {k: np.zeros(L) for k in cr.CHANNELS}
-    if phi >= E_ph.max():
+    kT = _c.k * opts["temperature_K"] / _c.e if opts["fermi_smearing"] else 0.0
+    if phi >= E_ph.max() + 40 * kT:
         return np.zeros(L), np.ones(L), zero
-    E = cr.energy_grid(phi, E_ph.max())
+    E = cr.energy_grid(phi, E_ph.max() + 40 * kT, n=240 if kT > 0 else 160)
     c = cr.cone_cosine(E, phi, ef, opts["yield_model"])
     ell = opts["ell"]
     ell_E = np.full(E.shape, ell) if opts["ell_fixed"] else cr.mean_free_path_nm(E, ell)
     W_inf, W_ell = _escape_weights(particle, spec, E, c, ell_E, opts["geometry"], opts["cf"], notes)
     eta_inf, eta_ell, per = np.zeros(L), np.zeros(L), {}
     name = metal.name if opts["generation"] == "band-edges" else ""
+    if opts["surface_emission"] == "field":  # emitted by the surface photoeffect instead (_surface_rate)
+        fr["intraband_surface"] = np.zeros(L)
     for k in cr.CHANNELS:
         lo, hi = cr.excess_energy_bounds(E_ph, name, k, carrier)
-        y_inf, y_ell = (cr.channel_yield(W, E, lo, hi) for W in (W_inf, W_ell))
+        y_inf, y_ell = (cr.channel_yield(W, E, lo, hi, kT_eV=kT) for W in (W_inf, W_ell))
         eta_inf += fr[k] * y_inf
         eta_ell += fr[k] * y_ell
         per[k] = fr[k] * y_ell
@@ -370,6 +375,69 @@ def _injection(spec, particle, metal, E_ph, parts, P, opts, notes):
     with np.errstate(invalid="ignore", divide="ignore"):
         T = np.where(eta_inf > 0, eta_ell / eta_inf, W_ell[:, 0] / np.maximum(W_inf[:, 0], 1e-300))
     return eta_inf * scale, np.clip(T, 0.0, 1.0), {k: v * scale for k, v in per.items()}
+
+
+def _surface_rate(spec, particle, metal, P, E_ph, opts, notes):
+    """Carriers per second emitted by the surface photoeffect (:mod:`nanoabs.surface_emission`) [s^-1].
+
+    rate = R(h nu) int_contact |E_n|^2 dA, with the normal field just inside the metal scaled to the
+    absorbed power P of the spectrum (so environments and solvers enter through P):
+
+    * (layered) spheres: Mie normal field of the outer surface per absorbed power of the same Mie
+      solution, S R^2 |E0|^2 / (sigma_abs^Mie I0) with I0 = n c eps0 |E0|^2 / 2
+      (:func:`nanoabs.mie.normal_field_surface_integral`); a contact fraction multiplies it (exact
+      on average over the particle's orientation relative to the light);
+    * ellipsoids (and T-matrix bodies through their spheroid): uniform quasi-static internal field,
+      |E|^2 = 2 P / (omega eps0 eps'' V) (absorbed power (omega/2) eps0 eps'' |E|^2 V), directed
+      along the polarisation axis, or split over the axes in proportion to the absorption of each,
+      |1/(eps_h + L_j (eps - eps_h))|^2 (quasi-static, static L_j), for random orientation;
+      int |E_n|^2 dA = sum_j |E_j|^2 G_j over the contact facet
+      (:func:`nanoabs.surface_emission.normal_field_factors_ellipsoid`).
+    """
+    from .surface_emission import normal_field_factors_ellipsoid, surface_emission_rate
+
+    wl = spec.wavelength_nm
+    T = opts["temperature_K"] if opts["fermi_smearing"] else 0.0
+    R = surface_emission_rate(E_ph, opts["phi"], opts["ef"], temperature_K=T)  # m^-2 s^-1 (V/m)^-2
+    P = np.asarray(P, dtype=float)
+    if _spherical(particle):
+        from .mie import mie_layered, normal_field_surface_integral
+
+        if not particle.layer_materials()[-1].is_metal:
+            notes.append("surface photoemission needs the metal to be the outer layer (the contact); not "
+                         "computed for a coated particle")
+            return np.zeros(wl.shape)
+        k, m, x = _mie_inputs(spec, particle)
+        r_m = float(particle.outer_radius_nm) * 1e-9
+        sigma = np.asarray(mie_layered(m, x).qabs, dtype=float) * np.pi * r_m**2
+        with np.errstate(divide="ignore", invalid="ignore"):
+            e0sq = np.where(sigma > 0, 2 * P / (sigma * spec.n_medium * _c.c * _c.epsilon_0), 0.0)
+        integral = normal_field_surface_integral(m, x) * r_m**2 * e0sq * opts["cf"]
+        if "incidence_index" in spec.metadata:
+            notes.append("surface photoemission in a planar environment: the shape of the normal field over "
+                         "the surface is that of a plane wave in the host, scaled to the absorbed power")
+    else:
+        from .quasistatic import depolarization_factors
+
+        axes = [float(a) for a in _metal_axes(particle, notes)]
+        G = normal_field_factors_ellipsoid(axes, facet_fraction=opts["cf"]) * 1e-18  # m^2
+        i_metal = [j for j, mat in enumerate(particle.layer_materials()) if mat.is_metal][-1]
+        eps = np.broadcast_to(np.asarray(spec.layer_eps[i_metal], dtype=complex), wl.shape)
+        pol = spec.metadata.get("polarization", "random")
+        if pol in ("x", "y", "z"):
+            share = np.zeros((3, wl.size))
+            share["xyz".index(pol)] = 1.0
+        else:
+            eh = spec.n_medium**2
+            Lf = depolarization_factors(*axes)
+            share = np.stack([np.abs(1.0 / (eh + Lj * (eps - eh))) ** 2 for Lj in Lf])
+            share /= share.sum(axis=0)
+        V = 4.0 / 3.0 * np.pi * np.prod(axes) * 1e-27
+        omega = 2 * np.pi * _c.c / (wl * 1e-9)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            esq = np.where(eps.imag > 0, 2 * P / (omega * _c.epsilon_0 * eps.imag * V), 0.0)
+        integral = esq * np.sum(share * G[:, None], axis=0)
+    return R * integral
 
 
 def _barrier_opts(contact, barrier_eV, carrier, bias_V, doping_cm3, temperature_K):
@@ -412,13 +480,15 @@ def _contact_plausibility(c, metal, spec) -> list:
     return out
 
 
-def _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings):
+def _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings, smeared=False):
     """Cut-off wavelength hc/phi [nm]; warnings for rows beyond it and for a peak or band end near it."""
     lam_c = float(HC_EV_NM / phi)
     beyond = wl > lam_c
     if np.any(beyond):
         warnings.append(f"{int(beyond.sum())} wavelength(s) beyond the cut-off {lam_c:.0f} nm (hc/phi_B, "
-                        f"phi_B = {phi:.3g} eV): no carrier can cross, injection is zero there")
+                        f"phi_B = {phi:.3g} eV): " + (
+                            "only the thermal (Fermi-Dirac) tail of the carriers crosses there" if smeared else
+                            "no carrier can cross, injection is zero there"))
     margin = max(0.1, 0.1 * phi)  # our choice: within 0.1 eV or 10 % of the barrier
     near = f"within {margin:.2g} eV of the barrier {phi:.3g} eV (cut-off {lam_c:.0f} nm)"
     i_pk = int(np.argmax(P))
@@ -491,6 +561,7 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
                          fermi_energy_eV=None, attenuation_length_nm=None, yield_model: str = "escape-cone",
                          geometry: str = "particle", generation: str = "band-edges",
                          momentum_factor: float = 1.0, contact_fraction: float = 1.0,
+                         surface_emission: str = "field", fermi_smearing: bool = False,
                          density_per_um2=None, area_um2=None, temperature_K: float = 300.0,
                          bias_V: float = 0.0, doping_cm3: float = 1e15, load_ohm=None,
                          depth_nm: float = 10.0, thermal_conductivity_W_mK=None) -> HotCarrierResult:
@@ -527,6 +598,17 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     contact_fraction : float, keyword-only
         Fraction of the metal surface on the semiconductor (0, 1]; for an ellipsoid the facet with the
         lowest z (resting on a substrate), for (layered) spheres exact as a multiplier.
+    surface_emission : {"field", "cone"}, keyword-only
+        "field" (default): the surface-assisted share of absorption is emitted by the surface
+        photoeffect, computed from the normal field at the contact (:mod:`nanoabs.surface_emission`,
+        the package's own golden-rule derivation for a step barrier) and reported as the surface
+        channel; the volume channels (bulk intraband, interband) use the escape cone. "cone": every
+        channel through the escape cone (the model before the surface channel), surface rate 0.
+    fermi_smearing : bool, keyword-only
+        Fermi-Dirac occupation at ``temperature_K`` smears the threshold: the volume channels with
+        Fowler's function (:func:`nanoabs.carriers.fowler_function`), the surface channel with the
+        thermal occupation of its initial states. Off (default): the sharp T = 0 threshold, zero
+        beyond the cut-off.
     density_per_um2 : float, keyword-only
         Areal density of particles [µm⁻²] for array quantities.
     area_um2 : float, keyword-only
@@ -543,7 +625,9 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     if not hasattr(particle, "layer_materials"):
         raise NanoabsError(f"particle = {type(particle).__name__}: expected a nanoabs particle (Sphere, "
                            "LayeredSphere, Ellipsoid, Cylinder, CappedRod, RoundedDisc)")
+    fermi_smearing = check_flag("fermi_smearing", fermi_smearing)
     for name, value, allowed in (("geometry", geometry, ("particle", "flat")),
+                                 ("surface emission", surface_emission, ("field", "cone")),
                                  ("generation", generation, ("band-edges", "flat")),
                                  ("yield model", yield_model, ("escape-cone", "fowler"))):
         if value not in allowed:
@@ -554,7 +638,9 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     metal = _main_metal(particle)
     opts = _options(metal, fermi_energy_eV, attenuation_length_nm, momentum_factor, contact_fraction)
     opts.update({"phi": phi, "carrier": carrier, "yield_model": yield_model, "geometry": geometry,
-                 "generation": generation, "temperature_K": float(temperature_K), "bias_V": float(bias_V)})
+                 "generation": generation, "temperature_K": float(check_positive("temperature", temperature_K,
+                                                                                 unit="K", scalar=True)),
+                 "bias_V": float(bias_V), "surface_emission": surface_emission, "fermi_smearing": fermi_smearing})
     warnings = list(spec.metadata.get("warnings", [])) + (_contact_plausibility(c, metal, spec) if c else [])
     notes = []
 
@@ -563,13 +649,22 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     P = hc.absorbed_power(spec.sigma_abs_m2, E_lam)
     gamma = hc.photon_rate(P, wl)
     parts = _partition(spec, metal, wl, P, notes)
-    lam_c = _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings)
+    lam_c = _cutoff_warnings(wl, E_ph, P, E_lam, phi, warnings, smeared=fermi_smearing)
     eta, T, per = _injection(spec, particle, metal, E_ph, parts, P, opts, notes)
-    rate = gamma * eta * T
+    rate_volume = gamma * eta * T
+    rate_surface = (_surface_rate(spec, particle, metal, P, E_ph, opts, notes) if surface_emission == "field"
+                    else np.zeros(wl.shape))
+    rate = rate_volume + rate_surface
+    with np.errstate(divide="ignore", invalid="ignore"):
+        eta = eta + np.where(gamma > 0, rate_surface / gamma, 0.0)
+        T = np.where((gamma > 0) & (eta > 0), rate / (gamma * eta), T)
     current = _c.e * rate
     if parts is None:
         parts = {k: np.full(wl.shape, np.nan) for k in cr.CHANNELS}
         per = {k: np.full(wl.shape, np.nan) for k in cr.CHANNELS}
+    if surface_emission == "field":
+        with np.errstate(divide="ignore", invalid="ignore"):
+            per["intraband_surface"] = np.where(gamma > 0, rate_surface / gamma, 0.0)
     surface_fraction = _surface_fraction(particle, spec, depth_nm) if _spherical(particle) else None
     R = (float(particle.outer_radius_nm) if _spherical(particle)
          else float(hc.equal_volume_radius(*(float(a) for a in particle.outer_semi_axes_nm()))))
@@ -580,6 +675,8 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
             "absorbed_power_W": P, "absorbed_photon_rate_per_s": gamma, "emission_probability": eta,
             "transport_factor": T, rate_col: rate, "photocurrent_A": current}
     data.update({chan_cols[k]: gamma * per[k] for k in cr.CHANNELS})
+    split_cols = {k: f"injected_{carrier}_rate_{k}_per_s" for k in ("volume", "surface")}
+    data.update({split_cols["volume"]: rate_volume, split_cols["surface"]: rate_surface})
     cols = [rate_col if col == "injected_electron_rate_per_s" else col for col in EXPORT_COLUMNS]
     totals = {"peak_absorbed_power_wavelength_nm": float(wl[int(np.argmax(P))]), "cutoff_wavelength_nm": lam_c}
     if density_per_um2 is not None:
@@ -603,8 +700,10 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
     data.update({"photon_energy_eV": E_ph, "power_interband_W": parts["interband"],
                  "power_intraband_bulk_W": parts["intraband_bulk"],
                  "power_intraband_surface_W": parts["intraband_surface"]})
-    cols += EXTRA_COLUMNS + [chan_cols[k] for k in cr.CHANNELS]
+    cols += EXTRA_COLUMNS + [chan_cols[k] for k in cr.CHANNELS] + list(split_cols.values())
     _band_totals(totals, wl, data, parts, rate_col, chan_cols, mono, density_per_um2 is not None)
+    if not mono:
+        totals.update({col: float(band_integral(wl, data[col])) for col in split_cols.values()})
     if area_um2 is not None:
         cols += _device(data, c, opts, area_um2, load_ohm, mono, totals, warnings)
     frame = pd.DataFrame({col: np.asarray(data[col], dtype=float) for col in cols}, columns=cols)
@@ -634,13 +733,15 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
                      "attenuation_length_nm": opts["ell"], "attenuation_length_source": opts["ell_src"],
                      "attenuation_energy_dependent": not opts["ell_fixed"], "yield_model": yield_model,
                      "geometry": geometry, "generation": generation, "momentum_factor": opts["mf"],
+                     "surface_emission": surface_emission, "fermi_smearing": fermi_smearing,
+                     "temperature_K": opts["temperature_K"],
                      "contact_fraction": opts["cf"], "cutoff_wavelength_nm": lam_c})
     meta = dict(spec.metadata)
     meta.update({
         "illumination": illumination.metadata(), "schottky": schottky, "cutoff_wavelength_nm": lam_c,
         "density_per_um2": density_per_um2,
         "thermal_conductivity_W_mK": kappa, "thermal_conductivity_source": kappa_src,
-        "methods": _methods(geometry, generation), "notes": list(dict.fromkeys(notes)), "warnings": warnings,
+        "methods": _methods(geometry, generation, surface_emission, fermi_smearing), "notes": list(dict.fromkeys(notes)), "warnings": warnings,
         "safety_caution": hc.SAFETY_CAUTION, "package_version": __version__,
     })
     return HotCarrierResult(frame, totals, meta, units)
@@ -695,8 +796,16 @@ def _units(cols, mono):
     return out
 
 
-def _methods(geometry, generation):
+def _methods(geometry, generation, surface_emission="cone", fermi_smearing=False):
     return {
+        "surface_emission": ("surface photoeffect of a step barrier driven by the normal field just inside the metal "
+                             "at the contact (golden rule, acceleration form of the matrix element; the package's own "
+                             "derivation in the Tamm-Schubin / Brodsky-Gurevich model family, nanoabs.surface_emission); "
+                             "it replaces the escape-cone emission of the surface-assisted absorption share"
+                             if surface_emission == "field" else
+                             "none: surface-assisted absorption emitted through the escape cone like the volume channels"),
+        "threshold": ("Fermi-Dirac smearing at the device temperature (Fowler, Phys. Rev. 38, 45 (1931))"
+                      if fermi_smearing else "sharp (T = 0) threshold"),
         "generation": ("one electron-hole pair per absorbed photon; intraband (bulk and surface-assisted) carriers "
                        "flat over [0, hv] (Fowler 1931); interband: d-band holes below the band edge and sp "
                        "electrons within hv - E_d of E_F (flat boxes: a simplification of Manjavacas et al. 2014, "

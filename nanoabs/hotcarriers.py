@@ -642,10 +642,10 @@ _ATT = (
 
 #: Hot-electron attenuation lengths [nm].
 ATTENUATION_LENGTH_NM = {
-    "Au": Sourced(40.0, _ATT),
-    "Ag": Sourced(50.0, _ATT),
-    "Cu": Sourced(30.0, _ATT),
-    "Al": Sourced(20.0, _ATT),
+    "Au": Sourced(40.0, _ATT + "; estimate, 20-100 nm"),
+    "Ag": Sourced(50.0, _ATT + "; estimate, 20-100 nm"),
+    "Cu": Sourced(30.0, _ATT + "; estimate, 10-60 nm"),
+    "Al": Sourced(20.0, _ATT + "; estimate, 10-40 nm"),
     "Pt": Sourced(10.0, _ATT + "; transition metals (d states at E_F) scatter faster: 5-15 nm"),
     "Pd": Sourced(10.0, _ATT + "; transition metals (d states at E_F) scatter faster: 5-15 nm"),
     "Ni": Sourced(5.0, _ATT + "; transition metals (d states at E_F) scatter faster: 2-10 nm"),

@@ -58,6 +58,7 @@ __all__ = [
     "absorption_profile",
     "internal_intensity_profile",
     "fraction_within_depth",
+    "normal_field_surface_integral",
     "n_terms",
 ]
 
@@ -655,6 +656,58 @@ def mie_coefficients_layered(m, x, n_max):
         a[:, idx] = r["a"]
         b[:, idx] = r["b"]
     return a.reshape((n_max,) + grid), b.reshape((n_max,) + grid)
+
+
+def normal_field_surface_integral(m, x):
+    """Integral over the outer surface of |E_r|^2 just inside the outermost layer, per |E0|^2 [1].
+
+    Parameters
+    ----------
+    m : complex array_like, shape (L, *grid)
+        Relative refractive indices of the layers, core first [1] (see `mie_layered`).
+    x : float array_like, shape (L, *grid) or broadcastable
+        Outer size parameters of the layers [1].
+
+    Returns
+    -------
+    ndarray, shape grid
+        S = (1/|E0|^2) int |E_r(R^-, theta, phi)|^2 dOmega over the unit sphere [1]; the
+        surface integral of the normal field over the sphere of radius R is R^2 S |E0|^2.
+
+    Notes
+    -----
+    Only the TM (a_n) waves have a radial component. Outside, incident plus scattered field
+    (B&H eqs. 4.37, 4.45, 4.50) give at r = R^+
+
+        E_r = E0 cos(phi) sin(theta) sum_n i^(n+1) (2n+1) pi_n(cos theta) (a_n h_n(x) - j_n(x))/x,
+
+    and the normal displacement is continuous, E_r(R^-) = E_r(R^+)/m_L^2. With
+    int_{-1}^{1} sin^2(theta) pi_n pi_n' d(cos theta) = 2 n (n+1)/(2n+1) delta_nn' and
+    int cos^2(phi) dphi = pi:
+
+        S = 2 pi sum_n n (n+1) (2n+1) |a_n h_n(x) - j_n(x)|^2 / (x^2 |m_L|^4).
+
+    Small-sphere limit: S -> (4 pi/3) |3/(m^2 + 2)|^2, the uniform internal field 3/(m^2 + 2)
+    of a dipole sphere with int cos^2 dOmega = 4 pi/3. tests/test_surface_emission.py checks S against a direct
+    quadrature of the internal field built from the internal coefficients d_n (B&H eq. 4.53).
+
+    References
+    ----------
+    C. F. Bohren and D. R. Huffman, Wiley (1983), Secs. 4.1-4.4, eqs. 4.37-4.53 (from memory).
+    """
+    from scipy.special import spherical_jn, spherical_yn
+
+    m, x, grid = _prepare(m, x)
+    xo = np.asarray(x[-1], dtype=float)
+    n_max = int(np.max(n_terms(xo)))
+    a, _ = mie_coefficients_layered(m, x, n_max)
+    n = np.arange(1, n_max + 1).reshape((n_max,) + (1,) * len(grid))
+    jn = spherical_jn(n, xo)
+    with np.errstate(over="ignore", invalid="ignore"):
+        hn = jn + 1j * spherical_yn(n, xo)
+        term = np.where(a == 0, -jn, a * hn - jn)
+        s = 2 * np.pi * np.sum(n * (n + 1) * (2 * n + 1) * np.abs(term) ** 2, axis=0) / xo**2
+    return s / np.abs(m[-1]) ** 4
 
 
 # --------------------------------------------------------------------------

@@ -44,7 +44,8 @@ SCHEMA = {
     "detector": {"barrier_eV": (_NUM, False), "schottky": (str, False), "fermi_energy_eV": (_NUM, False),
                  "attenuation_length_nm": (_NUM, False), "density_per_um2": (_NUM, False),
                  "momentum_factor": (_NUM, False), "contact_fraction": (_NUM, False),
-                 "yield_model": (str, False)},
+                 "yield_model": (str, False), "surface_emission": (str, False), "fermi_smearing": (bool, False),
+                 "temperature_K": (_NUM, False)},
     "particle": {"name": (str, True), "shape": (str, True), "material": (str, False),
                  "radius_nm": (_NUM, False), "core": (str, False), "core_radius_nm": (_NUM, False),
                  "shell": (str, False), "thickness_nm": (_NUM, False), "length_nm": (_NUM, False),
@@ -529,7 +530,8 @@ def _write_report(job, rep, progress):
         _yield_figure(job, rep)
     L += _data_sources(job)
     L += ["## Cautions", "", " ".join(SAFETY_CAUTION.split()), "",
-          "These are model estimates (sparse arrays, isolated-particle heating, escape-cone emission) for "
+          "These are model estimates (sparse arrays, isolated-particle heating, energy-resolved escape-cone and "
+          "surface emission) for "
           "comparing designs; they do not replace measurement or a safety review.", "",
           "## Files", ""] + [f"- `{f}`" for f in sorted(set(rep.files))]
     text = "\n".join(L) + "\n"
@@ -613,10 +615,14 @@ def _particles_section(job, rep):
                                    fermi_energy_eV=det.get("fermi_energy_eV"),
                                    attenuation_length_nm=det.get("attenuation_length_nm"),
                                    yield_model=det.get("yield_model", "escape-cone"),
+                                   surface_emission=det.get("surface_emission", "field"),
+                                   fermi_smearing=det.get("fermi_smearing", False),
+                                   temperature_K=det.get("temperature_K", 300.0),
                                    momentum_factor=det.get("momentum_factor", 1.0),
                                    contact_fraction=det.get("contact_fraction", 1.0),
                                    density_per_um2=det.get("density_per_um2"),
                                    thermal_conductivity_W_mK=job["kappa"])
+        job.setdefault("hc_results", []).append((t["name"], res))
         rep.add(res.write(rep.path(f"{stem}_hot_carriers.csv"))[0])
         rep.add(rep.path(f"{stem}_hot_carriers.json"))
         spec.write(rep.path(f"{stem}_spectrum.csv"))
@@ -754,34 +760,43 @@ def _search_section(job, rep, progress):
 
 
 def _yield_figure(job, rep):
-    """One pair of emission-probability curves per metal of the study (each has its own E_F)."""
-    from .detector import _main_metal
-    from .hotcarriers import FREE_ELECTRON, escape_cone_yield, fowler_yield, photon_energy_eV
+    """Emission probability per absorbed photon from the energy-resolved pipeline: for every candidate
+    particle its total (volume + surface) and surface parts (nanoabs.hot_carrier_estimate); for a study
+    with a search only, the search's size-independent screen per metal."""
+    from .design._search import _screening_yield
+    from .carriers import fermi_energy
     from .materials import material
     from .plotting import plot_curves
 
     doc, det, wl, barrier = job["doc"], job["det"], job["wl"], job["barrier"]
-    names = [_main_metal(p).name for _, p, _ in job["particles"]]
-    if doc.get("search"):
-        names += [material(m).name for m in doc["search"].get("materials", ["Au"])]
-    E = photon_energy_eV(wl)
-    if det.get("fermi_energy_eV") is not None:
-        fermi = [("", float(det["fermi_energy_eV"]))]
-    else:
-        fermi = [(n, FREE_ELECTRON[n].fermi_energy_eV) for n in dict.fromkeys(names) if n in FREE_ELECTRON]
     curves = []
-    for name, ef in fermi:
-        tag = f"{name}, E_F = {ef:g} eV" if name else f"E_F = {ef:g} eV"
-        curves += [(f"escape-cone integral ({tag})", escape_cone_yield(E, barrier[0], ef)),
-                   (f"Fowler small-excess form ({tag})", fowler_yield(E, barrier[0], ef))]
+    for name, res in job.get("hc_results", []):
+        f = res.frame
+        gamma = f["absorbed_photon_rate_per_s"].to_numpy()
+        carrier = res.metadata["schottky"]["carrier"]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            tot = np.where(gamma > 0, f[f"injected_{carrier}_rate_per_s"].to_numpy() / gamma, np.nan)
+            surf = np.where(gamma > 0, f[f"injected_{carrier}_rate_surface_per_s"].to_numpy() / gamma, np.nan)
+        curves.append((f"{name}: volume + surface", tot))
+        if np.any(surf > 0):
+            curves.append((f"{name}: surface", surf))
+    title = f"internal photoemission over a {barrier[0]:g} eV barrier (energy-resolved estimate)"
+    if not curves and doc.get("search"):
+        for m in dict.fromkeys(material(m).name for m in doc["search"].get("materials", ["Au"])):
+            ef = det.get("fermi_energy_eV")
+            try:
+                ef = float(ef) if ef is not None else fermi_energy(m).value
+            except NanoabsError:
+                continue
+            curves.append((f"{m} (search screen: band edges, 1 - c^3, no attenuation)",
+                           _screening_yield(material(m), wl, barrier[0], ef)))
     if curves:
         rep.figure(plot_curves(wl, curves, xlabel="wavelength [nm]", ylabel="emission probability per absorbed photon",
-                               title=f"internal photoemission over a {barrier[0]:g} eV barrier",
-                               logy=bool(job["doc"].get("output", {}).get("log_emission", True))),
+                               title=title, logy=bool(job["doc"].get("output", {}).get("log_emission", True))),
                    "emission_probability")
     else:
-        rep.lines.extend(["Emission-probability figure not drawn: no metal of this study has tabulated "
-                          "free-electron data (give detector.fermi_energy_eV).", ""])
+        rep.lines.extend(["Emission-probability figure not drawn: no metal of this study has a tabulated Fermi "
+                          "energy (give detector.fermi_energy_eV).", ""])
 
 
 def _f(v, fmt):

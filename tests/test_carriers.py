@@ -178,3 +178,59 @@ def test_shell_and_spheroid_escape_against_monte_carlo():
     sigma = np.sqrt(mc * (1 - mc) / len(pts))
     model = cr.ellipsoid_escape(ax, cones, np.inf)
     assert np.all(np.abs(model - mc) < 4 * sigma + 1e-3), (model, mc)
+
+
+@pytest.mark.parametrize("x", [-30.0, -5.0, -1.0, -0.1, 0.0, 0.1, 1.0, 5.0, 30.0])
+def test_fowler_function_series_against_fermi_dirac_integral(x):
+    # Fowler, Phys. Rev. 38, 45 (1931): F(x) = int_0^inf ln(1 + exp(x - u)) du (the Fermi-Dirac
+    # occupation integrated over the normal energy), here by scipy quad; both series branches and
+    # the switch at x = 0. Tolerance 1e-8 relative.
+    from scipy import integrate
+
+    from nanoabs.carriers import fowler_function
+
+    ref, _ = integrate.quad(lambda u: np.logaddexp(0.0, x - u), 0.0, max(x, 0.0) + 60.0,
+                            points=[max(x, 0.0)], epsabs=0.0, epsrel=1e-12, limit=200)
+    assert float(fowler_function(x)) == pytest.approx(ref, rel=1e-8)
+
+
+def test_fowler_function_zero_temperature_limit():
+    # T -> 0: 2 (kT)^2 F((h nu - phi)/kT) -> (h nu - phi)^2 above threshold, 0 below (Fowler 1931,
+    # the square law used by the sharp model). At 1 K and Delta = +-0.1 eV: rtol 1e-5, below 1e-300.
+    from scipy.constants import e, k
+
+    from nanoabs.carriers import fowler_function
+
+    kT = k * 1.0 / e
+    assert 2 * kT**2 * float(fowler_function(0.1 / kT)) == pytest.approx(0.1**2, rel=1e-5)
+    assert 2 * kT**2 * float(fowler_function(-0.1 / kT)) < 1e-300
+
+
+@pytest.mark.parametrize("T", [300.0, 77.0])
+def test_pipeline_thermal_threshold_is_fowlers(T):
+    # With fermi_smearing the flat-interface Fowler model of the pipeline (yield_model="fowler": W = (E - phi)/(4 E_F),
+    # flat carriers, no attenuation, escape-cone surface channel) gives Fowler's temperature law
+    # (kT)^2 F((h nu - phi)/kT) / (4 E_F N), N = kT ln(1 + exp(h nu/kT)) ~ h nu (Fowler 1931),
+    # below the cut-off too (thermal tail). Tolerance 1e-5 (trapezoid rule on 240 energies).
+    from scipy.constants import e, k
+
+    from nanoabs import Sphere, hot_carrier_estimate, spectrum
+    from nanoabs import illumination as il
+    from nanoabs.carriers import fowler_function
+
+    p = Sphere("Au", 3.0)
+    wl = np.linspace(1200.0, 1700.0, 11)
+    s = spectrum(p, wl, medium=1.45)
+    r = hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=0.8, geometry="flat", yield_model="fowler",
+                             generation="flat", surface_emission="cone", attenuation_length_nm=1e12,
+                             fermi_smearing=True, temperature_K=T)
+    kT = k * T / e
+    hv = 1239.841984 / wl
+    ef = r.metadata["schottky"]["fermi_energy_eV"]
+    ref = kT**2 * fowler_function((hv - 0.8) / kT) / (4 * ef * kT * np.logaddexp(0.0, hv / kT))
+    np.testing.assert_allclose(r.frame.emission_probability, ref, rtol=1e-5)
+    assert r.frame.emission_probability.iloc[-1] > 0  # 1700 nm: beyond hc/phi = 1550 nm
+    sharp = hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=0.8, geometry="flat",
+                                 yield_model="fowler", generation="flat", surface_emission="cone",
+                                 attenuation_length_nm=1e12)
+    assert sharp.frame.emission_probability.iloc[-1] == 0

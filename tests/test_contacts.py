@@ -1,5 +1,7 @@
 """Contacts: barrier table, image-force lowering, cut-off, thermionic dark current, noise figures."""
 
+import re
+
 import numpy as np
 import pytest
 from scipy import constants as c
@@ -111,3 +113,25 @@ def test_noise_nep_and_detectivity():
     assert np.isnan(nep[0]) and nep[1] == pytest.approx(i_n / 1e-3)
     d = noise.specific_detectivity_Jones(1e4, nep)  # 1e4 um^2 = 1e-4 cm^2
     assert d[0] == 0 and d[1] == pytest.approx(np.sqrt(1e-4) / nep[1], rel=1e-12)
+
+
+def test_values_typed_from_memory_say_so_and_carry_a_range():
+    # Rules (issue 13, task 4): no book was at hand, so every tabulated barrier, semiconductor constant,
+    # band edge, E_F estimate, attenuation length and conductivity is marked "(from memory)" or
+    # "from memory" in its source; every barrier lies inside its range, and estimates have a range of
+    # non-zero width. (Bookkeeping check of the tables, not physics.)
+    from nanoabs import carriers as cr
+    from nanoabs import hotcarriers as hc
+    from nanoabs.contacts import CONTACTS, SEMICONDUCTORS
+
+    for label, c in CONTACTS.items():
+        assert "from memory" in c.source, label
+        assert c.range_eV[0] <= c.barrier_eV <= c.range_eV[1], label
+        if "estimate" in c.source:
+            assert c.range_eV[1] > c.range_eV[0], label
+    for table in (SEMICONDUCTORS, hc.FREE_ELECTRON, hc.ATTENUATION_LENGTH_NM, hc.THERMAL_CONDUCTIVITY_W_MK,
+                  cr.BAND_EDGE_EV, cr.VALENCE_DEPTH_EV):
+        for name, entry in table.items():
+            assert "from memory" in entry.source, name
+    for name, entry in hc.ATTENUATION_LENGTH_NM.items():
+        assert re.search(r"\d+-\d+ nm", entry.source), name  # a range, e.g. "20-100 nm"

@@ -64,7 +64,7 @@ def test_flat_geometry_small_sphere_matches_uniform_closed_form():
     p = Sphere("Au", 3.0)
     s = spectrum(p, [800.0], medium="water")
     r = hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=0.5, attenuation_length_nm=2.0,
-                             geometry="flat")
+                             geometry="flat", surface_emission="cone")
     assert r.frame.transport_factor[0] == pytest.approx(transport_factor_uniform(3.0, 2.0), rel=2e-3)
 
 
@@ -80,7 +80,8 @@ def test_curved_sphere_yield_matches_chord_integral():
     R, ell, phi, ef = 3.0, 2.0, 0.5, 5.53
     p = Sphere("Au", R)
     s = spectrum(p, [800.0], medium="water")
-    r = hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=phi, attenuation_length_nm=ell)
+    r = hot_carrier_estimate(s, p, il.monochromatic(1.0), barrier_eV=phi, attenuation_length_nm=ell,
+                             surface_emission="cone")  # the escape-cone model alone
     hv = c.h * c.c / (800e-9 * c.e)
 
     def P(E, L):
@@ -248,6 +249,8 @@ def test_issue13_contract_forms(form, tmp_path, monkeypatch, capsys):
     total = df[f"injected_{carrier}_rate_per_s"]
     parts = sum(df[f"injected_{carrier}_rate_{k}_per_s"] for k in ("intraband_bulk", "intraband_surface", "interband"))
     np.testing.assert_allclose(parts, total, rtol=1e-9, atol=1e-30)
+    split = sum(df[f"injected_{carrier}_rate_{k}_per_s"] for k in ("volume", "surface"))
+    np.testing.assert_allclose(split, total, rtol=1e-9, atol=1e-30)  # volume + surface emission
     lam_c = md["cutoff_wavelength_nm"]
     assert np.all(total[df.wavelength_nm > lam_c] == 0)
     if "--area" in form:

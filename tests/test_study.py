@@ -73,12 +73,12 @@ formats = ["svg"]
         2 * 0.01 / (3.141592653589793 * (5e-4) ** 2))
 
 
-def test_emission_figure_uses_each_metals_fermi_energy(tmp_path, monkeypatch):
-    """The yield figure is drawn with the Fermi energy of the study's own metals.
+def test_emission_figure_uses_the_energy_resolved_pipeline(tmp_path, monkeypatch):
+    """The emission figure draws, per candidate particle, the hot-carrier pipeline's injected carriers per
+    absorbed photon (total and surface part), not the flat escape-cone yield on all absorbed power.
 
-    E_F values: free-electron table in nanoabs.hotcarriers (Ashcroft & Mermin 1976, Table 2.1, from
-    memory);
-    the curves must equal escape_cone_yield / fowler_yield evaluated with them.
+    Source: nanoabs.hot_carrier_estimate for the same particle, spectrum and illumination (rtol 1e-12);
+    the flat escape-cone curve (Scales & Berini 2010) must differ from it (issue 13).
     """
     import numpy as np
 
@@ -126,11 +126,22 @@ diameter_nm = 20
     assert len(emission) == 1
     wl, curves, _ = emission[0]
     labels = [name for name, _ in curves]
-    for metal in ("Ag", "Cu"):
-        ef = FREE_ELECTRON[metal].fermi_energy_eV
-        (name, y), = [(n, y) for n, y in curves if n.startswith("escape-cone") and f"{metal}," in n]
-        assert f"E_F = {ef:g} eV" in name
-        np.testing.assert_allclose(y, escape_cone_yield(photon_energy_eV(wl), 0.8, ef), rtol=1e-12)
+    particles = {"Ag 15": (nanoabs.Sphere("Ag", 15.0), "x"),
+                 "Cu rod": (nanoabs.spheroid("Cu", length_nm=60, diameter_nm=20), "long")}
+    for name, (particle, pol) in particles.items():
+        spec = nanoabs.spectrum(particle, wl, medium=1.5, polarization=pol)
+        res = nanoabs.hot_carrier_estimate(spec, particle, nanoabs.illumination.flat(1.0), barrier_eV=0.8)
+        f = res.frame
+        gamma = f["absorbed_photon_rate_per_s"].to_numpy()
+        ok = gamma > 0
+        (y,) = [y for n, y in curves if n == f"{name}: volume + surface"]
+        (ys,) = [y for n, y in curves if n == f"{name}: surface"]
+        np.testing.assert_allclose(y[ok], f["injected_electron_rate_per_s"].to_numpy()[ok] / gamma[ok], rtol=1e-12)
+        np.testing.assert_allclose(ys[ok], f["injected_electron_rate_surface_per_s"].to_numpy()[ok] / gamma[ok],
+                                   rtol=1e-12)
+        metal = particle.layer_materials()[-1].name
+        flat = escape_cone_yield(photon_energy_eV(wl), 0.8, FREE_ELECTRON[metal].fermi_energy_eV)
+        assert not np.allclose(y[ok], flat[ok], rtol=0.1)
     assert not any("Au" in n for n in labels)
 
 
@@ -275,3 +286,25 @@ figures = false
     np.testing.assert_allclose(df[df.length_nm == 80].sigma_abs_m2.to_numpy(), s.sigma_abs_m2, rtol=1e-12)
     text = (tmp_path / "r" / "summary.md").read_text()
     assert "| capped rod | tmatrix |" in text
+
+
+def test_study_detector_surface_and_thermal_keys(tmp_path):
+    # Contract: detector.surface_emission, fermi_smearing and temperature_K reach the hot-carrier estimate
+    # (recorded in its sidecar); "cone" leaves no surface rate; a non-boolean fermi_smearing is refused.
+    text = _SMALL.replace("detector = {barrier_eV = 0.8}",
+                          'detector = {barrier_eV = 0.8, surface_emission = "cone", fermi_smearing = true, '
+                          "temperature_K = 250}")
+    text += '[[particle]]\nname = "Au 10"\nshape = "sphere"\nmaterial = "Au"\nradius_nm = 10\n'
+    p = tmp_path / "s.toml"
+    p.write_text(text)
+    run_study(p, tmp_path / "rep", progress=False)
+    df, meta = nanoabs.read_export(tmp_path / "rep" / "au_10_hot_carriers.csv")
+    sch = meta["metadata"]["schottky"]
+    assert sch["surface_emission"] == "cone" and sch["fermi_smearing"] is True
+    assert sch["temperature_K"] == 250
+    surf = [c for c in df.columns if c.startswith("injected_electron_rate_surface")]
+    assert surf and np.all(df[surf[0]] == 0)
+    bad = tmp_path / "bad.toml"
+    bad.write_text(text.replace("fermi_smearing = true", 'fermi_smearing = "yes"'))
+    with pytest.raises(Exception, match="fermi_smearing"):
+        load_study(bad)
