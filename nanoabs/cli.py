@@ -748,9 +748,14 @@ def _cmd_search(args) -> int:
             b.append(design.band(lo_nm=lo, hi_nm=hi))
     else:
         b = [design.band(center_nm=args.center, width_nm=args.width)]
-    barrier = None
+    barrier, carrier = None, args.carrier
     if args.schottky:
+        from .contacts import contact
+
+        if args.barrier is not None:
+            raise NanoabsError("give only one of --barrier EV or --schottky METAL/SEMICONDUCTOR")
         barrier = float(schottky_barrier(args.schottky)[0])
+        carrier = contact(args.schottky).carrier
     elif args.barrier is not None:
         barrier = args.barrier
     if args.spectrum and args.irradiance is not None:
@@ -767,7 +772,7 @@ def _cmd_search(args) -> int:
                            medium=_medium_arg(args.medium), illumination=illum, barrier_eV=barrier,
                            max_size_nm=args.max_size, min_shell_nm=args.min_shell, top=args.top,
                            progress=not args.quiet and sys.stderr.isatty(), combine=args.combine,
-                           peak_in_band=not args.any_peak)
+                           peak_in_band=not args.any_peak, carrier=carrier)
     fom = ranked.attrs.get("figure_of_merit", {})
     bands = ", ".join(f"{lo:g}-{hi:g}" for lo, hi in b)
     print(f"band(s) {bands} nm; objective {args.objective} [{fom.get('unit', '')}]"
@@ -825,7 +830,11 @@ def _register_design_commands(sub):
     q.add_argument("--max-size", type=float, default=150.0, help="largest outer dimension [nm]")
     q.add_argument("--min-shell", type=float, default=2.0, help="thinnest shell [nm]")
     q.add_argument("--barrier", type=float, help="injection: Schottky barrier [eV]")
-    q.add_argument("--schottky", help="injection: tabulated pair, e.g. Au/Si")
+    q.add_argument("--schottky", help="injection: tabulated pair, e.g. Au/Si (n-type: electrons) or Au/p-Si "
+                                      "(p-type: holes)")
+    q.add_argument("--carrier", default="electron", choices=["electron", "hole"],
+                   help="injection with --barrier: carriers that cross (electron: n-type, hole: p-type); "
+                        "--schottky sets it from the pair")
     q.add_argument("--spectrum", help="injection: am1.5g | am1.5d | am0 | blackbody:T | flat:V | FILE.csv")
     q.add_argument("--irradiance", type=_irradiance_arg,
                    help="injection: monochromatic irradiance, W/m^2 or with a unit (1mW/cm2)")

@@ -45,7 +45,7 @@ SCHEMA = {
                  "attenuation_length_nm": (_NUM, False), "density_per_um2": (_NUM, False),
                  "momentum_factor": (_NUM, False), "contact_fraction": (_NUM, False),
                  "yield_model": (str, False), "surface_emission": (str, False), "fermi_smearing": (bool, False),
-                 "temperature_K": (_NUM, False)},
+                 "temperature_K": (_NUM, False), "carrier": (str, False)},
     "particle": {"name": (str, True), "shape": (str, True), "material": (str, False),
                  "radius_nm": (_NUM, False), "core": (str, False), "core_radius_nm": (_NUM, False),
                  "shell": (str, False), "thickness_nm": (_NUM, False), "length_nm": (_NUM, False),
@@ -305,6 +305,21 @@ def _barrier(doc):
     return float(det["barrier_eV"]), "study file"
 
 
+def _carrier(doc):
+    """Carriers that cross: from the contact's doping (detector.schottky) or detector.carrier."""
+    det = doc.get("detector", {})
+    if "schottky" in det:
+        from .contacts import contact
+
+        if "carrier" in det:
+            raise DataError("study keys detector.carrier and detector.schottky are exclusive: the pair sets it")
+        return contact(det["schottky"]).carrier
+    c = det.get("carrier", "electron")
+    if c not in ("electron", "hole"):
+        raise DataError(f"study key detector.carrier = {c!r}: allowed: electron, hole")
+    return c
+
+
 def _particle(t):
     from .materials import material
     from .particles import Ellipsoid, LayeredSphere, Sphere, spheroid
@@ -417,6 +432,7 @@ def _prepare(doc):
     stems = dict(zip(map(id, items), _stems([t["name"] for t in items])))
     job["particles"] = [(t, _particle(t), stems[id(t)]) for t in doc.get("particle", [])]
     job["barrier"] = _barrier(doc) if (job["particles"] or doc.get("search")) else (None, None)
+    job["carrier"] = _carrier(doc) if (job["particles"] or doc.get("search")) else "electron"
     job["sweeps"] = [_sweep_inputs(t, job, stems[id(t)]) for t in doc.get("sweep", [])]
     job["search"] = _search_inputs(doc, job) if doc.get("search") else None
     return job
@@ -457,7 +473,7 @@ def _search_inputs(doc, job):
     kw = dict(families=sd.get("families", ["sphere", "shell", "rod"]),
               objective=sd.get("objective", "absorbed_fraction"), materials=sd.get("materials", ["Au"]),
               **({"environment": job["env"]} if job["env"] is not None else {"medium": job["medium"]}),
-              illumination=job["illum"], barrier_eV=job["barrier"][0],
+              illumination=job["illum"], barrier_eV=job["barrier"][0], carrier=job["carrier"],
               max_size_nm=sd.get("max_size_nm", 200.0), min_shell_nm=sd.get("min_shell_nm", 5.0),
               top=int(sd.get("top", 10)))
     search_inputs((float(b[0]), float(b[1])), bounds=None, core="SiO2", fermi_energy_eV=None,
@@ -611,7 +627,7 @@ def _particles_section(job, rep):
                         polarization=t.get("polarization", "x" if t["shape"] in ("sphere", "shell", "ellipsoid")
                                            else "long"),
                         surface_damping=t.get("surface_damping", True))
-        res = hot_carrier_estimate(spec, p, job["illum"], barrier_eV=job["barrier"][0],
+        res = hot_carrier_estimate(spec, p, job["illum"], barrier_eV=job["barrier"][0], carrier=job["carrier"],
                                    fermi_energy_eV=det.get("fermi_energy_eV"),
                                    attenuation_length_nm=det.get("attenuation_length_nm"),
                                    yield_model=det.get("yield_model", "escape-cone"),
@@ -789,7 +805,7 @@ def _yield_figure(job, rep):
             except NanoabsError:
                 continue
             curves.append((f"{m} (search screen: band edges, 1 - c^3, no attenuation)",
-                           _screening_yield(material(m), wl, barrier[0], ef)))
+                           _screening_yield(material(m), wl, barrier[0], ef, job["carrier"])))
     if curves:
         rep.figure(plot_curves(wl, curves, xlabel="wavelength [nm]", ylabel="emission probability per absorbed photon",
                                title=title, logy=bool(job["doc"].get("output", {}).get("log_emission", True))),

@@ -588,6 +588,34 @@ def test_search_injection_matches_the_hot_carrier_pipeline():
     assert best.figure_of_merit == pytest.approx(direct, rel=1e-9)
 
 
+def test_search_injection_counts_holes_over_a_p_type_barrier(tmp_path):
+    # A p-type contact (Au/p-Si) passes holes (issue 13): the ranked value is the pipeline's hole rate
+    # (rtol 1e-9, as above), and gold's d-band holes at 500-600 nm (interband, ~2 eV below E_F: from
+    # memory) can cross a 0.3 eV hole barrier, so the hole rate is not the electron rate.
+    lo, hi = 520.0, 600.0
+    sun = nanoabs.illumination.solar("am1.5g")
+    kw = dict(families=["sphere"], objective="injection", barrier_eV=0.3, illumination=sun, top=1,
+              progress=False, peak_in_band=False, recheck=False, bounds={"sphere": {"radius_nm": (10.0, 30.0)}})
+    holes = design.search((lo, hi), carrier="hole", **kw)
+    electrons = design.search((lo, hi), **kw)
+    best = holes.iloc[0]
+    assert holes.attrs["metadata"]["injection"]["carrier"] == "hole"
+    p = Sphere("Au", best.radius_nm)
+    wl = np.union1d(np.linspace(lo, hi, 41), sun.nodes_nm[(sun.nodes_nm > lo) & (sun.nodes_nm < hi)])
+    hcr = nanoabs.hot_carrier_estimate(nanoabs.spectrum(p, wl), p, sun, barrier_eV=0.3, carrier="hole")
+    direct = np.trapezoid(hcr.frame["injected_hole_rate_per_s"].to_numpy(), wl)
+    assert best.figure_of_merit == pytest.approx(direct, rel=1e-9)
+    assert abs(best.figure_of_merit / electrons.iloc[0].figure_of_merit - 1) > 0.05
+    with pytest.raises(NanoabsError, match="carrier"):
+        design.search((lo, hi), carrier="positron", **kw)
+    # the CLI takes the carrier from the pair
+    from nanoabs.cli import main
+
+    out = tmp_path / "p.csv"
+    assert main(["search", "--band", "520:600", "--families", "sphere", "--objective", "injection", "--schottky",
+                 "Au/p-Si", "--top", "1", "--quiet", "--any-peak", "-o", str(out)]) == 0
+
+
 def test_search_injection_screening_yield_band_edges():
     # The exploration screen of the "injection" objective: gold at 500 nm over an n-type 0.8 eV barrier
     # gets nothing from interband absorption (d-band edge ~2 eV, from memory; issue 13), so the screen

@@ -308,3 +308,17 @@ def test_study_detector_surface_and_thermal_keys(tmp_path):
     bad.write_text(text.replace("fermi_smearing = true", 'fermi_smearing = "yes"'))
     with pytest.raises(Exception, match="fermi_smearing"):
         load_study(bad)
+
+
+def test_study_carrier_follows_the_contact_doping():
+    # Source: contract (issue 13): a p-type pair passes holes, an n-type pair electrons; with a bare
+    # barrier the study file may name the carrier; naming both is refused.
+    from nanoabs.study import DataError, _carrier
+
+    assert _carrier({"detector": {"schottky": "Au/p-Si"}}) == "hole"
+    assert _carrier({"detector": {"schottky": "Au/Si"}}) == "electron"
+    assert _carrier({"detector": {"barrier_eV": 0.3, "carrier": "hole"}}) == "hole"
+    assert _carrier({"detector": {"barrier_eV": 0.8}}) == "electron"
+    for det in ({"schottky": "Au/p-Si", "carrier": "hole"}, {"barrier_eV": 0.3, "carrier": "ion"}):
+        with pytest.raises(DataError, match="carrier"):
+            _carrier({"detector": det})

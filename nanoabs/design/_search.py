@@ -76,7 +76,7 @@ _FOM_TEXT = {
     "sigma_abs_per_volume": "band average of sigma_abs per metal volume",
     "q_abs": "band average of Q_abs = sigma_abs / geometric cross-section",
     "absorbed_fraction": "band average of sigma_abs / sigma_ext",
-    "injection": "band-integrated injected-electron rate per particle from nanoabs.hot_carrier_estimate (energy-"
+    "injection": "band-integrated injected-carrier rate (electrons or holes, per carrier) per particle from nanoabs.hot_carrier_estimate (energy-"
                  "resolved generation, curved-wall escape with attenuation, surface photoemission; defaults); "
                  "designs are explored with a size-independent screen (band-edge generation with the bulk "
                  "mechanism split, uniform-sphere escape 1 - c^3, no attenuation) and every ranked row is "
@@ -253,7 +253,7 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
            materials=("Au",), core="SiO2", medium="water", illumination=None, barrier_eV=None,
            fermi_energy_eV=None, min_shell_nm=2.0, max_size_nm=150.0, polarization="random",
            method="auto", surface_damping=True, wavelength_nm=None, n_starts=2, top=10, progress=None,
-           combine="worst", peak_in_band=True, recheck=True, environment=None):
+           combine="worst", peak_in_band=True, recheck=True, environment=None, carrier="electron"):
     """Rank particle designs by a figure of merit averaged over one or several target bands.
 
     Algorithm: per family and material, (1) one vectorised spectrum call over a
@@ -307,6 +307,9 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         (not monochromatic).
     barrier_eV : float, keyword-only
         Schottky barrier [eV], required for "injection".
+    carrier : {"electron", "hole"}, keyword-only
+        Carriers that cross the barrier for "injection": electrons over an n-type
+        contact (default), holes over a p-type one (e.g. Au/p-Si).
     fermi_energy_eV : float, keyword-only
         Fermi energy [eV] for "injection"; default from
         :func:`nanoabs.carriers.fermi_energy` by the metal's name.
@@ -369,7 +372,7 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
                          fermi_energy_eV=fermi_energy_eV, min_shell_nm=min_shell_nm, max_size_nm=max_size_nm,
                          polarization=polarization, method=method, surface_damping=surface_damping,
                          wavelength_nm=wavelength_nm, n_starts=n_starts, top=top, combine=combine,
-                         peak_in_band=peak_in_band, environment=environment)
+                         peak_in_band=peak_in_band, environment=environment, carrier=carrier)
     cfg["recheck"] = bool(recheck)
     n_tasks = len(cfg["families"]) * len(cfg["mats"]) * (1 + n_starts) + top
     bar = progress_bar(n_tasks, "search", progress)
@@ -421,11 +424,13 @@ def _bands(band_nm):
 
 def search_inputs(band_nm, *, families, objective, bounds, materials, core, medium="water", illumination, barrier_eV,
                    fermi_energy_eV, min_shell_nm, max_size_nm, polarization, method, surface_damping,
-                   wavelength_nm, n_starts, top, combine="worst", peak_in_band=True, environment=None):
+                   wavelength_nm, n_starts, top, combine="worst", peak_in_band=True, environment=None,
+                   carrier="electron"):
     """The validated inputs of :func:`search` as one dict; raises before any spectrum is computed."""
     bands = _bands(band_nm)
     lo, hi = bands[0][0], bands[-1][1]
     objective = check_choice("objective", objective, OBJECTIVES)
+    carrier = check_choice("carrier", carrier, ("electron", "hole"))
     combine = check_choice("combine", combine, COMBINE)
     if not isinstance(peak_in_band, (bool, np.bool_)):
         raise NanoabsError(f"peak_in_band = {peak_in_band!r}: must be True or False")
@@ -476,7 +481,7 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
         inj = {}
         if objective == "injection":
             band_wl, inj, inj_meta = _injection_inputs(b_lo, b_hi, band_wl, mats, illumination, barrier_eV,
-                                                       fermi_energy_eV)
+                                                       fermi_energy_eV, carrier)
         band_grids.append((b_lo, b_hi, band_wl, inj))
     return {"lo": lo, "hi": hi, "bands": band_grids, "objective": objective, "combine": combine,
             "peak_in_band": bool(peak_in_band), "families": families, "materials": materials,
@@ -491,7 +496,7 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
                          "surface_damping": check_flag("surface_damping", surface_damping)}}
 
 
-def _injection_inputs(lo, hi, band_wl, mats, illumination, barrier_eV, fermi_energy_eV):
+def _injection_inputs(lo, hi, band_wl, mats, illumination, barrier_eV, fermi_energy_eV, carrier="electron"):
     """Band grid, {id(metal): (E_lambda, eta)} and metadata of the "injection" objective."""
     from .. import hotcarriers as hc
     from ..carriers import fermi_energy
@@ -514,13 +519,13 @@ def _injection_inputs(lo, hi, band_wl, mats, illumination, barrier_eV, fermi_ene
             ef = fermi_energy(str(getattr(m, "name", type(m).__name__))).value
         else:
             ef = float(fermi_energy_eV)
-        eta = _screening_yield(m, band_wl, phi, ef)
+        eta = _screening_yield(m, band_wl, phi, ef, carrier)
         if not np.any(eta > 0):
             raise NanoabsError(f"barrier_eV = {phi:g} eV: above every photon energy of the band "
                                f"(at most {float(hc.photon_energy_eV(lo)):.4g} eV); no carrier can cross it")
         inj[id(m)] = (E, eta)
     meta = {"illumination": src.metadata() if callable(getattr(src, "metadata", None)) else str(src),
-            "barrier_eV": phi, "fermi_energy_eV": fermi_energy_eV or "per metal (nanoabs.carriers.fermi_energy)",
+            "barrier_eV": phi, "carrier": carrier, "fermi_energy_eV": fermi_energy_eV or "per metal (nanoabs.carriers.fermi_energy)",
             "ranked_value": "nanoabs.hot_carrier_estimate band integral (defaults: band-edge generation, "
                             "particle geometry, energy-dependent attenuation, surface emission 'field')",
             "screening_yield": "band-edge generation with the bulk mechanism split of eps'', uniform-sphere "
@@ -535,14 +540,14 @@ def _injection_source(illumination):
     return il.solar("am1.5g") if illumination is None else illumination
 
 
-def _screening_yield(metal, wl, phi, ef):
+def _screening_yield(metal, wl, phi, ef, carrier="electron"):
     """Size-independent emission probability per absorbed photon used to explore designs [-].
 
     The energy-resolved pipeline of :func:`nanoabs.hot_carrier_estimate` without what depends on
     the design: absorbed power split by the parts of eps'' of the bulk Drude-Lorentz model
     (no surface damping), band-edge carrier distributions (:func:`nanoabs.carriers.excess_energy_bounds`),
     escape from a sphere with uniform generation and no attenuation, 1 - c^3
-    (:mod:`nanoabs.carriers`), electrons over ``phi``. Ranked rows are recomputed with the pipeline.
+    (:mod:`nanoabs.carriers`), ``carrier`` over ``phi``. Ranked rows are recomputed with the pipeline.
     """
     from .. import carriers as cr
     from .. import hotcarriers as hc
@@ -557,7 +562,7 @@ def _screening_yield(metal, wl, phi, ef):
     fr = (_mechanism_fractions(metal, wl, 0.0) if model is not None
           else {k: (np.ones(wl.shape) if k == "intraband_bulk" else np.zeros(wl.shape)) for k in cr.CHANNELS})
     name = getattr(metal, "name", "")
-    return sum(fr[k] * cr.channel_yield(W, E, *cr.excess_energy_bounds(E_ph, name, k, "electron"))
+    return sum(fr[k] * cr.channel_yield(W, E, *cr.excess_energy_bounds(E_ph, name, k, carrier))
                for k in cr.CHANNELS)
 
 
@@ -578,8 +583,8 @@ def _pipeline_fom(cfg, prob, g, method):
             spec = spectrum(particle, wl, method=method, polarization=prob.settings["polarization"],
                             surface_damping=prob.settings["surface_damping"], **place)
             res = hot_carrier_estimate(spec, particle, cfg["inj_source"], barrier_eV=meta["barrier_eV"],
-                                       fermi_energy_eV=cfg["fermi_energy_eV"])
-        out.append(float(trapezoid(res.frame["injected_electron_rate_per_s"].to_numpy(), wl)))
+                                       carrier=meta["carrier"], fermi_energy_eV=cfg["fermi_energy_eV"])
+        out.append(float(trapezoid(res.frame[f"injected_{meta['carrier']}_rate_per_s"].to_numpy(), wl)))
     return np.array(out)
 
 
