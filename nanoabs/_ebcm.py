@@ -154,6 +154,20 @@ def spherical_jn_all(n_max: int, z):
     return out
 
 
+def spherical_hn_all(n_max: int, z):
+    """h_n^(1)(z), n = 0..n_max, complex z, by upward recurrence (A&S 10.1.19; h_n grows with n,
+    so the recurrence is stable) from h_0 = −i e^{iz}/z and h_1 = −e^{iz}(z + i)/z² (A&S 10.1.11–12)."""
+    z = np.asarray(z, dtype=complex)
+    out = np.empty((n_max + 1,) + z.shape, dtype=complex)
+    e = np.exp(1j * z)
+    out[0] = -1j * e / z
+    if n_max >= 1:
+        out[1] = -e * (z + 1j) / z**2
+    for n in range(1, n_max):
+        out[n + 1] = (2 * n + 1) / z * out[n] - out[n - 1]
+    return out
+
+
 def spherical_yn_all(n_max: int, x):
     """y_n(x), n = 0..n_max, for real x > 0 by upward recurrence (A&S 10.1.19; stable for y_n)."""
     out = np.empty((n_max + 1,) + np.shape(x))
@@ -201,15 +215,21 @@ def wigner_d_all(n_max: int, m: int, theta):
 # --------------------------------------------------------------------------- #
 
 
-def radial(n_max: int, x, x1):
+def radial(n_max: int, x, x1, *, inner_outgoing: bool = False):
     """Radial factors on the surface, arrays (W, n_max+1, Q): j, h, ζ_j, ζ_h of x and j, ζ of x₁.
 
     ζ_n(z) = (z z_n(z))'/z = z_(n-1) − n z_n / z (A&S 10.1.22); order 0 rows are padding.
+    ``x`` may be complex (a core inside an absorbing coating): h_n then comes from
+    :func:`spherical_hn_all`.  With ``inner_outgoing`` the keys ``h1``, ``zh1`` also hold
+    h_n(x₁) and its ζ (the outgoing waves of a coated particle's shell, layered EBCM).
     """
     j = spherical_jn_all(n_max, x)
-    h = j + 1j * spherical_yn_all(n_max, x)
+    if np.iscomplexobj(x) and np.any(np.imag(x) != 0):
+        h = spherical_hn_all(n_max, x)
+    else:
+        h = j + 1j * spherical_yn_all(n_max, np.real(x))
     j1 = spherical_jn_all(n_max, x1)
-    n = np.arange(1, n_max + 1).reshape((-1,) + (1,) * x.ndim)
+    n = np.arange(1, n_max + 1).reshape((-1,) + (1,) * np.ndim(x))
 
     def zeta(f, arg):
         out = np.zeros_like(f)
@@ -217,7 +237,36 @@ def radial(n_max: int, x, x1):
         return out
 
     out = {"j": j, "h": h, "zj": zeta(j, x), "zh": zeta(h, x), "j1": j1, "z1": zeta(j1, x1)}
+    if inner_outgoing:
+        h1 = spherical_hn_all(n_max, x1)
+        out.update(h1=h1, zh1=zeta(h1, x1))
     return {key: v.transpose(1, 0, 2) for key, v in out.items()}
+
+
+def outgoing_inside(rad):
+    """``rad`` with the internal regular waves j_n(x₁) replaced by the outgoing h_n(x₁)."""
+    return dict(rad, j1=rad["h1"], z1=rad["zh1"])
+
+
+def coated_systems(outer_j, outer_h, T_core):
+    """Q and RgQ of a coated particle, per parity class (layered EBCM).
+
+    In the coating the field is Σ c RgΨ(k₁r) + d Ψ(k₁r) with d = T₁ c, T₁ the T
+    matrix of the core embedded in the coating material.  The null-field
+    equations on the outer surface then give a = (Q^{hj} + Q^{hh} T₁) c and
+    p = −(RgQ^{jj} + RgQ^{jh} T₁) c, so that T = −(RgQ^{jj} + RgQ^{jh} T₁)
+    (Q^{hj} + Q^{hh} T₁)⁻¹ (Peterson & Ström, Phys. Rev. D 10, 2670 (1974);
+    Mishchenko, Travis & Lacis 2002, §5.8, from memory).  ``outer_j``,
+    ``outer_h`` are :func:`q_systems` of the outer surface with regular and
+    outgoing internal waves (:func:`outgoing_inside`); ``T_core`` (W, 2K, 2K)
+    in block order.  The core and the coating share the mirror symmetry, so
+    T₁ keeps each parity class.
+    """
+    out = []
+    for (idx, qj), (_, qh) in zip(outer_j, outer_h):
+        t1 = T_core[:, idx[:, None], idx]
+        out.append((idx, qj + qh @ t1))
+    return out
 
 
 def q_systems(m: int, n_max: int, rad, x, x1, m_rel, rho, w_theta, theta):
@@ -278,25 +327,30 @@ def q_systems(m: int, n_max: int, rad, x, x1, m_rel, rho, w_theta, theta):
     return systems
 
 
-def solve_t(systems, K: int):
+def solve_t(systems, K: int, *, keep_inverse: bool = False):
     """T = −RgQ Q⁻¹ per parity class, by LU (LAPACK gesv) on equilibrated matrices.
 
     ``systems`` from :func:`q_systems`.  Row and column scalings of Q cancel in
     T exactly and keep the pivoting meaningful when h_n spans many decades.
-    Returns T (W, 2K, 2K) in block order.
+    Returns T (W, 2K, 2K) in block order; with ``keep_inverse`` also Q⁻¹ in
+    block order (rows: internal waves, columns: incident waves), from the same
+    equilibrated matrix, ``Q⁻¹ = C qs⁻¹ R`` (C, R the column and row scalings).
     """
-    T = None
+    T = Qi = None
     for idx, QQ in systems:
         q, rg = QQ[0], QQ[1]
         if T is None:
             T = np.zeros((q.shape[0], 2 * K, 2 * K), dtype=complex)
+            Qi = np.zeros_like(T) if keep_inverse else None
         col = 1.0 / np.max(np.abs(q), axis=1, keepdims=True)
         row = 1.0 / np.max(np.abs(q * col), axis=2, keepdims=True)
         qs = q * col * row
         # T = −(rg·col) (row·q·col)⁻¹ row  ->  Tᵀ = −row (qsᵀ)⁻¹ (rg·col)ᵀ
         tt = np.linalg.solve(qs.transpose(0, 2, 1), (rg * col).transpose(0, 2, 1))
         T[:, idx[:, None], idx] = -(tt * row).transpose(0, 2, 1)
-    return T
+        if keep_inverse:
+            Qi[:, idx[:, None], idx] = col.transpose(0, 2, 1) * np.linalg.inv(qs) * row.transpose(0, 2, 1)
+    return (T, Qi) if keep_inverse else T
 
 
 def check_shape_args(shape: str, dims) -> None:

@@ -128,6 +128,8 @@ class TMatrix:
     n_max: int
     blocks: list
     info: dict = field(default_factory=dict)
+    #: internal-field data of a homogeneous EBCM particle built with ``internal=True``, else None
+    internal: dict | None = None
 
     # ----------------------------------------------------------- constructors
     @classmethod
@@ -153,18 +155,19 @@ class TMatrix:
 
     @classmethod
     def axisymmetric(cls, shape: str, eps, eps_medium, length_nm, diameter_nm, wavelength_nm, *,
-                     tol: float = 1e-4, n_max: int | None = None, n_quad: int | None = None):
-        """EBCM T matrix of a spheroid, flat-ended cylinder or capped rod (axis z).
+                     tol: float = 1e-4, n_max: int | None = None, n_quad: int | None = None,
+                     coating=None, internal: bool = False):
+        """EBCM T matrix of a spheroid, flat-ended cylinder or capped rod (axis z), bare or coated.
 
         Parameters
         ----------
         shape : {"spheroid", "cylinder", "capped-rod", "rounded-disc"}
         eps : complex array_like, shape (W,)
-            Particle permittivity on the grid [1].
+            Particle (core) permittivity on the grid [1].
         eps_medium : float or array_like (W,)
             Real permittivity of the host [1].
         length_nm, diameter_nm : float
-            Extent along the axis (tip to tip) and across it [nm].
+            Extent of the particle (the core, if coated) along the axis (tip to tip) and across it [nm].
         wavelength_nm : array_like (W,)
             Vacuum wavelengths [nm].
         tol : float
@@ -173,6 +176,14 @@ class TMatrix:
         n_max, n_quad : int, optional
             Fix the multipole order and the Gauss points on [0, π/2] (no
             convergence loop; ``info["achieved_change"]`` is then None).
+        coating : (eps_shell, outer_length_nm, outer_diameter_nm), optional
+            A uniform coating of permittivity ``eps_shell`` [1] (scalar or (W,)) whose
+            outer surface is the same shape with the outer length and diameter [nm]
+            (each larger than the core's).  Layered EBCM (Peterson & Ström 1974):
+            :func:`nanoabs._ebcm.coated_systems`.
+        internal : bool
+            Keep the internal-field coefficients (homogeneous particles only), for
+            :meth:`internal_field` and :meth:`absorbed_power`.
 
         Notes
         -----
@@ -188,16 +199,30 @@ class TMatrix:
         check_positive("tol", tol)
         wl, eps, k = _prepare_optics(eps, eps_medium, wavelength_nm)
         m_rel = np.sqrt(eps) / (k * wl / (2 * np.pi))
+        coat, eps_all = None, [eps]
+        if coating is not None:
+            if internal:
+                raise NanoabsError("internal = True: the internal field is implemented for homogeneous "
+                                   "particles only (no coating)")
+            coat, eps_shell = _coating(coating, shape, L, D, wl, k)
+            eps_all.append(eps_shell)
         if n_max is None:
-            n_max, n_quad, info = _converge(shape, dims, k, m_rel, tol)
+            n_max, n_quad, info = _converge(shape, dims, k, m_rel, tol, coat)
         else:
             n_quad = int(n_quad or _quad_points(shape, n_max))
             info = {"achieved_change": None}
-        blocks = _compute(shape, dims, k, m_rel, n_max, n_quad, m_tol=0.01 * tol)
+        out = _compute(shape, dims, k, m_rel, n_max, n_quad, m_tol=0.01 * tol, coat=coat,
+                       keep_internal=internal)
+        blocks, inverse = out if internal else (out, None)
+        outer = dims if coat is None else coat[0]
         info.update(method="ebcm", shape=shape, n_max=n_max, n_quad=n_quad,
-                    x_max=float(np.max(k) * _r_max(shape, dims)))
+                    x_max=float(np.max(k) * _r_max(shape, outer)))
+        if coat is not None:
+            info.update(coated=True, outer_length_nm=2 * outer[0], outer_diameter_nm=2 * outer[1])
         tm = cls(wl, k, n_max, blocks, info)
-        _check_passive(tm, eps, shape, L, D)
+        if internal:
+            tm.internal = {"blocks": inverse, "m_rel": m_rel, "shape": shape, "dims": dims}
+        _check_passive(tm, eps_all, shape, L, D)
         return tm
 
     # ------------------------------------------------------- cross-sections
@@ -298,36 +323,72 @@ def _r_max(shape, dims):
     return float(np.hypot(c, R)) if shape == "cylinder" else max(c, R)
 
 
-def _compute(shape, dims, k, m_rel, n_max, n_quad, *, m_tol=0.0):
+def _compute(shape, dims, k, m_rel, n_max, n_quad, *, m_tol=0.0, coat=None, keep_internal=False):
     """The blocks m = 0..n_max on the whole grid, in chunks of wavelengths.
 
     With ``m_tol`` > 0, the loop over m stops once two successive orders each
     add less than ``m_tol`` (relative) to the orientation-averaged C_ext and
     C_sca at every wavelength of the chunk; the higher blocks are set to zero
     (Mishchenko et al. 2002, §5.11 do the same over m, from memory).
+
+    ``coat`` = (outer dims, m_shell (W,)): a coating of relative index m_shell
+    whose outer surface is the same shape with the outer dims; ``m_rel`` is then
+    the core's index relative to the host, and the core's T matrix is computed
+    inside the coating material (complex wavenumber) and combined by
+    :func:`nanoabs._ebcm.coated_systems`.  With ``keep_internal`` (homogeneous
+    only) the blocks of Q⁻¹ are returned as well (internal field coefficients).
     """
     theta, w = _ebcm.quadrature(shape, dims, n_quad)
     r, rho = _ebcm.surface(shape, dims, theta)
-    step = max(1, _CHUNK_ELEMENTS // ((n_max + 2) * n_quad))
+    if coat is not None:
+        theta_o, w_o = _ebcm.quadrature(shape, coat[0], n_quad)
+        r_o, rho_o = _ebcm.surface(shape, coat[0], theta_o)
+    n_pts = n_quad if coat is None else 2 * n_quad
+    step = max(1, _CHUNK_ELEMENTS // ((n_max + 2) * n_pts))
     blocks = [[] for _ in range(n_max + 1)]
+    inverse = [[] for _ in range(n_max + 1)]
     for s in range(0, k.size, step):
         sl = slice(s, s + step)
-        x = k[sl, None] * r[None, :]
-        x1 = m_rel[sl, None] * x
-        rad = _ebcm.radial(n_max, x, x1)
+        W = k[sl].size
+        if coat is None:
+            x = k[sl, None] * r[None, :]
+            x1 = m_rel[sl, None] * x
+            rad = _ebcm.radial(n_max, x, x1)
+        else:
+            m_sh = coat[1][sl]
+            xc = (m_sh * k[sl])[:, None] * r[None, :]  # core surface, wavenumber of the coating
+            m_core = m_rel[sl] / m_sh
+            xc1 = m_core[:, None] * xc
+            rad_c = _ebcm.radial(n_max, xc, xc1)
+            xo = k[sl, None] * r_o[None, :]
+            xo1 = m_sh[:, None] * xo
+            rad_o = _ebcm.radial(n_max, xo, xo1, inner_outgoing=True)
+            rad_oh = _ebcm.outgoing_inside(rad_o)
         total, small = 0.0, 0
         for m in range(n_max + 1):
             K = n_max - max(m, 1) + 1
             if small >= 2:
-                blocks[m].append(np.zeros((x.shape[0], 2 * K, 2 * K), dtype=complex))
+                blocks[m].append(np.zeros((W, 2 * K, 2 * K), dtype=complex))
+                inverse[m].append(np.zeros((W, 2 * K, 2 * K), dtype=complex))
                 continue
-            systems = _ebcm.q_systems(m, n_max, rad, x, x1, m_rel[sl], rho, w, theta)
-            T = _ebcm.solve_t(systems, K)
+            if coat is None:
+                systems = _ebcm.q_systems(m, n_max, rad, x, x1, m_rel[sl], rho, w, theta)
+            else:
+                T1 = _ebcm.solve_t(_ebcm.q_systems(m, n_max, rad_c, xc, xc1, m_core, rho, w, theta), K)
+                systems = _ebcm.coated_systems(
+                    _ebcm.q_systems(m, n_max, rad_o, xo, xo1, m_sh, rho_o, w_o, theta_o),
+                    _ebcm.q_systems(m, n_max, rad_oh, xo, xo1, m_sh, rho_o, w_o, theta_o), T1)
+            if keep_internal:
+                T, Qi = _ebcm.solve_t(systems, K, keep_inverse=True)
+                inverse[m].append(Qi)
+            else:
+                T = _ebcm.solve_t(systems, K)
             blocks[m].append(T)
             part = np.abs(np.trace(T, axis1=1, axis2=2).real) + np.sum(np.abs(T) ** 2, axis=(1, 2))
             total = total + part
             small = small + 1 if m > 0 and np.all(part < m_tol * total) else 0
-    return [np.concatenate(b) for b in blocks]
+    out = [np.concatenate(b) for b in blocks]
+    return (out, [np.concatenate(b) for b in inverse]) if keep_internal else out
 
 
 def _average(blocks, k):
@@ -354,7 +415,7 @@ def _quad_points(shape, n):
     return (2 if shape == "spheroid" else 4) * n + 8
 
 
-def _converge(shape, dims, k, m_rel, tol):
+def _converge(shape, dims, k, m_rel, tol, coat=None):
     """Find (n_max, n_quad) on a sample of wavelengths (module docstring); raise if none.
 
     Converged means that the step n -> n + 2 changes the averaged C_ext and
@@ -365,14 +426,17 @@ def _converge(shape, dims, k, m_rel, tol):
     """
     s = _sample(k, m_rel)
     ks, ms = k[s], m_rel[s]
-    x_max = float(np.max(ks)) * _r_max(shape, dims)
+    coat_s = None if coat is None else (coat[0], coat[1][s])
+    outer = dims if coat is None else coat[0]
+    x_max = float(np.max(ks)) * _r_max(shape, outer)
     n = max(3, int(np.ceil(x_max + 4.0 * x_max ** (1 / 3) + 2)))
-    label = f"{shape} {2 * dims[0]:g} x {2 * dims[1]:g} nm"
-    floor = 1e-12 * _r_max(shape, dims) ** 2
+    label = f"{shape} {2 * dims[0]:g} x {2 * dims[1]:g} nm" + (
+        "" if coat is None else f" coated to {2 * outer[0]:g} x {2 * outer[1]:g} nm")
+    floor = 1e-12 * _r_max(shape, outer) ** 2
     hint = "allowed: aspect ratio, size and |m| within the validated range (notes/tmatrix.md) or a larger tol"
 
     def average(n_, n_quad_):
-        return _average(_compute(shape, dims, ks, ms, n_, n_quad_, m_tol=0.01 * tol), ks)
+        return _average(_compute(shape, dims, ks, ms, n_, n_quad_, m_tol=0.01 * tol, coat=coat_s), ks)
 
     cur = average(n, _quad_points(shape, n))
     history = []
@@ -411,10 +475,10 @@ def _change(a, b, floor):
     return float(max(rel(a[2], b[2]), rel(a[1], b[1])))
 
 
-def _check_passive(tm, eps, shape, L, D):
+def _check_passive(tm, eps_all, shape, L, D):
     """Raise if a passive particle shows negative absorption beyond rounding (a wrong number)."""
     c_abs, c_sca, c_ext = tm.orientation_average()
-    lossy = eps.imag > 0
+    lossy = np.any([e.imag > 0 for e in eps_all], axis=0)
     tol = max(10 * (tm.info.get("achieved_change") or 1e-6), 1e-8)
     bad = (c_sca < 0) | (lossy & (c_abs < -tol * c_ext)) | ~np.isfinite(c_ext)
     if np.any(bad):
@@ -423,6 +487,21 @@ def _check_passive(tm, eps, shape, L, D):
             f"{shape} {L:g} x {D:g} nm at {tm.wavelength_nm[i]:g} nm: T-matrix result is not passive "
             "(C_abs < 0), the EBCM system is too ill-conditioned here; allowed: aspect ratio and size "
             "within the validated range (notes/tmatrix.md)")
+
+
+def _coating(coating, shape, L, D, wl, k):
+    """(coat = (outer dims, m_shell (W,)), eps_shell (W,)) from a user's ``coating`` triple."""
+    if isinstance(coating, (str, bytes, dict)) or not hasattr(coating, "__len__") or len(coating) != 3:
+        raise NanoabsError(f"coating = {coating!r}: give (eps_shell, outer_length_nm, outer_diameter_nm)")
+    eps_shell, Lo, Do = coating
+    Lo = float(check_positive("outer length", Lo, unit="nm"))
+    Do = float(check_positive("outer diameter", Do, unit="nm"))
+    if Lo <= L or Do <= D:
+        raise NanoabsError(f"coating outer size = {Lo:g} x {Do:g} nm: must exceed the core's {L:g} x {D:g} nm "
+                           "in both length and diameter")
+    _ebcm.check_shape_args(shape, (Lo / 2, Do / 2))
+    _, eps_shell, _ = _prepare_optics(eps_shell, (k * wl / (2 * np.pi)) ** 2, wl)
+    return ((Lo / 2, Do / 2), np.sqrt(eps_shell) / (k * wl / (2 * np.pi))), eps_shell
 
 
 def _rotation(n_max, alpha, beta, gamma):
