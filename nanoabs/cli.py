@@ -226,17 +226,17 @@ def _build_particle(args):
     shell = None
     if args.shell:
         if len(args.shell) != 1 or not args.thickness or len(args.thickness) != 1:
-            raise NanoabsError("a coated ellipsoid takes exactly one --shell and one --thickness")
+            raise NanoabsError(f"a coated {shape} takes exactly one --shell and one --thickness")
         shell = (_material_arg(args.shell[0], "--shell"), args.thickness[0])
     if shape == "spheroid":
         if args.length is None or args.diameter is None:
             raise NanoabsError("--length and --diameter [nm] are required for --shape spheroid")
         return spheroid(_material_arg(args.material, "--material"), args.length, args.diameter, shell=shell)
     if shape in ("cylinder", "capped-rod", "rounded-disc"):
-        if args.length is None or args.diameter is None or shell is not None:
-            raise NanoabsError(f"--shape {shape} needs --length and --diameter [nm] (no --shell)")
+        if args.length is None or args.diameter is None:
+            raise NanoabsError(f"--length and --diameter [nm] are required for --shape {shape}")
         kind = {"cylinder": Cylinder, "capped-rod": CappedRod, "rounded-disc": RoundedDisc}[shape]
-        return kind(_material_arg(args.material, "--material"), args.length, args.diameter)
+        return kind(_material_arg(args.material, "--material"), args.length, args.diameter, shell=shell)
     if shape == "ellipsoid":
         if args.semi_axes is None:
             raise NanoabsError("--semi-axes A,B,C [nm] is required for --shape ellipsoid")
@@ -500,7 +500,9 @@ def _add_particle_options(p):
     g.add_argument("--radius", type=float, help="sphere radius [nm]")
     g.add_argument("--core", help="shell: core material (default --material)")
     g.add_argument("--core-radius", type=float, help="shell: core radius [nm]")
-    g.add_argument("--shell", action="append", help="shell material (repeat for more shells, core outward)")
+    g.add_argument("--shell", action="append", help="shell material (repeat for more shells, core outward); "
+                   "spheroid, ellipsoid: one confocal coating; cylinder, capped-rod, rounded-disc: one uniform "
+                   "coating")
     g.add_argument("--thickness", type=float, action="append", help="shell thickness [nm] (one per --shell)")
     g.add_argument("--length", type=float, help="spheroid, cylinder, capped-rod, rounded-disc: extent along "
                    "the symmetry axis (tip to tip) [nm]")

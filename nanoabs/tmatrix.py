@@ -434,6 +434,9 @@ def _converge(shape, dims, k, m_rel, tol, coat=None):
         "" if coat is None else f" coated to {2 * outer[0]:g} x {2 * outer[1]:g} nm")
     floor = 1e-12 * _r_max(shape, outer) ** 2
     hint = "allowed: aspect ratio, size and |m| within the validated range (notes/tmatrix.md) or a larger tol"
+    if coat is not None:
+        hint += ("; a coated body converges only while it is nearly round (aspect ratio up to about 1.5-2, "
+                 "notes/tmatrix.md)")
 
     def average(n_, n_quad_):
         return _average(_compute(shape, dims, ks, ms, n_, n_quad_, m_tol=0.01 * tol, coat=coat_s), ks)
@@ -598,15 +601,16 @@ def _report(tm):
 class TMatrixSolver(Solver):
     """Solver-table entry ``"tmatrix"`` (see :mod:`nanoabs.solvers`): EBCM T matrix of a body of revolution.
 
-    Accepts homogeneous spheroids (ellipsoids with two equal semi-axes),
-    :class:`~nanoabs.particles.Cylinder` and :class:`~nanoabs.particles.CappedRod`
-    in a homogeneous host; a family of sizes is solved one size at a time.
+    Accepts spheroids (ellipsoids with two equal semi-axes, bare or with their confocal
+    shell), :class:`~nanoabs.particles.Cylinder`, :class:`~nanoabs.particles.CappedRod`
+    and :class:`~nanoabs.particles.RoundedDisc` (bare or with a uniform coating) in a
+    homogeneous host; a family of sizes is solved one size at a time.
     """
 
     name = "tmatrix"
     reference = ("T-matrix, extended boundary condition method: Waterman, Proc. IEEE 53, 805 (1965); "
-                 "Barber & Yeh, Appl. Opt. 14, 2864 (1975); orientation average: Mishchenko, "
-                 "J. Opt. Soc. Am. A 8, 871 (1991)")
+                 "Barber & Yeh, Appl. Opt. 14, 2864 (1975); coated particles: Peterson & Strom, Phys. Rev. D "
+                 "10, 2670 (1974); orientation average: Mishchenko, J. Opt. Soc. Am. A 8, 871 (1991)")
     shapes = frozenset({"ellipsoid", "cylinder", "capped-rod", "rounded-disc"})
     #: Convergence tolerance per shape: the EBCM series of bodies with edges converges
     #: slowly and oscillates (notes/tmatrix.md), so they get a looser one and a caution.
@@ -616,8 +620,8 @@ class TMatrixSolver(Solver):
         reason = super().accepts(particle)
         if reason is not None:
             return reason
-        if len(particle.layer_materials()) > 1:
-            return "it treats homogeneous particles only (no shell)"
+        if len(particle.layer_materials()) > 2:
+            return "it treats a core with at most one coating"
         if particle.shape == "ellipsoid" and _symmetry_axis(particle.semi_axes_nm) is None:
             return "it treats spheroids (two equal semi-axes) only"
         return None
@@ -625,31 +629,36 @@ class TMatrixSolver(Solver):
     def solve(self, problem) -> Response:
         p = problem.particle
         if p.shape == "ellipsoid":
-            axes = [np.asarray(a, dtype=float) for a in p.semi_axes_nm]
             axis = _symmetry_axis(p.semi_axes_nm)
-            L, D = 2 * axes[axis], 2 * axes[(axis + 1) % 3]
+            sizes = []
+            for axes in (p.semi_axes_nm, p.outer_semi_axes_nm()):
+                axes = [np.asarray(a, dtype=float) for a in axes]
+                sizes += [2 * axes[axis], 2 * axes[(axis + 1) % 3]]
             shape = "spheroid"
         else:
             axis = 0 if p.kind == "rod" else 2
-            L, D, shape = np.asarray(p.length_nm, dtype=float), np.asarray(p.diameter_nm, dtype=float), p.shape
+            sizes = [np.asarray(v, dtype=float) for v in
+                     (p.length_nm, p.diameter_nm, p.outer_length_nm, p.outer_diameter_nm)]
+            shape = p.shape
+        coated = len(problem.eps_layers) > 1
         W = problem.wavelength_nm.size
-        grid = np.broadcast_shapes(np.shape(L), np.shape(D))
+        grid = np.broadcast_shapes(*(np.shape(v) for v in sizes))
         grid = grid[:-1] if grid and grid[-1] == 1 else grid  # sizes of shape (..., 1) against W
-        eps = np.broadcast_to(problem.eps_layers[0], grid + (W,))
+        eps = [np.broadcast_to(e, grid + (W,)) for e in problem.eps_layers]
         out = np.zeros((3,) + grid + (W,))
         reports = []
         for idx in np.ndindex(*grid):
-            Li, Di = (float(np.broadcast_to(v, grid + (1,) * (len(grid) < np.ndim(v)))[idx].ravel()[0])
-                      for v in (L, D))
-            tm = TMatrix.axisymmetric(shape, eps[idx], problem.eps_medium, Li, Di, problem.wavelength_nm,
-                                      tol=self.tol[shape])
+            L, D, Lo, Do = (float(np.broadcast_to(v, grid + (1,) * (len(grid) < np.ndim(v)))[idx].ravel()[0])
+                            for v in sizes)
+            coating = (eps[1][idx], Lo, Do) if coated else None
+            tm = TMatrix.axisymmetric(shape, eps[0][idx], problem.eps_medium, L, D, problem.wavelength_nm,
+                                      tol=self.tol[shape], coating=coating)
             out[(slice(None),) + idx] = _sections(tm, axis, problem.polarization)
             reports.append(_report(tm))
         meta = {"tmatrix": reports[0] if len(reports) == 1 else {
             "n_max": max(r["n_max"] for r in reports),
             "achieved_change": max(r["achieved_change"] for r in reports)}}
         return Response(out[0], out[1], out[2], backend="numpy (EBCM)", metadata=meta)
-
 
     def validity(self, problem) -> list:
         """A caution for cylinders and capped rods: their series is converged to 2e-2 only."""
