@@ -575,12 +575,14 @@ def _register_particle_commands(sub):
     d.add_argument("--plot", help="save responsivity and D* vs wavelength with the cut-off (.png or .svg)")
     h.set_defaults(func=_cmd_hot_carriers)
 
-    x = sub.add_parser("export-generation", help="carrier generation rate G(r) inside a sphere, for a "
-                                                 "device simulator")
+    x = sub.add_parser("export-generation", help="carrier generation rate G(r) inside a sphere, or inside a "
+                                                 "cylinder, capped rod, rounded disc or spheroid (method tmatrix) "
+                                                 "in a homogeneous host, for a device simulator")
     _add_particle_options(x)
     x.add_argument("--irradiance", required=True,
                    help="incident irradiance: W/m^2, or with a unit (1mW/cm2, 10W/m2)")
-    x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50)")
+    x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50); bodies of "
+                   "revolution: bins in polar angle and in fractional radius (at most 200)")
     x.set_defaults(func=_cmd_export_generation)
 
 
@@ -604,13 +606,16 @@ def _cmd_export_generation(args) -> int:
     _, spec = _spectrum_from_args(args, particle)
     _print_warnings(spec.metadata)
     frame = generation_profile(spec, particle, irradiance, n_points=args.points)
+    sphere = particle.shape in ("sphere", "layered sphere")
     meta = {"what": "carrier generation rate inside the particle (one electron-hole pair per absorbed "
-                    "photon), angle-averaged internal field",
+                    "photon), " + ("angle-averaged internal field" if sphere else
+                                   "T-matrix internal field averaged over ring-shaped cells about the "
+                                   "symmetry axis (z_nm along it, rho_nm from it)"),
             "irradiance_W_m2": irradiance, "spectrum": spec.metadata,
             "absorbed_photon_rate_per_s": absorbed_photon_rate(spec, irradiance).tolist()}
     write_export(frame, args.output, metadata=meta, units=GENERATION_UNITS, force=args.force)
     print(f"wrote {args.output}: G(r) at {len(spec.wavelength_nm)} wavelength(s), "
-          f"{len(frame) // len(spec.wavelength_nm)} radii; peak G {frame['generation_rate_cm3_s'].max():.3g} "
+          f"{len(frame) // len(spec.wavelength_nm)} {'radii' if sphere else 'cells'}; peak G {frame['generation_rate_cm3_s'].max():.3g} "
           "cm^-3 s^-1")
     return 0
 
