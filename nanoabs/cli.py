@@ -811,7 +811,8 @@ def _register_design_commands(sub):
     q.add_argument("--band", action="append", help="band edges LO:HI [nm]; repeat for several bands")
     q.add_argument("--center", type=float, help="band centre [nm] (with --width)")
     q.add_argument("--width", type=float, help="band width [nm]")
-    q.add_argument("--families", default="sphere,shell,rod", help="comma list: sphere, shell, rod, disc")
+    q.add_argument("--families", default="sphere,shell,rod", help="comma list: sphere, shell, rod, disc, cylinder, "
+                   "capped-rod (the last two: coarse stage on the equal-volume spheroid, recheck by T-matrix)")
     q.add_argument("--objective", default="sigma_abs",
                    help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection | selectivity")
     q.add_argument("--combine", default="worst", help="several bands: worst | mean (default worst)")

@@ -381,9 +381,9 @@ class TMatrix:
     def absorption_density(self, points_nm, theta_inc: float | None = None, psi: float = 0.0):
         """Absorbed power per volume per incident irradiance, q = k Im(m²)|E/E0|² [1/nm], (W, N).
 
-        The absorbed power density is p = I₀ q (Bohren & Huffman 1983, eq. 2.xx: the power
+        The absorbed power density is p = I₀ q (Bohren & Huffman 1983, sec. 2.8, from memory: the power
         absorbed per volume is ½ ω ε₀ ε″ |E|², and I₀ = ½ c ε₀ n_host |E0|², so q = k_vac ε″
-        |E/E0|²/n_host = k Im(m²)|E/E0|² with k the host wavenumber; from memory).  ``theta_inc``
+        |E/E0|²/n_host = k Im(m²)|E/E0|² with k the host wavenumber).  ``theta_inc``
         None gives the average over orientations and polarisations, ⟨a a†⟩ = 2π·1 for the
         normalised VSWFs (the same average as the trace formula of :meth:`orientation_average`).
         Its volume integral is C_abs (:meth:`absorbed_cross_section`).
