@@ -61,11 +61,14 @@ from . import _ebcm
 from ._errors import NanoabsError, check_choice, check_positive
 from .solvers import Response, Solver
 
-__all__ = ["TMatrix", "SHAPES", "N_MAX_LIMIT", "absorption_cells", "cross_sections_nm2", "plane_wave"]
+__all__ = ["TMatrix", "SHAPES", "N_MAX_LIMIT", "COATED_MAX_ASPECT", "absorption_cells", "cross_sections_nm2", "plane_wave"]
 
 SHAPES = ("spheroid", "cylinder", "capped-rod", "rounded-disc")
 #: Largest multipole order tried before a case is declared non-convergent.
 N_MAX_LIMIT = 32
+#: Largest aspect ratio (long / short extent of the core and of the coating) of a coated body the
+#: solver accepts: the layered EBCM series converges for nearly round bodies only (notes/tmatrix.md).
+COATED_MAX_ASPECT = 2.0
 #: Relative change between successive orders above which the oscillating series of a body
 #: with edges is taken to have lost precision (its slow convergence stays below ~6e-2).
 _EDGED_BLOWUP = 0.2
@@ -308,8 +311,20 @@ class TMatrix:
         k₁ = m_rel k), ``(c, d) = (i/4π) Q⁻¹ a``: the null-field equations a = Q (c, d) up to
         the factor dropped in :mod:`nanoabs._ebcm`, which the sphere fixes (Bohren & Huffman
         1983, eq. 4.52: c_n = i/(x² (ζ_h j₁ − m h ζ₁)) against the code's Q^{11} = x² (ζ_h j₁
-        − m h ζ₁)/4π; the tests check every order and m against Mie to 1e-8).  Negative m by
+        − m h ζ₁)/4π; the tests check the field against Mie to 1e-8).  Negative m by
         the symmetry of T (module docstring).  Needs ``internal=True`` at construction.
+
+        Parameters
+        ----------
+        theta_inc : float
+            Angle between the propagation direction and the symmetry axis [rad].
+        psi : float
+            Polarisation angle [rad] (as in :meth:`cross_sections`).
+
+        Returns
+        -------
+        dict
+            m -> (W, 2K) complex coefficients in block order (c for p = 1, then d for p = 2).
         """
         if self.internal is None:
             raise NanoabsError("internal field: build the TMatrix with internal=True (homogeneous EBCM particles)")
@@ -367,6 +382,20 @@ class TMatrix:
         :meth:`internal_coefficients`) converges inside the particle for the nearly round and
         moderately elongated bodies of the validated range; the tests hold its volume integral
         to C_abs = C_ext − C_sca.
+
+        Parameters
+        ----------
+        points_nm : array_like (N, 3)
+            Points inside the particle, particle frame (symmetry axis z) [nm].
+        theta_inc : float
+            Angle between the propagation direction and the symmetry axis [rad].
+        psi : float
+            Polarisation angle [rad].
+
+        Returns
+        -------
+        ndarray (W, N, 3) complex
+            E/E0 (Cartesian x, y, z) [1].
         """
         pts = np.atleast_2d(np.asarray(points_nm, dtype=float))
         x, y, zc = pts[:, 0], pts[:, 1], pts[:, 2]
@@ -390,6 +419,21 @@ class TMatrix:
         None gives the average over orientations and polarisations, ⟨a a†⟩ = 2π·1 for the
         normalised VSWFs (the same average as the trace formula of :meth:`orientation_average`).
         Its volume integral is C_abs (:meth:`absorbed_cross_section`).
+
+        Parameters
+        ----------
+        points_nm : array_like (N, 3)
+            Points inside the particle, particle frame (symmetry axis z) [nm].
+        theta_inc : float or None
+            Angle between the propagation direction and the symmetry axis [rad]; None:
+            orientation average.
+        psi : float
+            Polarisation angle [rad].
+
+        Returns
+        -------
+        ndarray (W, N)
+            q [1/nm]; multiply by I₀ [W m⁻²] and 1e9 for W m⁻³.
         """
         pts = np.atleast_2d(np.asarray(points_nm, dtype=float))
         if theta_inc is not None:
@@ -426,6 +470,21 @@ class TMatrix:
         Gauss–Legendre in θ on [0, π] (split at the corners of the shape), in r on [0, r(θ)]
         with ``n_points`` nodes each; the φ integral is exact, ∫|Σ_m E_m e^{imφ}|² dφ = 2π Σ_m
         |E_m|².  An independent path to C_ext − C_sca (the tests compare the two).
+
+        Parameters
+        ----------
+        theta_inc : float or None
+            Angle between the propagation direction and the symmetry axis [rad]; None:
+            orientation average.
+        psi : float
+            Polarisation angle [rad].
+        n_points : int
+            Gauss points in r and (per half) in θ [1].
+
+        Returns
+        -------
+        ndarray (W,)
+            C_abs [nm²].
         """
         shape, dims = self.internal["shape"], self.internal["dims"]
         t, wt = _ebcm.quadrature(shape, dims, 2 * n_points)
@@ -838,6 +897,16 @@ class TMatrixSolver(Solver):
             return "it treats a core with at most one coating"
         if particle.shape == "ellipsoid" and _symmetry_axis(particle.semi_axes_nm) is None:
             return "it treats spheroids (two equal semi-axes) only"
+        if len(particle.layer_materials()) == 2:
+            core = (particle.semi_axes_nm if particle.shape == "ellipsoid"
+                    else (particle.length_nm / 2, particle.diameter_nm / 2))
+            ar = 0.0
+            for sizes in (particle.outer_semi_axes_nm(), core):
+                arr = np.stack(np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in sizes)))
+                ar = max(ar, float(np.max(arr.max(axis=0) / arr.min(axis=0))))
+            if ar > COATED_MAX_ASPECT:
+                return (f"it treats coated bodies up to aspect ratio {COATED_MAX_ASPECT:g} (this one: {ar:.3g}; "
+                        "the layered series diverges beyond)")
         return None
 
     def solve(self, problem) -> Response:
