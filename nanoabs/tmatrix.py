@@ -411,11 +411,11 @@ class TMatrix:
         return sph[..., :1] * rh + sph[..., 1:2] * thh + sph[..., 2:3] * phh
 
     def absorption_density(self, points_nm, theta_inc: float | None = None, psi: float = 0.0):
-        """Absorbed power per volume per incident irradiance, q = k Im(m²)|E/E0|² [1/nm], (W, N).
+        """Absorbed power per volume per incident irradiance, ``q = k Im(m²) |E/E0|²`` [1/nm], (W, N).
 
         The absorbed power density is p = I₀ q (Bohren & Huffman 1983, sec. 2.8, from memory: the power
-        absorbed per volume is ½ ω ε₀ ε″ |E|², and I₀ = ½ c ε₀ n_host |E0|², so q = k_vac ε″
-        |E/E0|²/n_host = k Im(m²)|E/E0|² with k the host wavenumber).  ``theta_inc``
+        absorbed per volume is ``½ ω ε₀ ε″ |E|²``, and ``I₀ = ½ c ε₀ n_host |E0|²``, so
+        ``q = k_vac ε″ |E/E0|² / n_host = k Im(m²) |E/E0|²`` with k the host wavenumber).  ``theta_inc``
         None gives the average over orientations and polarisations, ⟨a a†⟩ = 2π·1 for the
         normalised VSWFs (the same average as the trace formula of :meth:`orientation_average`).
         Its volume integral is C_abs (:meth:`absorbed_cross_section`).
@@ -468,8 +468,8 @@ class TMatrix:
         """C_abs [nm²] (W,) as the volume integral of :meth:`absorption_density` over the particle.
 
         Gauss–Legendre in θ on [0, π] (split at the corners of the shape), in r on [0, r(θ)]
-        with ``n_points`` nodes each; the φ integral is exact, ∫|Σ_m E_m e^{imφ}|² dφ = 2π Σ_m
-        |E_m|².  An independent path to C_ext − C_sca (the tests compare the two).
+        with ``n_points`` nodes each; the φ integral is exact, ``∫ |Σ_m E_m e^{imφ}|² dφ = 2π Σ_m
+        |E_m|²``.  An independent path to C_ext − C_sca (the tests compare the two).
 
         Parameters
         ----------
