@@ -162,7 +162,7 @@ class TMatrix:
     @classmethod
     def axisymmetric(cls, shape: str, eps, eps_medium, length_nm, diameter_nm, wavelength_nm, *,
                      tol: float = 1e-4, n_max: int | None = None, n_quad: int | None = None,
-                     coating=None, internal: bool = False):
+                     coating=None, internal: bool = False, extended: bool | None = None):
         """EBCM T matrix of a spheroid, flat-ended cylinder or capped rod (axis z), bare or coated.
 
         Parameters
@@ -189,7 +189,12 @@ class TMatrix:
             :func:`nanoabs._ebcm.coated_systems`.
         internal : bool
             Keep the internal-field coefficients (homogeneous particles only), for
-            :meth:`internal_field` and :meth:`absorbed_power`.
+            :meth:`internal_field` and :meth:`absorbed_cross_section`.
+        extended : bool or None
+            Sum the Q integrals in extended precision (``numpy.longdouble``, about three more
+            digits; several times slower).  None (default): double precision, and extended
+            precision when the convergence loop fails or the result is not passive in double
+            (``info["precision"]`` says which ran).
 
         Notes
         -----
@@ -213,23 +218,33 @@ class TMatrix:
             coat, eps_shell = _coating(coating, shape, L, D, wl, k)
             eps_all.append(eps_shell)
         if n_max is None:
-            n_max, n_quad, info = _converge(shape, dims, k, m_rel, tol, coat)
+            n_max, n_quad, info = _converge(shape, dims, k, m_rel, tol, coat, extended)
         else:
             n_quad = int(n_quad or _quad_points(shape, n_max))
-            info = {"achieved_change": None}
-        out = _compute(shape, dims, k, m_rel, n_max, n_quad, m_tol=0.01 * tol, coat=coat,
-                       keep_internal=internal)
-        blocks, inverse = out if internal else (out, None)
+            info = {"achieved_change": None, "precision": "extended" if extended else "double"}
         outer = dims if coat is None else coat[0]
         info.update(method="ebcm", shape=shape, n_max=n_max, n_quad=n_quad,
                     x_max=float(np.max(k) * _r_max(shape, outer)))
         if coat is not None:
             info.update(coated=True, outer_length_nm=2 * outer[0], outer_diameter_nm=2 * outer[1])
-        tm = cls(wl, k, n_max, blocks, info)
-        if internal:
-            tm.internal = {"blocks": inverse, "m_rel": m_rel, "shape": shape, "dims": dims}
-        _check_passive(tm, eps_all, shape, L, D)
-        return tm
+
+        def build(ext):
+            out = _compute(shape, dims, k, m_rel, n_max, n_quad, m_tol=0.01 * tol, coat=coat,
+                           keep_internal=internal, extended=ext)
+            blocks, inverse = out if internal else (out, None)
+            tm = cls(wl, k, n_max, blocks, dict(info, precision="extended" if ext else "double"))
+            if internal:
+                tm.internal = {"blocks": inverse, "m_rel": m_rel, "shape": shape, "dims": dims}
+            _check_passive(tm, eps_all, shape, L, D)
+            return tm
+
+        ext = info["precision"] == "extended"
+        if ext or extended is not None:
+            return build(ext)
+        try:
+            return build(False)
+        except NanoabsError:  # not passive in double: the same orders summed in extended precision
+            return build(True)
 
     # ------------------------------------------------------- cross-sections
     def block(self, m: int) -> np.ndarray:
@@ -593,7 +608,8 @@ def _r_max(shape, dims):
     return float(np.hypot(c, R)) if shape == "cylinder" else max(c, R)
 
 
-def _compute(shape, dims, k, m_rel, n_max, n_quad, *, m_tol=0.0, coat=None, keep_internal=False):
+def _compute(shape, dims, k, m_rel, n_max, n_quad, *, m_tol=0.0, coat=None, keep_internal=False,
+             extended=False):
     """The blocks m = 0..n_max on the whole grid, in chunks of wavelengths.
 
     With ``m_tol`` > 0, the loop over m stops once two successive orders each
@@ -606,12 +622,15 @@ def _compute(shape, dims, k, m_rel, n_max, n_quad, *, m_tol=0.0, coat=None, keep
     the core's index relative to the host, and the core's T matrix is computed
     inside the coating material (complex wavenumber) and combined by
     :func:`nanoabs._ebcm.coated_systems`.  With ``keep_internal`` (homogeneous
-    only) the blocks of Q⁻¹ are returned as well (internal field coefficients).
+    only) the blocks of Q⁻¹ are returned as well (internal field coefficients).  With
+    ``extended`` the quadrature, the surface, the Bessel and Wigner functions and the Q sums
+    are in ``numpy.longdouble``; Q is rounded to double for the LU solve (the precision of
+    the EBCM is lost in the cancelling Q integrals, not in the solve: notes/tmatrix.md).
     """
-    theta, w = _ebcm.quadrature(shape, dims, n_quad)
+    theta, w = _ebcm.quadrature(shape, dims, n_quad, extended=extended)
     r, rho = _ebcm.surface(shape, dims, theta)
     if coat is not None:
-        theta_o, w_o = _ebcm.quadrature(shape, coat[0], n_quad)
+        theta_o, w_o = _ebcm.quadrature(shape, coat[0], n_quad, extended=extended)
         r_o, rho_o = _ebcm.surface(shape, coat[0], theta_o)
     n_pts = n_quad if coat is None else 2 * n_quad
     step = max(1, _CHUNK_ELEMENTS // ((n_max + 2) * n_pts))
@@ -685,7 +704,27 @@ def _quad_points(shape, n):
     return (2 if shape == "spheroid" else 4) * n + 8
 
 
-def _converge(shape, dims, k, m_rel, tol, coat=None):
+def _converge(shape, dims, k, m_rel, tol, coat=None, extended=None):
+    """(n_max, n_quad, info) by :func:`_converge_at`, in double precision first; if that fails
+    (blow-up, order limit, quadrature check), once more with the Q integrals summed in extended
+    precision (``info["precision"]`` says which).  ``extended`` True/False forces one."""
+    if extended is not None:
+        out = _converge_at(shape, dims, k, m_rel, tol, coat, extended)
+        out[2]["precision"] = "extended" if extended else "double"
+        return out
+    try:
+        out = _converge_at(shape, dims, k, m_rel, tol, coat, False)
+        out[2]["precision"] = "double"
+    except NanoabsError as first:
+        try:
+            out = _converge_at(shape, dims, k, m_rel, tol, coat, True)
+        except NanoabsError as second:
+            raise NanoabsError(f"{second} (also in extended precision)") from first
+        out[2]["precision"] = "extended"
+    return out
+
+
+def _converge_at(shape, dims, k, m_rel, tol, coat, extended):
     """Find (n_max, n_quad) on a sample of wavelengths (module docstring); raise if none.
 
     Converged means that the step n -> n + 2 changes the averaged C_ext and
@@ -709,7 +748,8 @@ def _converge(shape, dims, k, m_rel, tol, coat=None):
                  "notes/tmatrix.md)")
 
     def average(n_, n_quad_):
-        return _average(_compute(shape, dims, ks, ms, n_, n_quad_, m_tol=0.01 * tol, coat=coat_s), ks)
+        return _average(_compute(shape, dims, ks, ms, n_, n_quad_, m_tol=0.01 * tol, coat=coat_s,
+                                 extended=extended), ks)
 
     cur = average(n, _quad_points(shape, n))
     history = []
