@@ -111,6 +111,7 @@ def test_generation_profile_of_bodies_integrates_to_absorbed_photon_rate(particl
     s = nanoabs.spectrum(particle, wl, medium="water", polarization=pol, method=method)
     f = generation_profile(s, particle, 10.0, n_points=12)
     assert {"z_nm", "rho_nm", "cell_volume_nm3", "generation_rate_cm3_s"} <= set(f.columns)
+    assert f.attrs["energy_balance_relative_error"] < rtol
     for w, rate in zip(wl, absorbed_photon_rate(s, 10.0)):
         rows = f[f.wavelength_nm == w]
         total = float(np.sum(rows.generation_rate_cm3_s * rows.cell_volume_nm3 * 1e-21))
