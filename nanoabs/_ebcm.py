@@ -89,36 +89,67 @@ def surface(shape: str, dims, theta):
     return r, np.where(side, -co / s, dr_cap / r_cap)
 
 
-def _corner(shape: str, dims) -> float:
+def _corner(shape: str, dims, *, extended: bool = False):
     """θ of the corner (cylinder) or of the junction of two smooth pieces; π/2 when there is none."""
-    c, R = dims
+    c, R = (LD(v) for v in dims) if extended else dims
+    cast = (lambda v: v) if extended else float
+    half = np.arctan2(LD(1), LD(0)) if extended else np.pi / 2
     if shape == "cylinder":
-        return float(np.arctan2(R, c))
+        return cast(np.arctan2(R, c))
     if shape == "capped-rod":
-        return float(np.arctan2(R, c - R)) if c > R else np.pi / 2
+        return cast(np.arctan2(R, c - R)) if c > R else half
     if shape == "rounded-disc":
-        return float(np.arctan2(R - c, c)) if R > c else 0.0
-    return np.pi / 2
+        return cast(np.arctan2(R - c, c)) if R > c else 0.0 * half
+    return half
 
 
-def quadrature(shape: str, dims, n_quad: int):
+def quadrature(shape: str, dims, n_quad: int, *, extended: bool = False):
     """Gauss–Legendre nodes and weights on [0, π/2], split at the corner of the shape.
 
     Points are shared between the two pieces in proportion to their angular
-    width (at least 4 each), so each piece integrates a smooth function.
+    width (at least 4 each), so each piece integrates a smooth function.  With
+    ``extended`` the nodes, weights and the corner are in ``numpy.longdouble``
+    (:func:`leggauss_extended`), so that the Q integrals can be summed in extended
+    precision (module docstring of :mod:`nanoabs.tmatrix`).
     """
-    tc = _corner(shape, dims)
-    if tc >= np.pi / 2 - 1e-12 or tc <= 1e-12:
-        pieces = [(0.0, np.pi / 2, n_quad)]
+    tc = _corner(shape, dims, extended=extended)
+    half = np.arctan2(LD(1), LD(0)) if extended else np.pi / 2
+    if tc >= half - 1e-12 or tc <= 1e-12:
+        pieces = [(0.0 * half, half, n_quad)]
     else:
-        n1 = int(np.clip(round(n_quad * tc / (np.pi / 2)), 4, n_quad - 4))
-        pieces = [(0.0, tc, n1), (tc, np.pi / 2, n_quad - n1)]
+        n1 = int(np.clip(round(n_quad * float(tc) / (np.pi / 2)), 4, n_quad - 4))
+        pieces = [(0.0 * half, tc, n1), (tc, half, n_quad - n1)]
     nodes, weights = [], []
     for lo, hi, n in pieces:
-        x, w = np.polynomial.legendre.leggauss(n)
+        x, w = leggauss_extended(n) if extended else np.polynomial.legendre.leggauss(n)
         nodes.append(0.5 * (hi - lo) * x + 0.5 * (hi + lo))
         weights.append(0.5 * (hi - lo) * w)
     return np.concatenate(nodes), np.concatenate(weights)
+
+
+#: Extended precision of the Q assembly (80-bit x87 on x86-64: 64-bit mantissa, ~19 digits).
+LD = np.longdouble
+
+
+def leggauss_extended(n: int):
+    """Gauss–Legendre nodes and weights in ``numpy.longdouble``.
+
+    numpy's double-precision rule refined by three Newton steps on P_n (three-term
+    recurrence, A&S 22.7.10) and the weights 2/((1 − x²) P_n'(x)²) (A&S 25.4.29).
+    """
+    x = np.polynomial.legendre.leggauss(n)[0].astype(LD)
+
+    def legendre(x):
+        p0, p1 = np.ones_like(x), x.copy()
+        for k in range(2, n + 1):
+            p0, p1 = p1, ((2 * k - 1) * x * p1 - (k - 1) * p0) / k
+        return p1, n * (x * p1 - p0) / (x * x - 1)
+
+    for _ in range(3):
+        p, dp = legendre(x)
+        x = x - p / dp
+    _, dp = legendre(x)
+    return x, 2 / ((1 - x * x) * dp * dp)
 
 
 # --------------------------------------------------------------------------- #
@@ -136,13 +167,15 @@ def spherical_jn_all(n_max: int, z):
     """
     z = np.asarray(z)
     if not np.iscomplexobj(z) or np.all(z.imag == 0):
+        if z.real.dtype == LD:
+            return _jn_real_extended(n_max, z.real).astype(np.clongdouble)
         from scipy import special
 
         n = np.arange(n_max + 1).reshape((-1,) + (1,) * z.ndim)
         return special.spherical_jn(n, z.real).astype(complex)
     start = n_max + 25 + int(np.max(np.abs(z)))
     ratio = np.zeros_like(z)
-    out = np.empty((n_max + 1,) + z.shape, dtype=complex)
+    out = np.empty((n_max + 1,) + z.shape, dtype=np.result_type(z.dtype, complex))
     inv_z = 1.0 / z
     for n in range(start, 0, -1):
         ratio = 1.0 / ((2 * n + 1) * inv_z - ratio)
@@ -154,9 +187,44 @@ def spherical_jn_all(n_max: int, z):
     return out
 
 
+def _jn_real_extended(n_max: int, x):
+    """j_n(x), real ``longdouble`` x > 0, by Miller's downward recurrence (A&S 10.1.19, started
+    30 + x orders above n_max), normalised to j_0 = sin x/x or j_1 (A&S 10.1.11), whichever
+    is larger in size (so a zero of one of them does not spoil the scale)."""
+    start = n_max + 30 + int(np.max(x))
+    f_next, f = np.zeros_like(x), np.full_like(x, 1e-300)
+    out = np.empty((n_max + 1,) + x.shape, dtype=x.dtype)
+    for n in range(start, -1, -1):
+        if n <= n_max:
+            out[n] = f
+        f, f_next = (2 * n + 1) / x * f - f_next, f
+        big = np.abs(f) > 1e200
+        if np.any(big):  # rescale to stay in range; the stored orders rescale with them
+            sc = np.where(big, 1e-200, 1.0)
+            f, f_next, out[n:] = f * sc, f_next * sc, out[n:] * sc
+    j0 = np.sin(x) / x
+    j1 = np.sin(x) / x**2 - np.cos(x) / x
+    return out * np.where(np.abs(j0) >= np.abs(j1), j0 / out[0], j1 / out[1])
+
+
+def spherical_hn_all(n_max: int, z):
+    """h_n^(1)(z), n = 0..n_max, complex z, by upward recurrence (A&S 10.1.19; h_n grows with n,
+    so the recurrence is stable) from h_0 = −i e^{iz}/z and h_1 = −e^{iz}(z + i)/z² (A&S 10.1.11–12)."""
+    z = np.asarray(z)
+    z = z.astype(np.result_type(z.dtype, complex))
+    out = np.empty((n_max + 1,) + z.shape, dtype=z.dtype)
+    e = np.exp(1j * z)
+    out[0] = -1j * e / z
+    if n_max >= 1:
+        out[1] = -e * (z + 1j) / z**2
+    for n in range(1, n_max):
+        out[n + 1] = (2 * n + 1) / z * out[n] - out[n - 1]
+    return out
+
+
 def spherical_yn_all(n_max: int, x):
     """y_n(x), n = 0..n_max, for real x > 0 by upward recurrence (A&S 10.1.19; stable for y_n)."""
-    out = np.empty((n_max + 1,) + np.shape(x))
+    out = np.empty((n_max + 1,) + np.shape(x), dtype=np.result_type(np.asarray(x).dtype, float))
     out[0] = -np.cos(x) / x
     if n_max >= 1:
         out[1] = out[0] / x - np.sin(x) / x
@@ -177,22 +245,25 @@ def wigner_d_all(n_max: int, m: int, theta):
     """
     from scipy import special
 
-    theta = np.atleast_1d(np.asarray(theta, dtype=float))
+    theta = np.atleast_1d(np.asarray(theta))
+    dt = LD if theta.dtype == LD else float  # extended precision is kept (quadrature(extended=True))
+    theta = theta.astype(dt)
     s, c = np.sin(theta), np.cos(theta)
+    # the leading factor is common to every entry of one m block: its rounding cancels in T
     lead = np.exp(0.5 * special.gammaln(2 * m + 1) - m * np.log(2.0) - special.gammaln(m + 1))
-    e = np.zeros((n_max + 2, theta.size))  # d / sin(theta) for m >= 1, d itself for m = 0
-    dd = np.zeros((n_max + 2, theta.size))
+    e = np.zeros((n_max + 2, theta.size), dtype=dt)  # d / sin(theta) for m >= 1, d itself for m = 0
+    dd = np.zeros((n_max + 2, theta.size), dtype=dt)
     e[m] = lead * s ** max(m - 1, 0) if m else 1.0
     dd[m] = lead * m * s ** max(m - 1, 0) * c if m else 0.0
     base = s if m else 1.0
     for n in range(m, n_max + 1):
-        a, b = np.sqrt((n + 1) ** 2 - m * m), np.sqrt(n * n - m * m)
+        a, b = np.sqrt(dt((n + 1) ** 2 - m * m)), np.sqrt(dt(n * n - m * m))
         e_prev = e[n - 1] if n >= 1 else 0.0
         dd_prev = dd[n - 1] if n >= 1 else 0.0
         e[n + 1] = ((2 * n + 1) * c * e[n] - b * e_prev) / a
         dd[n + 1] = ((2 * n + 1) * (c * dd[n] - s * base * e[n]) - b * dd_prev) / a
     n = np.arange(max(m, 1), n_max + 1)
-    gamma = np.sqrt((2 * n + 1) / (4 * np.pi * n * (n + 1)))[:, None]
+    gamma = np.sqrt((2 * n + 1).astype(dt) / (4 * (np.arctan2(dt(1), dt(0)) * 2) * n * (n + 1)))[:, None]
     return gamma * e[n] * base, gamma * m * e[n], gamma * dd[n]
 
 
@@ -201,15 +272,21 @@ def wigner_d_all(n_max: int, m: int, theta):
 # --------------------------------------------------------------------------- #
 
 
-def radial(n_max: int, x, x1):
+def radial(n_max: int, x, x1, *, inner_outgoing: bool = False):
     """Radial factors on the surface, arrays (W, n_max+1, Q): j, h, ζ_j, ζ_h of x and j, ζ of x₁.
 
     ζ_n(z) = (z z_n(z))'/z = z_(n-1) − n z_n / z (A&S 10.1.22); order 0 rows are padding.
+    ``x`` may be complex (a core inside an absorbing coating): h_n then comes from
+    :func:`spherical_hn_all`.  With ``inner_outgoing`` the keys ``h1``, ``zh1`` also hold
+    h_n(x₁) and its ζ (the outgoing waves of a coated particle's shell, layered EBCM).
     """
     j = spherical_jn_all(n_max, x)
-    h = j + 1j * spherical_yn_all(n_max, x)
+    if np.iscomplexobj(x) and np.any(np.imag(x) != 0):
+        h = spherical_hn_all(n_max, x)
+    else:
+        h = j + 1j * spherical_yn_all(n_max, np.real(x))
     j1 = spherical_jn_all(n_max, x1)
-    n = np.arange(1, n_max + 1).reshape((-1,) + (1,) * x.ndim)
+    n = np.arange(1, n_max + 1).reshape((-1,) + (1,) * np.ndim(x))
 
     def zeta(f, arg):
         out = np.zeros_like(f)
@@ -217,7 +294,36 @@ def radial(n_max: int, x, x1):
         return out
 
     out = {"j": j, "h": h, "zj": zeta(j, x), "zh": zeta(h, x), "j1": j1, "z1": zeta(j1, x1)}
+    if inner_outgoing:
+        h1 = spherical_hn_all(n_max, x1)
+        out.update(h1=h1, zh1=zeta(h1, x1))
     return {key: v.transpose(1, 0, 2) for key, v in out.items()}
+
+
+def outgoing_inside(rad):
+    """``rad`` with the internal regular waves j_n(x₁) replaced by the outgoing h_n(x₁)."""
+    return dict(rad, j1=rad["h1"], z1=rad["zh1"])
+
+
+def coated_systems(outer_j, outer_h, T_core):
+    """Q and RgQ of a coated particle, per parity class (layered EBCM).
+
+    In the coating the field is Σ c RgΨ(k₁r) + d Ψ(k₁r) with d = T₁ c, T₁ the T
+    matrix of the core embedded in the coating material.  The null-field
+    equations on the outer surface then give a = (Q^{hj} + Q^{hh} T₁) c and
+    p = −(RgQ^{jj} + RgQ^{jh} T₁) c, so that T = −(RgQ^{jj} + RgQ^{jh} T₁)
+    (Q^{hj} + Q^{hh} T₁)⁻¹ (Peterson & Ström, Phys. Rev. D 10, 2670 (1974);
+    Mishchenko, Travis & Lacis 2002, §5.8, from memory).  ``outer_j``,
+    ``outer_h`` are :func:`q_systems` of the outer surface with regular and
+    outgoing internal waves (:func:`outgoing_inside`); ``T_core`` (W, 2K, 2K)
+    in block order.  The core and the coating share the mirror symmetry, so
+    T₁ keeps each parity class.
+    """
+    out = []
+    for (idx, qj), (_, qh) in zip(outer_j, outer_h):
+        t1 = T_core[:, idx[:, None], idx]
+        out.append((idx, qj + qh @ t1))
+    return out
 
 
 def q_systems(m: int, n_max: int, rad, x, x1, m_rel, rho, w_theta, theta):
@@ -278,25 +384,30 @@ def q_systems(m: int, n_max: int, rad, x, x1, m_rel, rho, w_theta, theta):
     return systems
 
 
-def solve_t(systems, K: int):
+def solve_t(systems, K: int, *, keep_inverse: bool = False):
     """T = −RgQ Q⁻¹ per parity class, by LU (LAPACK gesv) on equilibrated matrices.
 
     ``systems`` from :func:`q_systems`.  Row and column scalings of Q cancel in
     T exactly and keep the pivoting meaningful when h_n spans many decades.
-    Returns T (W, 2K, 2K) in block order.
+    Returns T (W, 2K, 2K) in block order; with ``keep_inverse`` also Q⁻¹ in
+    block order (rows: internal waves, columns: incident waves), from the same
+    equilibrated matrix, ``Q⁻¹ = C qs⁻¹ R`` (C, R the column and row scalings).
     """
-    T = None
+    T = Qi = None
     for idx, QQ in systems:
         q, rg = QQ[0], QQ[1]
         if T is None:
             T = np.zeros((q.shape[0], 2 * K, 2 * K), dtype=complex)
+            Qi = np.zeros_like(T) if keep_inverse else None
         col = 1.0 / np.max(np.abs(q), axis=1, keepdims=True)
         row = 1.0 / np.max(np.abs(q * col), axis=2, keepdims=True)
         qs = q * col * row
         # T = −(rg·col) (row·q·col)⁻¹ row  ->  Tᵀ = −row (qsᵀ)⁻¹ (rg·col)ᵀ
         tt = np.linalg.solve(qs.transpose(0, 2, 1), (rg * col).transpose(0, 2, 1))
         T[:, idx[:, None], idx] = -(tt * row).transpose(0, 2, 1)
-    return T
+        if keep_inverse:
+            Qi[:, idx[:, None], idx] = col.transpose(0, 2, 1) * np.linalg.inv(qs) * row.transpose(0, 2, 1)
+    return (T, Qi) if keep_inverse else T
 
 
 def check_shape_args(shape: str, dims) -> None:

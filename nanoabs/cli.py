@@ -226,17 +226,17 @@ def _build_particle(args):
     shell = None
     if args.shell:
         if len(args.shell) != 1 or not args.thickness or len(args.thickness) != 1:
-            raise NanoabsError("a coated ellipsoid takes exactly one --shell and one --thickness")
+            raise NanoabsError(f"a coated {shape} takes exactly one --shell and one --thickness")
         shell = (_material_arg(args.shell[0], "--shell"), args.thickness[0])
     if shape == "spheroid":
         if args.length is None or args.diameter is None:
             raise NanoabsError("--length and --diameter [nm] are required for --shape spheroid")
         return spheroid(_material_arg(args.material, "--material"), args.length, args.diameter, shell=shell)
     if shape in ("cylinder", "capped-rod", "rounded-disc"):
-        if args.length is None or args.diameter is None or shell is not None:
-            raise NanoabsError(f"--shape {shape} needs --length and --diameter [nm] (no --shell)")
+        if args.length is None or args.diameter is None:
+            raise NanoabsError(f"--length and --diameter [nm] are required for --shape {shape}")
         kind = {"cylinder": Cylinder, "capped-rod": CappedRod, "rounded-disc": RoundedDisc}[shape]
-        return kind(_material_arg(args.material, "--material"), args.length, args.diameter)
+        return kind(_material_arg(args.material, "--material"), args.length, args.diameter, shell=shell)
     if shape == "ellipsoid":
         if args.semi_axes is None:
             raise NanoabsError("--semi-axes A,B,C [nm] is required for --shape ellipsoid")
@@ -504,7 +504,9 @@ def _add_particle_options(p):
     g.add_argument("--radius", type=float, help="sphere radius [nm]")
     g.add_argument("--core", help="shell: core material (default --material)")
     g.add_argument("--core-radius", type=float, help="shell: core radius [nm]")
-    g.add_argument("--shell", action="append", help="shell material (repeat for more shells, core outward)")
+    g.add_argument("--shell", action="append", help="shell material (repeat for more shells, core outward); "
+                   "spheroid, ellipsoid: one confocal coating; cylinder, capped-rod, rounded-disc: one uniform "
+                   "coating")
     g.add_argument("--thickness", type=float, action="append", help="shell thickness [nm] (one per --shell)")
     g.add_argument("--length", type=float, help="spheroid, cylinder, capped-rod, rounded-disc: extent along "
                    "the symmetry axis (tip to tip) [nm]")
@@ -582,12 +584,14 @@ def _register_particle_commands(sub):
     d.add_argument("--plot", help="save responsivity and D* vs wavelength with the cut-off (.png or .svg)")
     h.set_defaults(func=_cmd_hot_carriers)
 
-    x = sub.add_parser("export-generation", help="carrier generation rate G(r) inside a sphere, for a "
-                                                 "device simulator")
+    x = sub.add_parser("export-generation", help="carrier generation rate G(r) inside a sphere, or inside a "
+                                                 "cylinder, capped rod, rounded disc or spheroid (method tmatrix) "
+                                                 "in a homogeneous host, for a device simulator")
     _add_particle_options(x)
     x.add_argument("--irradiance", required=True,
                    help="incident irradiance: W/m^2, or with a unit (1mW/cm2, 10W/m2)")
-    x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50)")
+    x.add_argument("--points", type=int, default=50, help="radial points per layer (default 50); bodies of "
+                   "revolution: bins in polar angle and in fractional radius (at most 200)")
     x.set_defaults(func=_cmd_export_generation)
 
 
@@ -611,14 +615,19 @@ def _cmd_export_generation(args) -> int:
     _, spec = _spectrum_from_args(args, particle)
     _print_warnings(spec.metadata)
     frame = generation_profile(spec, particle, irradiance, n_points=args.points)
+    sphere = particle.shape in ("sphere", "layered sphere")
     meta = {"what": "carrier generation rate inside the particle (one electron-hole pair per absorbed "
-                    "photon), angle-averaged internal field (on or in a planar stack: the field of the multipole "
-                    "solution there)",
+                    "photon), " + ("angle-averaged internal field (on or in a planar stack: the field of the "
+                                   "multipole solution there)" if sphere else
+                                   "T-matrix internal field averaged over ring-shaped cells about the "
+                                   "symmetry axis (z_nm along it, rho_nm from it)"),
             "irradiance_W_m2": irradiance, "spectrum": spec.metadata,
             "absorbed_photon_rate_per_s": absorbed_photon_rate(spec, irradiance).tolist()}
+    if "energy_balance_relative_error" in frame.attrs:
+        meta["energy_balance_relative_error"] = frame.attrs["energy_balance_relative_error"]
     write_export(frame, args.output, metadata=meta, units=GENERATION_UNITS, force=args.force)
     print(f"wrote {args.output}: G(r) at {len(spec.wavelength_nm)} wavelength(s), "
-          f"{len(frame) // len(spec.wavelength_nm)} radii; peak G {frame['generation_rate_cm3_s'].max():.3g} "
+          f"{len(frame) // len(spec.wavelength_nm)} {'radii' if sphere else 'cells'}; peak G {frame['generation_rate_cm3_s'].max():.3g} "
           "cm^-3 s^-1")
     return 0
 
@@ -819,7 +828,8 @@ def _register_design_commands(sub):
     q.add_argument("--band", action="append", help="band edges LO:HI [nm]; repeat for several bands")
     q.add_argument("--center", type=float, help="band centre [nm] (with --width)")
     q.add_argument("--width", type=float, help="band width [nm]")
-    q.add_argument("--families", default="sphere,shell,rod", help="comma list: sphere, shell, rod, disc")
+    q.add_argument("--families", default="sphere,shell,rod", help="comma list: sphere, shell, rod, disc, cylinder, "
+                   "capped-rod (the last two: coarse stage on the equal-volume spheroid, recheck by T-matrix)")
     q.add_argument("--objective", default="sigma_abs",
                    help="sigma_abs | sigma_abs_per_volume | q_abs | absorbed_fraction | injection | selectivity")
     q.add_argument("--combine", default="worst", help="several bands: worst | mean (default worst)")

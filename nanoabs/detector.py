@@ -310,6 +310,9 @@ def _metal_axes(particle, notes):
     if not hasattr(particle, "semi_axes_nm"):  # a T-matrix body (cylinder, capped rod, rounded disc)
         notes.append(f"{particle.shape}: emission is computed for the spheroid of the same length and diameter "
                      "with uniform generation (a documented approximation; its internal field is not uniform)")
+        if particle.shell is not None and particle.material.is_metal:  # metal core, coating not metal
+            L, R = particle.length_nm / 2, particle.diameter_nm / 2
+            return (L, R, R) if particle.kind == "rod" else (R, R, L)
         return particle.outer_semi_axes_nm()
     if particle.material.is_metal:
         return particle.semi_axes_nm

@@ -1,5 +1,5 @@
 """Particle geometries: sphere, layered sphere, ellipsoid (optionally with a confocal shell), spheroid,
-finite cylinder and capped rod.
+finite cylinder, capped rod and rounded disc (optionally with a uniform coating).
 
 Sizes are in nm. A size is a real number, or an explicitly shaped array of two or
 more axes: a *family* with a last axis of length 1 (e.g. radius of shape (P, 1)),
@@ -422,15 +422,20 @@ def spheroid(material, length_nm, diameter_nm, *, shell=None) -> Ellipsoid:
 
 @dataclass
 class _RoundBody:
-    """Homogeneous body of revolution with flat or rounded ends (subclasses set ``shape``).
+    """Body of revolution with flat or rounded ends (subclasses set ``shape``), bare or coated.
 
-    ``length_nm`` is the extent along the symmetry axis (tip to tip), ``diameter_nm``
-    across it [nm]. A rod (length >= diameter) lies along x, a disc along z.
+    ``length_nm`` is the extent of the body (the core, if coated) along the symmetry axis
+    (tip to tip), ``diameter_nm`` across it [nm]. A rod (length >= diameter) lies along x,
+    a disc along z. ``shell`` = (material, thickness_nm) is a uniform coating: its outer
+    surface is the same shape with length + 2t and diameter + 2t (for a capped rod and a
+    rounded disc that is the exact offset surface, the same thickness everywhere; for a
+    cylinder the coating is t thick on the faces and the side and squared off at the edges).
     """
 
     material: object
     length_nm: object
     diameter_nm: object
+    shell: tuple | None = None
 
     def __post_init__(self):
         self.material = _mat(self.material)
@@ -441,49 +446,92 @@ class _RoundBody:
         if np.any(rods) and not np.all(rods):
             raise NanoabsError("length/diameter arrays must be all rods (length >= diameter) or all discs")
         self.kind = "rod" if np.all(rods) else "disc"
+        if self.shell is not None:
+            self.shell = _pair("shell", self.shell)
+            _common_shape(f"{self.shape} with shell", self.length_nm, self.diameter_nm, self.shell[1])
+            _check_outer("outer length", self.outer_length_nm)
+            _check_outer("outer diameter", self.outer_diameter_nm)
 
-    def volume_nm3(self):  # pragma: no cover - each shape defines its own
+    @property
+    def outer_length_nm(self):
+        """Length of the outer surface [nm] (of the coating, if any)."""
+        return self.length_nm + (2 * self.shell[1] if self.shell is not None else 0.0)
+
+    @property
+    def outer_diameter_nm(self):
+        """Diameter of the outer surface [nm] (of the coating, if any)."""
+        return self.diameter_nm + (2 * self.shell[1] if self.shell is not None else 0.0)
+
+    def _volume(self, L, D):  # pragma: no cover - each shape defines its own
         raise NotImplementedError
 
-    def surface_nm2(self):  # pragma: no cover
+    def _surface(self, L, D):  # pragma: no cover
         raise NotImplementedError
 
-    def side_area_nm2(self):  # pragma: no cover
+    def _side_area(self, L, D):  # pragma: no cover
         """Projected area seen from the side (light perpendicular to the axis) [nm²]."""
         raise NotImplementedError
 
+    def volume_nm3(self):
+        """Volume inside the outer surface [nm³] (core plus coating, as for :class:`Ellipsoid`)."""
+        return self._volume(self.outer_length_nm, self.outer_diameter_nm)
+
+    def core_volume_nm3(self):
+        """Volume of the body without its coating [nm³]."""
+        return self._volume(self.length_nm, self.diameter_nm)
+
+    def surface_nm2(self):
+        """Area of the outer surface [nm²]."""
+        return self._surface(self.outer_length_nm, self.outer_diameter_nm)
+
+    def side_area_nm2(self):
+        """Side-on projected area of the outer surface [nm²]."""
+        return self._side_area(self.outer_length_nm, self.outer_diameter_nm)
+
     def layer_materials(self) -> list:
-        return [self.material]
+        return [self.material] + ([self.shell[0]] if self.shell is not None else [])
 
     def layer_labels(self) -> list:
-        return [self.shape]
+        return ["core", "shell"] if self.shell is not None else [self.shape]
 
     def damping_lengths_nm(self) -> list:
-        """4V/S (Coronado & Schatz, J. Chem. Phys. 119, 3926 (2003))."""
-        return [4.0 * self.volume_nm3() / self.surface_nm2()]
+        """4V/S of the core (Coronado & Schatz, J. Chem. Phys. 119, 3926 (2003)); the thickness
+        of a coating (documented approximation, as for :class:`Ellipsoid`)."""
+        core = 4.0 * self.core_volume_nm3() / self._surface(self.length_nm, self.diameter_nm)
+        return [core] + ([np.asarray(self.shell[1], dtype=float)] if self.shell is not None else [])
 
     def outer_semi_axes_nm(self) -> tuple:
-        L, R = self.length_nm / 2, self.diameter_nm / 2
+        L, R = self.outer_length_nm / 2, self.outer_diameter_nm / 2
         return (L, R, R) if self.kind == "rod" else (R, R, L)
 
     def reference_area_nm2(self, polarization):
-        """(geometric cross-section [nm²], description), as for :class:`Ellipsoid`."""
+        """(geometric cross-section [nm²] of the outer surface, description), as for :class:`Ellipsoid`."""
         if polarization == "random":
             return self.surface_nm2() / 4.0, "surface area / 4 (random orientation, Cauchy's theorem)"
         along_axis = (polarization == "z") == (self.kind == "rod")  # light along the symmetry axis
         if along_axis:
-            return np.pi * (self.diameter_nm / 2) ** 2, "end-on projected area pi D^2/4 (light along the axis)"
+            return np.pi * (self.outer_diameter_nm / 2) ** 2, "end-on projected area pi D^2/4 (light along the axis)"
         return self.side_area_nm2(), "side-on projected area (light perpendicular to the axis)"
 
     def equal_volume_area_nm2(self):
         return np.pi * (3 * self.volume_nm3() / (4 * np.pi)) ** (2.0 / 3.0)
 
     def metal_volume_nm3(self):
-        return self.volume_nm3() if self.material.is_metal else 0.0
+        """Volume of the metal parts [nm³]."""
+        core = self.core_volume_nm3()
+        out = core if self.material.is_metal else 0.0
+        if self.shell is not None and self.shell[0].is_metal:
+            out = out + (self.volume_nm3() - core)
+        return out
 
     def describe(self) -> dict:
-        return {"shape": self.shape, "material": self.material.label, "length_nm": _plain(self.length_nm),
-                "diameter_nm": _plain(self.diameter_nm), "kind": self.kind}
+        d = {"shape": self.shape, "material": self.material.label, "length_nm": _plain(self.length_nm),
+             "diameter_nm": _plain(self.diameter_nm), "kind": self.kind}
+        if self.shell is not None:
+            d["shell"] = {"material": self.shell[0].label, "thickness_nm": _plain(self.shell[1]),
+                          "outer_length_nm": _plain(self.outer_length_nm),
+                          "outer_diameter_nm": _plain(self.outer_diameter_nm)}
+        return d
 
 
 _BODY_PARAMETERS = """
@@ -495,6 +543,10 @@ _BODY_PARAMETERS = """
         Extent along the symmetry axis, tip to tip [nm]; a family has shape (P, 1).
     diameter_nm : float or array_like
         Extent across the axis [nm].
+    shell : (material, thickness_nm) or None, optional
+        Uniform coating (oxide or ligand shell) of thickness t [nm]; its outer surface is the
+        same shape with length + 2t and diameter + 2t (the exact offset surface of a capped rod
+        or a rounded disc; a cylinder's coating is squared off at the edges).
     """
 
 
@@ -504,15 +556,15 @@ class Cylinder(_RoundBody):
 
     shape = "cylinder"
 
-    def volume_nm3(self):
-        return np.pi * (self.diameter_nm / 2) ** 2 * self.length_nm
+    def _volume(self, L, D):
+        return np.pi * (D / 2) ** 2 * L
 
-    def surface_nm2(self):
-        R = self.diameter_nm / 2
-        return 2 * np.pi * R * (R + self.length_nm)
+    def _surface(self, L, D):
+        R = D / 2
+        return 2 * np.pi * R * (R + L)
 
-    def side_area_nm2(self):
-        return self.length_nm * self.diameter_nm
+    def _side_area(self, L, D):
+        return L * D
 
 
 class CappedRod(_RoundBody):
@@ -526,17 +578,17 @@ class CappedRod(_RoundBody):
             raise NanoabsError(f"length = {_plain(self.length_nm)} nm: a capped rod needs length >= diameter "
                                f"({_plain(self.diameter_nm)} nm)")
 
-    def volume_nm3(self):
-        R = self.diameter_nm / 2
-        return np.pi * R**2 * (self.length_nm - 2 * R) + 4.0 / 3.0 * np.pi * R**3
+    def _volume(self, L, D):
+        R = D / 2
+        return np.pi * R**2 * (L - 2 * R) + 4.0 / 3.0 * np.pi * R**3
 
-    def surface_nm2(self):
-        R = self.diameter_nm / 2
-        return 2 * np.pi * R * (self.length_nm - 2 * R) + 4 * np.pi * R**2
+    def _surface(self, L, D):
+        R = D / 2
+        return 2 * np.pi * R * (L - 2 * R) + 4 * np.pi * R**2
 
-    def side_area_nm2(self):
-        R = self.diameter_nm / 2
-        return 2 * R * (self.length_nm - 2 * R) + np.pi * R**2
+    def _side_area(self, L, D):
+        R = D / 2
+        return 2 * R * (L - 2 * R) + np.pi * R**2
 
 
 class RoundedDisc(_RoundBody):
@@ -554,6 +606,9 @@ class RoundedDisc(_RoundBody):
         Thickness of the disc (<= ``diameter_nm``) [nm]; a family has shape (P, 1).
     diameter_nm : float or array_like
         Extent across the axis, rim included [nm].
+    shell : (material, thickness_nm) or None, optional
+        Uniform coating of thickness t [nm]: its outer surface is the rounded disc of
+        length + 2t and diameter + 2t (the exact offset surface).
     """
 
     shape = "rounded-disc"
@@ -564,20 +619,21 @@ class RoundedDisc(_RoundBody):
             raise NanoabsError(f"length = {_plain(self.length_nm)} nm: a rounded disc needs length <= diameter "
                                f"({_plain(self.diameter_nm)} nm)")
 
-    def _a_rho0(self):
-        a = self.length_nm / 2
-        return a, self.diameter_nm / 2 - a
+    @staticmethod
+    def _a_rho0(L, D):
+        a = L / 2
+        return a, D / 2 - a
 
-    def volume_nm3(self):
-        a, p0 = self._a_rho0()
+    def _volume(self, L, D):
+        a, p0 = self._a_rho0(L, D)
         return 2 * np.pi * a * p0**2 + np.pi**2 * a**2 * p0 + 4.0 / 3.0 * np.pi * a**3
 
-    def surface_nm2(self):
-        a, p0 = self._a_rho0()
+    def _surface(self, L, D):
+        a, p0 = self._a_rho0(L, D)
         return 2 * np.pi * p0**2 + 2 * np.pi**2 * a * p0 + 4 * np.pi * a**2
 
-    def side_area_nm2(self):
-        a, p0 = self._a_rho0()
+    def _side_area(self, L, D):
+        a, p0 = self._a_rho0(L, D)
         return 4 * a * p0 + np.pi * a**2
 
 

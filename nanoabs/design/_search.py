@@ -17,7 +17,7 @@ from ._engine import collapse, progress_bar, unique
 from ._sweep import _TEXT_UNIT
 
 #: Particle families of :func:`search`.
-FAMILIES = ("sphere", "shell", "rod", "disc")
+FAMILIES = ("sphere", "shell", "rod", "disc", "cylinder", "capped-rod")
 #: Figures of merit of :func:`search`.
 OBJECTIVES = ("sigma_abs", "sigma_abs_per_volume", "q_abs", "absorbed_fraction", "injection", "selectivity")
 #: How the figures of merit of several bands combine into one.
@@ -63,12 +63,29 @@ def _two_numbers(**given):
     return tuple(float(check_finite_array(k, v)[0]) for k, v in given.items())
 
 
-_FAMILY_SHAPE = {"sphere": "sphere", "shell": "shell", "rod": "spheroid", "disc": "spheroid"}
+_FAMILY_SHAPE = {"sphere": "sphere", "shell": "shell", "rod": "spheroid", "disc": "spheroid",
+                 "cylinder": "cylinder", "capped-rod": "capped-rod"}
 _FAMILY_VARS = {"sphere": ("radius_nm",), "shell": ("core_radius_nm", "thickness_nm"),
-                "rod": ("aspect_ratio", "diameter_nm"), "disc": ("aspect_ratio", "diameter_nm")}
+                "rod": ("aspect_ratio", "diameter_nm"), "disc": ("aspect_ratio", "diameter_nm"),
+                "cylinder": ("aspect_ratio", "diameter_nm"), "capped-rod": ("aspect_ratio", "diameter_nm")}
 _FAMILY_DIMS = {"sphere": ("radius_nm",), "shell": ("core_radius_nm", "thickness_nm"),
-                "rod": ("length_nm", "diameter_nm"), "disc": ("length_nm", "diameter_nm")}
-_GRID = {"sphere": (64,), "shell": (18, 18), "rod": (32, 8), "disc": (24, 10)}
+                "rod": ("length_nm", "diameter_nm"), "disc": ("length_nm", "diameter_nm"),
+                "cylinder": ("length_nm", "diameter_nm"), "capped-rod": ("length_nm", "diameter_nm")}
+_GRID = {"sphere": (64,), "shell": (18, 18), "rod": (32, 8), "disc": (24, 10), "cylinder": (32, 8),
+         "capped-rod": (32, 8)}
+#: Rods with edges (T-matrix bodies): the coarse stage evaluates a stand-in spheroid of the same aspect
+#: ratio and volume with the fast method; the recheck solves the body itself with the T-matrix.
+_ROD_BODIES = ("cylinder", "capped-rod")
+
+
+def _proxy_scale(family, aspect_ratio):
+    """Length scale f of the stand-in spheroid (f L, f D) with the body's volume and aspect ratio.
+
+    Volume of the body over that of the spheroid of the same L and D (π L D²/6): a cylinder
+    3/2; a capped rod 3/2 − 1/(2 AR) (calculus, from the volumes in :mod:`nanoabs.particles`).
+    """
+    ratio = 1.5 if family == "cylinder" else 1.5 - 0.5 / np.asarray(aspect_ratio, dtype=float)
+    return np.cbrt(ratio)
 _FOM_UNITS = {"sigma_abs": "m^2", "sigma_abs_per_volume": "m^-1", "q_abs": "1", "absorbed_fraction": "1",
               "injection": "s^-1", "selectivity": "1"}
 _FOM_TEXT = {
@@ -95,6 +112,8 @@ def _default_bounds(family, min_shell, max_size):
                 "thickness_nm": (min_shell, max(min(60.0, half - 5.0), min_shell * 1.01))}
     if family == "rod":
         return {"aspect_ratio": (1.2, 8.0), "diameter_nm": (5.0, max(min(60.0, max_size / 1.2), 5.05))}
+    if family in _ROD_BODIES:  # the T-matrix recheck converges up to aspect ratio ~5 (notes/tmatrix.md)
+        return {"aspect_ratio": (1.2, 5.0), "diameter_nm": (10.0, max(min(60.0, max_size / 1.2), 10.1))}
     return {"aspect_ratio": (0.1, 0.8), "diameter_nm": (10.0, max(max_size, 10.1))}
 
 
@@ -114,7 +133,7 @@ def _feasible(family, g, min_shell, max_size):
     if family == "shell":
         return ((2 * (g["core_radius_nm"] + g["thickness_nm"]) <= max_size * (1 + tol))
                 & (g["thickness_nm"] >= min_shell * (1 - tol)))
-    if family == "rod":
+    if family == "rod" or family in _ROD_BODIES:
         return (g["length_nm"] <= max_size * (1 + tol)) & (g["length_nm"] >= g["diameter_nm"])
     return ((g["diameter_nm"] <= max_size * (1 + tol)) & (g["length_nm"] >= min_shell * (1 - tol))
             & (g["length_nm"] < g["diameter_nm"]))
@@ -138,7 +157,8 @@ class _Problem:
 
     def __init__(self, family, mat, core, medium, settings, bands, window, objective, combine, peak_in_band):
         self.family, self.mat, self.core, self.medium = family, mat, core, medium
-        self.shape = _FAMILY_SHAPE[family]
+        self.proxy = family in _ROD_BODIES and settings["method"] != "tmatrix"
+        self.shape = "spheroid" if self.proxy else _FAMILY_SHAPE[family]
         self.settings, self.bands, self.objective = settings, bands, objective
         self.combine, self.peak_in_band = combine, peak_in_band
         coarse = np.linspace(window[0], window[-1], 161)
@@ -160,6 +180,9 @@ class _Problem:
         if self.shape == "shell":
             t.update(core_material_options=[self.core], core_material_code=np.zeros(n, np.int64))
         t.update({k: np.asarray(v, dtype=float) for k, v in g.items()})
+        if self.proxy:
+            f = _proxy_scale(self.family, t["aspect_ratio"])
+            t.update(length_nm=t["length_nm"] * f, diameter_nm=t["diameter_nm"] * f)
         return t
 
     def spectra(self, g, wl):
@@ -271,11 +294,15 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     band_nm : (float, float) or sequence of them
         Target band edges [nm] (see :func:`band` for centre/width); several bands (e.g.
         ``[(1260, 1360), (1530, 1565)]``) are scored separately and combined by ``combine``.
-    families : sequence of {"sphere", "shell", "rod", "disc"}, keyword-only
+    families : sequence of {"sphere", "shell", "rod", "disc", "cylinder", "capped-rod"}, keyword-only
         "sphere": radius; "shell": dielectric core radius + metal shell
         thickness; "rod": prolate spheroid (aspect ratio length/diameter ≥ 1,
         diameter); "disc": oblate spheroid (aspect ratio thickness/diameter < 1,
-        diameter).
+        diameter); "cylinder", "capped-rod": flat-ended or hemisphere-capped rods
+        (aspect ratio ≥ 1, diameter).  With ``method="auto"`` (or any method but
+        "tmatrix") the coarse stage evaluates these two with a stand-in: the spheroid of
+        the same aspect ratio and volume (validity code ``spheroid-stand-in``); the
+        recheck solves the rod itself with the T-matrix.
     objective : str, keyword-only
         Figure of merit, always over the band: "sigma_abs" (band average of
         σ_abs [m²]), "sigma_abs_per_volume" (band average of σ_abs per metal
@@ -295,7 +322,8 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         radius_nm (2.5, max_size/2); shell core_radius_nm (5, max_size/2 −
         min_shell), thickness_nm (min_shell, min(60, max_size/2 − 5)); rod
         aspect_ratio (1.2, 8), diameter_nm (5, min(60, max_size/1.2)); disc
-        aspect_ratio (0.1, 0.8), diameter_nm (10, max_size).
+        aspect_ratio (0.1, 0.8), diameter_nm (10, max_size); cylinder and capped-rod
+        aspect_ratio (1.2, 5), diameter_nm (10, min(60, max_size/1.2)).
     materials : sequence, keyword-only
         Metals (names or material objects); the shell metal for shells.
     core : str or material, keyword-only
@@ -344,7 +372,9 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     recheck : bool, keyword-only
         True (default): recompute each ranked row with the best available solver (the
         ``"auto"`` rule of :func:`nanoabs.solvers.choose`, exact methods first) and report
-        it in the ``recheck_*`` columns beside the coarse method's values.
+        it in the ``recheck_*`` columns beside the coarse method's values (cylinders and
+        capped rods: the T-matrix; ``recheck_method`` says "tmatrix: failed (not converged)"
+        with NaN values when the exact solver does not converge for a design).
 
     Returns
     -------
@@ -465,7 +495,7 @@ def search_inputs(band_nm, *, families, objective, bounds, materials, core, medi
         if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or not 1 <= v <= lim:
             raise NanoabsError(f"{name} = {v!r}: allowed range is 1 to {lim} (integer)")
     method = check_choice("method", method, ["auto", *METHODS])
-    if any(f in ("rod", "disc") for f in families):
+    if any(f in ("rod", "disc", *_ROD_BODIES) for f in families):
         polarization = check_choice("polarization", polarization, ["long", "short", "random", "x", "y", "z"])
     used = mats + ([core_m] if "shell" in families else []) + [med]
     if wavelength_nm is None:
@@ -636,7 +666,7 @@ def _problem(cfg, fam, mi, method=None):
         planar = is_environment(cfg["where"]) and cfg["where"].kind != "homogeneous"
         # the fast method for the coarse stage (in a planar environment the dipole with the reflected
         # Green's function; the recheck uses the multipole method)
-        settings["method"] = "mlwa" if planar else SWEEP_AUTO[_FAMILY_SHAPE[fam]]
+        settings["method"] = "mlwa" if planar or fam in _ROD_BODIES else SWEEP_AUTO[_FAMILY_SHAPE[fam]]
     bands = [(lo, hi, wl, inj[id(m)] if cfg["objective"] == "injection" else None)
              for lo, hi, wl, inj in cfg["bands"]]
     return _Problem(fam, m, cfg["core_m"] if fam == "shell" else None, cfg["where"], settings, bands,
@@ -751,22 +781,32 @@ def _validity(prob, g, window):
     n_med = (prob.medium.host_index(window)[0] if is_environment(prob.medium)
              else np.atleast_1d(prob.medium.refractive_index(window)).real)
     prb = Problem(_one_particle(prob, g), window, n_med, "x", None, [])
-    codes = sorted({c.code for c in solver.validity(prb)})
+    codes = sorted({c.code for c in solver.validity(prb)} | ({"spheroid-stand-in"} if prob.proxy else set()))
     return ";".join(codes) if codes else "ok"
 
 
 def _recheck(cfg, c, g):
     """Peak and figure of merit of design ``g`` with the best available solver (the size-aware
-    "auto" rule of :func:`nanoabs.solvers.choose`), on the search's evaluation grid."""
+    "auto" rule of :func:`nanoabs.solvers.choose`), on the search's evaluation grid.  A rod with
+    edges is rechecked as itself (not its stand-in spheroid); when the exact solver refuses or
+    does not converge, ``recheck_method`` says so and the values are NaN."""
     from ..solvers import Homogeneous, choose
 
-    prob0 = _problem(cfg, c["family"], c["mi"])
+    fam = c["family"]
+    prob0 = _problem(cfg, fam, c["mi"], method="tmatrix" if fam in _ROD_BODIES else None)
     where = prob0.medium if is_environment(prob0.medium) else Homogeneous(prob0.medium)
     window = cfg["window"]
-    best, _ = choose("auto", _one_particle(prob0, g), where, wavelength_nm=window,
-                     n_medium=where.host_index(window)[0])
-    prob = _problem(cfg, c["family"], c["mi"], method=best.name)
-    ev = prob.evaluate(g)
+    best = None
+    try:
+        best, _ = choose("auto", _one_particle(prob0, g), where, wavelength_nm=window,
+                         n_medium=where.host_index(window)[0])
+        prob = _problem(cfg, fam, c["mi"], method=best.name)
+        ev = prob.evaluate(g)
+    except NanoabsError as exc:
+        name = best.name if best is not None else "none"
+        why = "not converged" if ("converge" in str(exc) or "passive" in str(exc)) else "refused"
+        return {"recheck_method": f"{name}: failed ({why})", "recheck_peak_wavelength_nm": float("nan"),
+                "recheck_figure_of_merit": float("nan")}
     per_band = ev["per_band"][0]
     if cfg["objective"] == "injection":
         per_band = _pipeline_fom(cfg, prob, g, best.name)
@@ -859,7 +899,7 @@ _SENS_DIMS = ("radius_nm", "core_radius_nm", "thickness_nm", "length_nm", "diame
 
 
 def _dims_to_geometry(fam, dims):
-    if fam in ("rod", "disc"):
+    if fam in ("rod", "disc", *_ROD_BODIES):
         return {"length_nm": dims["length_nm"], "diameter_nm": dims["diameter_nm"],
                 "aspect_ratio": dims["length_nm"] / dims["diameter_nm"]}
     return dict(dims)
