@@ -503,14 +503,65 @@ def _load_cached(key: str, source: str):
     return header, wl, n, note, model
 
 
+class _Pchip:
+    """Piecewise-cubic Hermite interpolant with Fritsch & Carlson's (1980) monotone derivatives.
+
+    Interior derivatives: 0 where the neighbouring secant slopes m_{k-1}, m_k differ in
+    sign or one is 0, else the weighted harmonic mean 1/d_k = (w1/m_{k-1} + w2/m_k) /
+    (w1 + w2), w1 = 2h_k + h_{k-1}, w2 = h_k + 2h_{k-1} (Fritsch & Carlson, SIAM J.
+    Numer. Anal. 17, 238 (1980), with the weights of Fritsch & Butland (1984) (from
+    memory)); end derivatives from the one-sided three-point formula, limited to keep the
+    shape (Moler, Numerical Computing with MATLAB (2004), Sec. 3.6, pchiptx (from
+    memory)).  Two points give the straight line.  NaN outside [x_0, x_N].  Written in
+    numpy so that reading a material does not import scipy.interpolate (start-up);
+    tests/test_materials.py holds it to 1e-12 of ``scipy.interpolate.PchipInterpolator``.
+    """
+
+    def __init__(self, x, y):
+        x = np.asarray(x, dtype=float)
+        y = np.asarray(y, dtype=float)
+        h = np.diff(x)
+        m = np.diff(y) / h
+        if y.size == 2:
+            d = np.array([m[0], m[0]])
+        else:
+            d = np.zeros_like(y)
+            w1, w2 = 2.0 * h[1:] + h[:-1], h[1:] + 2.0 * h[:-1]
+            flat = (np.sign(m[1:]) != np.sign(m[:-1])) | (m[1:] == 0) | (m[:-1] == 0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                whmean = (w1 / m[:-1] + w2 / m[1:]) / (w1 + w2)
+            d[1:-1][~flat] = 1.0 / whmean[~flat]
+            d[0] = self._end(h[0], h[1], m[0], m[1])
+            d[-1] = self._end(h[-1], h[-2], m[-1], m[-2])
+        # cubic per interval in s = x - x_k: y_k + d_k s + c1 s^2 + c0 s^3
+        t = (d[:-1] + d[1:] - 2.0 * m) / h
+        self._x = x
+        self._c = (t / h, (m - d[:-1]) / h - t, d[:-1], y[:-1])
+
+    @staticmethod
+    def _end(h0, h1, m0, m1):
+        d = ((2.0 * h0 + h1) * m0 - h0 * m1) / (h0 + h1)
+        if np.sign(d) != np.sign(m0):
+            return 0.0
+        if np.sign(m0) != np.sign(m1) and abs(d) > 3.0 * abs(m0):
+            return 3.0 * m0
+        return d
+
+    def __call__(self, xq):
+        xq = np.asarray(xq, dtype=float)
+        x = self._x
+        k = np.clip(np.searchsorted(x, xq, side="right") - 1, 0, x.size - 2)
+        s = xq - x[k]
+        c0, c1, c2, c3 = (c[k] for c in self._c)
+        out = c3 + s * c2 + s * s * c1 + s * s * s * c0
+        return np.where((xq >= x[0]) & (xq <= x[-1]), out, np.nan)
+
+
 def _interpolants(wl, n):
     """PCHIP interpolants of n and k on log(λ) (shape-preserving, no overshoot between points)."""
-    from scipy.interpolate import PchipInterpolator
-
     x = np.log(wl)
     with np.errstate(divide="ignore", over="ignore", invalid="ignore"):  # flat runs (k = 0)
-        return (PchipInterpolator(x, n.real, extrapolate=False),
-                PchipInterpolator(x, n.imag, extrapolate=False))
+        return _Pchip(x, n.real), _Pchip(x, n.imag)
 
 
 @lru_cache(maxsize=None)

@@ -21,7 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import __version__
+from .._version import version as _package_version
 from .._errors import NanoabsError
 
 PARTS_FORMAT = "nanoabs-sweep-parts"
@@ -211,7 +211,7 @@ def prepare_workdir(workdir: Path, digest: str, n_chunks, force, chunk_rows, **m
         atomic_write_text(manifest, json.dumps({
             "format": PARTS_FORMAT, "format_version": 2, "hash": digest, "n_chunks": n_chunks, **manifest_extra,
             "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-            "package_version": __version__}, indent=2) + "\n")
+            "package_version": _package_version()}, indent=2) + "\n")
     for tmp in workdir.glob(".*.tmp"):  # left by a killed writer; we hold the lock
         tmp.unlink(missing_ok=True)
     finished = set()
@@ -274,7 +274,7 @@ def write_final(out: Path, workdir: Path, n_chunks: int, frame0, units, metadata
     columns = export._check_frame(frame0, units)
     doc = {
         "format": export.FORMAT_NAME, "format_version": export.FORMAT_VERSION,
-        "package_version": __version__,
+        "package_version": _package_version(),
         "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "data_file": targets[0].name, "rows": int(rows), "columns": columns,
         "metadata": export._jsonable(metadata, ""),

@@ -7,7 +7,7 @@ from collections.abc import Mapping
 
 import numpy as np
 
-from .. import __version__
+from .._version import version as _package_version
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
@@ -741,7 +741,7 @@ def _ranked_frame(rows, cfg, warnings):
         "sensitivity": "central difference of the sigma_abs peak for +-1 nm of each dimension "
                        "(+-value/4 below 4 nm), peak refined on a 0.1 nm grid",
         "warnings": collapse(warnings),
-        "package_version": __version__,
+        "package_version": _package_version(),
     }
     return frame
 
