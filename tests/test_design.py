@@ -611,6 +611,24 @@ def test_search_ranks_families_and_reports_columns(tmp_path):
     assert shell.dpeak_d_thickness_nm < 0
 
 
+def test_search_on_worker_processes_equals_the_search_in_this_process(monkeypatch):
+    # Source: contract — the two forked workers run the same tasks as the in-process loop, so the
+    # ranked table (every number, the warnings) is identical whatever the number of workers.
+    from nanoabs.design import _search
+
+    def run():
+        return design.search((780.0, 820.0), families=["sphere", "shell", "rod"], objective="sigma_abs",
+                             top=5, n_starts=1, progress=False, peak_in_band=False)
+
+    monkeypatch.setattr(_search, "WORKERS", 1)
+    alone = run()
+    monkeypatch.setattr(_search, "WORKERS", 2)
+    pooled = run()
+    assert_frame_equal(pooled, alone, check_exact=True)
+    assert pooled.attrs["metadata"]["warnings"] == alone.attrs["metadata"]["warnings"]
+    assert not _search._TASK  # nothing of the search is left behind
+
+
 # --------------------------------------------------------------------------- bad inputs
 
 

@@ -7,6 +7,7 @@ from collections.abc import Mapping
 
 import numpy as np
 
+from .. import _compiled_mie
 from .._version import version as _package_version
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
@@ -367,16 +368,23 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     n_tasks = len(cfg["families"]) * len(cfg["mats"]) * (1 + n_starts) + top
     bar = progress_bar(n_tasks, "search", progress)
     candidates, problems = [], {}
+    for fam in cfg["families"]:
+        for mi in range(len(cfg["mats"])):
+            problems[(fam, mi)] = _problem(cfg, fam, mi)
+    _TASK.update(cfg=cfg, problems=problems)
+    pool = _pool()
     try:
-        for fam in cfg["families"]:
-            for mi in range(len(cfg["mats"])):
-                prob = problems[(fam, mi)] = _problem(cfg, fam, mi)
-                candidates += _explore(cfg, prob, mi, bar)
+        for out, warn, key in _map(pool, _explore_task, list(problems), bar, 1 + n_starts):
+            candidates += out
+            problems[key].warnings |= warn
         rows = []
-        for c in _choose(candidates, top):
-            rows.append(_design_row(cfg, problems[(c["family"], c["mi"])], c))
-            bar.update()
+        for row, warn, key in _map(pool, _row_task, _choose(candidates, top), bar, 1):
+            rows.append(row)
+            problems[key].warnings |= warn
     finally:
+        _TASK.clear()
+        if pool is not None:
+            pool.shutdown(wait=True, cancel_futures=True)
         bar.close()
     if cfg["peak_in_band"]:
         rows = [r for r in rows if r["peak_in_band"] == "yes"]  # the refined peak decides
@@ -390,6 +398,91 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         row["rank"] = rank
     warnings = sorted(set().union(*[p.warnings for p in problems.values()])) if problems else []
     return _ranked_frame(rows, cfg, warnings)
+
+
+# --------------------------------------------------------------------------- parallel evaluation
+
+#: Worker processes of a search (forked; 1 or a platform without fork: everything in this process).
+#: The explore stage runs one task per family and material, the report stage one per ranked design;
+#: a task computes exactly what the sequential loop computes, so results do not depend on it.
+WORKERS = 2
+_TASK = {}  # cfg and problems of the running search, inherited by the forked workers
+
+
+class _NoBar:
+    def update(self, n=1):
+        pass
+
+
+def _explore_task(key):
+    prob = _TASK["problems"][key]
+    with _compiled_mie.any_size():  # many small Mie spectra: the compiled kernel, loaded once
+        return _explore(_TASK["cfg"], prob, key[1], _NoBar()), prob.warnings, key
+
+
+def _row_task(c):
+    key = (c["family"], c["mi"])
+    prob = _TASK["problems"][key]
+    with _compiled_mie.any_size():
+        return _design_row(_TASK["cfg"], prob, c), prob.warnings, key
+
+
+def _pool():
+    """A pool of forked workers (they inherit `_TASK` and the loaded kernels), or None."""
+    import multiprocessing as mp
+    import os
+
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    n = min(WORKERS, cores)
+    if n < 2 or "fork" not in mp.get_all_start_methods() or mp.current_process().daemon:
+        return None
+    from concurrent.futures import ProcessPoolExecutor
+
+    from ._engine import _exit_with_parent
+
+    _warm_up()
+    return ProcessPoolExecutor(max_workers=n, mp_context=mp.get_context("fork"), initializer=_exit_with_parent,
+                               initargs=(os.getpid(),))
+
+
+def _warm_up():
+    """Load here, once, what every worker would otherwise load for itself: the compiled kernels
+    (numba's import and cache load take seconds) and the scipy modules of the search."""
+    import scipy.integrate  # noqa: F401
+    import scipy.optimize  # noqa: F401
+
+    from .. import _compiled
+
+    with _compiled_mie.any_size():
+        if _compiled_mie.available(1):
+            try:
+                _compiled_mie.mie_efficiencies(np.array([[1.5 + 0.1j]]), np.array([[1.0]]), np.array([2]))
+            except _compiled.Unavailable:
+                pass
+    if _compiled.available():
+        try:
+            one = np.ones(1)
+            _compiled.ellipsoid_mlwa_map(one + 1j, one, (0.0, 0.0), np.zeros(1), one, one, np.full((1, 1), 1 / 3),
+                                         np.zeros((1, 1)), one, one, 1.0)
+        except _compiled.Unavailable:
+            pass
+
+
+def _map(pool, fn, items, bar, step):
+    """[fn(item) for item in items], on the pool's workers when there is a pool; results in order."""
+    items = list(items)
+    if pool is None or len(items) < 2:
+        out = []
+        for item in items:
+            out.append(fn(item))
+            bar.update(step)
+        return out
+    futures = [pool.submit(fn, item) for item in items]
+    out = []
+    for f in futures:
+        out.append(f.result())
+        bar.update(step)
+    return out
 
 
 def _bands(band_nm):
