@@ -15,13 +15,11 @@ overshoots the data between points.
 from __future__ import annotations
 
 import csv
-import hashlib
 import io
 import math
 import os
 from dataclasses import dataclass, field
 from functools import lru_cache
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -90,6 +88,8 @@ def read_user_text(path, what: str) -> str:
 
 def _data_dir() -> Path:
     try:
+        from importlib import resources  # here, not at import (start-up)
+
         return Path(str(resources.files("nanoabs.material_data")))
     except ModuleNotFoundError:  # running from a source checkout without installing
         return Path(__file__).resolve().parents[1] / "materials"
@@ -609,6 +609,8 @@ def load_table(path, *, name: str | None = None, kind: str = "metal") -> Materia
     text = read_user_text(p, "material table")
     header, wl, n, note = _parse_table(p, text)
     info = dict(header)
+    import hashlib
+
     info["file_sha256"] = hashlib.sha256(text.encode("utf-8")).hexdigest()  # provenance of the user's file
     info.setdefault("dataset", f"user table {p.name}")
     if note:
