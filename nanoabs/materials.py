@@ -252,6 +252,11 @@ class Material:
         wl = check_positive("wavelength", wavelength_nm, unit="nm")
         if self._constant is not None:
             return np.full(wl.shape, self._constant, dtype=complex)[()]
+        # one-entry memo: searches and sweeps ask again and again for the same grid
+        key = (self.extrapolate, id(self.model))
+        memo = self.__dict__.get("_memo")
+        if memo is not None and memo[0] == key and memo[1].shape == wl.shape and np.array_equal(memo[1], wl):
+            return memo[2].copy()[()]
         out = self.outside(wl)
         if np.any(out):
             if not (self.extrapolate and self.model is not None):
@@ -273,7 +278,9 @@ class Material:
             bad = np.asarray(np.broadcast_to(wl, np.shape(n)))[~np.isfinite(n)].flat[0]
             raise NanoabsError(f"material {self.label}: optical constants are not finite at "
                                f"{bad:g} nm (data or fitted model); choose another dataset or range")
-        return np.asarray(n)[()]
+        n = np.asarray(n)
+        self.__dict__["_memo"] = (key, wl.copy(), n.copy())
+        return n[()]
 
     def permittivity(self, wavelength_nm):
         """Complex permittivity ε = (n + ik)² (ε″ ≥ 0) at vacuum wavelengths [nm].

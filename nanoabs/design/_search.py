@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import warnings as _warnings
 from collections.abc import Mapping
 
 import numpy as np
@@ -12,6 +13,7 @@ from .._version import version as _package_version
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
+from ..validity import NanoabsWarning
 from ._designs import SWEEP_AUTO, is_environment, _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
 from ._engine import collapse, progress_bar, unique
 from ._sweep import _TEXT_UNIT
@@ -373,21 +375,31 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
             problems[(fam, mi)] = _problem(cfg, fam, mi)
     _TASK.update(cfg=cfg, problems=problems)
     pool = _pool()
+    # warnings.catch_warnings is not thread-safe: the tasks' own catch_warnings (in _evaluate) may
+    # restore each other's filters; this outer one, left after the workers stop, restores the caller's
+    quiet = _warnings.catch_warnings()
+    quiet.__enter__()
+    _warnings.simplefilter("ignore", NanoabsWarning)
     try:
         for out, warn, key in _map(pool, _explore_task, list(problems), bar, 1 + n_starts):
             candidates += out
             problems[key].warnings |= warn
-        rows = []
-        for row, warn, key in _map(pool, _row_task, _choose(candidates, top), bar, 1):
-            rows.append(row)
+        chosen = _choose(candidates, top)
+        kept = []
+        for (row, warn, key), c in zip(_map(pool, _row_task, chosen, bar, 1), chosen):
             problems[key].warnings |= warn
+            if row["peak_in_band"] == "yes" or not cfg["peak_in_band"]:  # the refined peak decides
+                kept.append((row, c))
+        if cfg["recheck"]:  # only the rows kept (a recheck can be a T-matrix spectrum)
+            for (row, _), rc in zip(kept, _map(pool, _recheck_task, [c for _, c in kept], _NoBar(), 0)):
+                row.update(rc)
+        rows = [row for row, _ in kept]
     finally:
         _TASK.clear()
         if pool is not None:
             pool.shutdown(wait=True, cancel_futures=True)
+        quiet.__exit__(None, None, None)
         bar.close()
-    if cfg["peak_in_band"]:
-        rows = [r for r in rows if r["peak_in_band"] == "yes"]  # the refined peak decides
     if not rows:
         problems_w = {"no design peaks inside the band(s) within the bounds; widen the bounds, change the "
                       "families or pass peak_in_band=False to see the nearest designs"}
@@ -402,11 +414,14 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
 
 # --------------------------------------------------------------------------- parallel evaluation
 
-#: Worker processes of a search (forked; 1 or a platform without fork: everything in this process).
-#: The explore stage runs one task per family and material, the report stage one per ranked design;
-#: a task computes exactly what the sequential loop computes, so results do not depend on it.
+#: Worker threads of a search (1: everything in the calling thread).  The explore stage runs one
+#: task per family and material, the report stage one per ranked design and one recheck per row
+#: kept; a task computes exactly what the sequential loop computes, so results do not depend on it.
+#: The compiled kernels run under their own lock and the T-matrix's numpy work releases the GIL, so
+#: two threads overlap mostly in the T-matrix rechecks.  (Forked worker processes were measured too:
+#: on the loaded 2-core machine they were slower than one thread, notes/speed.md.)
 WORKERS = 2
-_TASK = {}  # cfg and problems of the running search, inherited by the forked workers
+_TASK = {}  # cfg and problems of the running search, read by the tasks
 
 
 class _NoBar:
@@ -427,27 +442,30 @@ def _row_task(c):
         return _design_row(_TASK["cfg"], prob, c), prob.warnings, key
 
 
+def _recheck_task(c):
+    cfg = _TASK["cfg"]
+    g = _geometry_of(c["family"], _to_v(cfg, c["family"], c["u"])[None, :])
+    with _compiled_mie.any_size():
+        return _recheck(cfg, c, g)
+
+
 def _pool():
-    """A pool of forked workers (they inherit `_TASK` and the loaded kernels), or None."""
-    import multiprocessing as mp
+    """A pool of `WORKERS` threads (kernels and scipy loaded first, in this thread), or None."""
     import os
 
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
     n = min(WORKERS, cores)
-    if n < 2 or "fork" not in mp.get_all_start_methods() or mp.current_process().daemon:
+    if n < 2:
         return None
-    from concurrent.futures import ProcessPoolExecutor
-
-    from ._engine import _exit_with_parent
+    from concurrent.futures import ThreadPoolExecutor
 
     _warm_up()
-    return ProcessPoolExecutor(max_workers=n, mp_context=mp.get_context("fork"), initializer=_exit_with_parent,
-                               initargs=(os.getpid(),))
+    return ThreadPoolExecutor(max_workers=n)
 
 
 def _warm_up():
-    """Load here, once, what every worker would otherwise load for itself: the compiled kernels
-    (numba's import and cache load take seconds) and the scipy modules of the search."""
+    """Load the compiled kernels (numba's import and cache load) and the search's scipy modules here,
+    once, before the worker threads could race to load them."""
     import scipy.integrate  # noqa: F401
     import scipy.optimize  # noqa: F401
 
@@ -743,9 +761,8 @@ def _design_row(cfg, prob, c):
     row["absorbed_fraction"] = float(ev["absorbed_fraction"][0])
     row["method"] = prob.settings["method"]
     row["validity"] = _validity(prob, g, cfg["window"])
-    row.update(_recheck(cfg, c, g) if cfg["recheck"] else
-               {"recheck_method": "", "recheck_peak_wavelength_nm": float("nan"),
-                "recheck_figure_of_merit": float("nan")})
+    row.update({"recheck_method": "", "recheck_peak_wavelength_nm": float("nan"),
+                "recheck_figure_of_merit": float("nan")})  # filled in by _recheck_task for the rows kept
     row["stage"] = c["stage"]
     return row
 
