@@ -143,8 +143,9 @@ def jit(numba, fn, state, **options):
     """``fn`` compiled (or loaded from numba's on-disk cache) on all cores; a failure goes to ``state``."""
     try:
         # 'arcp' (x/y as x*(1/y)) and 'contract' (fused multiply-add) let the loop vectorise;
-        # no flag that assumes finite values, so NaN/inf still propagate
-        state["kernel"] = numba.njit(parallel=True, cache=True, fastmath={"arcp", "contract"},
+        # no flag that assumes finite values, so NaN/inf still propagate; nogil: other Python threads
+        # (a search's worker threads) run while a kernel runs (kernels themselves are serialised by _LOCK)
+        state["kernel"] = numba.njit(parallel=True, cache=True, nogil=True, fastmath={"arcp", "contract"},
                                      **options)(fn)
     except Exception as exc:
         state["error"] = f"{type(exc).__name__}: {exc}"
