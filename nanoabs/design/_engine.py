@@ -12,6 +12,7 @@ from __future__ import annotations
 import hashlib
 import itertools
 import json
+import os
 import re
 import shutil
 from collections import deque
@@ -146,6 +147,44 @@ def run_chunks(executor, fn, plan, todo):
                     pass
         if own:
             executor.shutdown(wait=True, cancel_futures=True)
+
+
+class NoBar:
+    """A progress bar that shows nothing (tasks running on worker threads)."""
+
+    def update(self, n=1):
+        pass
+
+
+def thread_pool(workers, warm_up=None):
+    """A pool of min(``workers``, usable cores) threads, or None for one; ``warm_up()`` runs first,
+    in the calling thread (load what the threads would otherwise race to load)."""
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    if min(workers, cores) < 2:
+        return None
+    from concurrent.futures import ThreadPoolExecutor
+
+    if warm_up is not None:
+        warm_up()
+    return ThreadPoolExecutor(max_workers=min(workers, cores))
+
+
+def map_ordered(pool, fn, items, bar, step):
+    """[fn(item) for item in items], on the pool's threads when there is a pool; results in order,
+    ``bar.update(step)`` as each is collected."""
+    items = list(items)
+    if pool is None or len(items) < 2:
+        out = []
+        for item in items:
+            out.append(fn(item))
+            bar.update(step)
+        return out
+    futures = [pool.submit(fn, item) for item in items]
+    out = []
+    for f in futures:
+        out.append(f.result())
+        bar.update(step)
+    return out
 
 
 def _exit_with_parent(parent_pid, period_s=1.0):

@@ -15,7 +15,7 @@ from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
 from ..validity import NanoabsWarning
 from ._designs import SWEEP_AUTO, is_environment, _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
-from ._engine import collapse, progress_bar, unique
+from ._engine import NoBar, collapse, map_ordered, progress_bar, thread_pool, unique
 from ._sweep import _TEXT_UNIT
 
 #: Particle families of :func:`search`.
@@ -374,24 +374,24 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         for mi in range(len(cfg["mats"])):
             problems[(fam, mi)] = _problem(cfg, fam, mi)
     _TASK.update(cfg=cfg, problems=problems)
-    pool = _pool()
+    pool = thread_pool(WORKERS, _warm_up)
     # warnings.catch_warnings is not thread-safe: the tasks' own catch_warnings (in _evaluate) may
     # restore each other's filters; this outer one, left after the workers stop, restores the caller's
     quiet = _warnings.catch_warnings()
     quiet.__enter__()
     _warnings.simplefilter("ignore", NanoabsWarning)
     try:
-        for out, warn, key in _map(pool, _explore_task, list(problems), bar, 1 + n_starts):
+        for out, warn, key in map_ordered(pool, _explore_task, list(problems), bar, 1 + n_starts):
             candidates += out
             problems[key].warnings |= warn
         chosen = _choose(candidates, top)
         kept = []
-        for (row, warn, key), c in zip(_map(pool, _row_task, chosen, bar, 1), chosen):
+        for (row, warn, key), c in zip(map_ordered(pool, _row_task, chosen, bar, 1), chosen):
             problems[key].warnings |= warn
             if row["peak_in_band"] == "yes" or not cfg["peak_in_band"]:  # the refined peak decides
                 kept.append((row, c))
         if cfg["recheck"]:  # only the rows kept (a recheck can be a T-matrix spectrum)
-            for (row, _), rc in zip(kept, _map(pool, _recheck_task, [c for _, c in kept], _NoBar(), 0)):
+            for (row, _), rc in zip(kept, map_ordered(pool, _recheck_task, [c for _, c in kept], NoBar(), 0)):
                 row.update(rc)
         rows = [row for row, _ in kept]
     finally:
@@ -417,22 +417,17 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
 #: Worker threads of a search (1: everything in the calling thread).  The explore stage runs one
 #: task per family and material, the report stage one per ranked design and one recheck per row
 #: kept; a task computes exactly what the sequential loop computes, so results do not depend on it.
-#: The compiled kernels run under their own lock and the T-matrix's numpy work releases the GIL, so
-#: two threads overlap mostly in the T-matrix rechecks.  (Forked worker processes were measured too:
-#: on the loaded 2-core machine they were slower than one thread, notes/speed.md.)
+#: The compiled kernels release the GIL (one kernel call at a time); the numpy-heavy T-matrix
+#: rechecks hold it for much of their time, so on the loaded 2-core test machine two threads
+#: measured about the same as one, and forked processes slower (notes/speed.md).
 WORKERS = 2
 _TASK = {}  # cfg and problems of the running search, read by the tasks
-
-
-class _NoBar:
-    def update(self, n=1):
-        pass
 
 
 def _explore_task(key):
     prob = _TASK["problems"][key]
     with _compiled_mie.any_size():  # many small Mie spectra: the compiled kernel, loaded once
-        return _explore(_TASK["cfg"], prob, key[1], _NoBar()), prob.warnings, key
+        return _explore(_TASK["cfg"], prob, key[1], NoBar()), prob.warnings, key
 
 
 def _row_task(c):
@@ -447,20 +442,6 @@ def _recheck_task(c):
     g = _geometry_of(c["family"], _to_v(cfg, c["family"], c["u"])[None, :])
     with _compiled_mie.any_size():
         return _recheck(cfg, c, g)
-
-
-def _pool():
-    """A pool of `WORKERS` threads (kernels and scipy loaded first, in this thread), or None."""
-    import os
-
-    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
-    n = min(WORKERS, cores)
-    if n < 2:
-        return None
-    from concurrent.futures import ThreadPoolExecutor
-
-    _warm_up()
-    return ThreadPoolExecutor(max_workers=n)
 
 
 def _warm_up():
@@ -484,23 +465,6 @@ def _warm_up():
                                          np.zeros((1, 1)), one, one, 1.0)
         except _compiled.Unavailable:
             pass
-
-
-def _map(pool, fn, items, bar, step):
-    """[fn(item) for item in items], on the pool's workers when there is a pool; results in order."""
-    items = list(items)
-    if pool is None or len(items) < 2:
-        out = []
-        for item in items:
-            out.append(fn(item))
-            bar.update(step)
-        return out
-    futures = [pool.submit(fn, item) for item in items]
-    out = []
-    for f in futures:
-        out.append(f.result())
-        bar.update(step)
-    return out
 
 
 def _bands(band_nm):
