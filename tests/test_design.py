@@ -631,7 +631,6 @@ def test_search_on_worker_threads_equals_the_search_in_one_thread(monkeypatch):
     assert warnings.filters == filters
     assert_frame_equal(pooled, alone, check_exact=True)
     assert pooled.attrs["metadata"]["warnings"] == alone.attrs["metadata"]["warnings"]
-    assert not _search._TASK  # nothing of the search is left behind
 
 
 # --------------------------------------------------------------------------- bad inputs

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 import warnings as _warnings
 from collections.abc import Mapping
+from functools import partial
 
 import numpy as np
 
@@ -373,7 +374,6 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     for fam in cfg["families"]:
         for mi in range(len(cfg["mats"])):
             problems[(fam, mi)] = _problem(cfg, fam, mi)
-    _TASK.update(cfg=cfg, problems=problems)
     pool = thread_pool(WORKERS, _warm_up)
     # warnings.catch_warnings is not thread-safe: the tasks' own catch_warnings (in _evaluate) may
     # restore each other's filters; this outer one, left after the workers stop, restores the caller's
@@ -381,21 +381,19 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     quiet.__enter__()
     _warnings.simplefilter("ignore", NanoabsWarning)
     try:
-        for out, warn, key in map_ordered(pool, _explore_task, list(problems), bar, 1 + n_starts):
+        for out in map_ordered(pool, partial(_explore_task, cfg, problems), list(problems), bar, 1 + n_starts):
             candidates += out
-            problems[key].warnings |= warn
         chosen = _choose(candidates, top)
-        kept = []
-        for (row, warn, key), c in zip(map_ordered(pool, _row_task, chosen, bar, 1), chosen):
-            problems[key].warnings |= warn
+        kept = []  # the tasks add their warnings to problems[...].warnings themselves
+        for row, c in zip(map_ordered(pool, partial(_row_task, cfg, problems), chosen, bar, 1), chosen):
             if row["peak_in_band"] == "yes" or not cfg["peak_in_band"]:  # the refined peak decides
                 kept.append((row, c))
         if cfg["recheck"]:  # only the rows kept (a recheck can be a T-matrix spectrum)
-            for (row, _), rc in zip(kept, map_ordered(pool, _recheck_task, [c for _, c in kept], NoBar(), 0)):
+            rechecks = map_ordered(pool, partial(_recheck_task, cfg), [c for _, c in kept], NoBar(), 0)
+            for (row, _), rc in zip(kept, rechecks):
                 row.update(rc)
         rows = [row for row, _ in kept]
     finally:
-        _TASK.clear()
         if pool is not None:
             pool.shutdown(wait=True, cancel_futures=True)
         quiet.__exit__(None, None, None)
@@ -421,24 +419,19 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
 #: rechecks hold it for much of their time, so on the loaded 2-core test machine two threads
 #: measured about the same as one, and forked processes slower (notes/speed.md).
 WORKERS = 2
-_TASK = {}  # cfg and problems of the running search, read by the tasks
 
 
-def _explore_task(key):
-    prob = _TASK["problems"][key]
+def _explore_task(cfg, problems, key):
     with _compiled_mie.any_size():  # many small Mie spectra: the compiled kernel, loaded once
-        return _explore(_TASK["cfg"], prob, key[1], NoBar()), prob.warnings, key
+        return _explore(cfg, problems[key], key[1], NoBar())
 
 
-def _row_task(c):
-    key = (c["family"], c["mi"])
-    prob = _TASK["problems"][key]
+def _row_task(cfg, problems, c):
     with _compiled_mie.any_size():
-        return _design_row(_TASK["cfg"], prob, c), prob.warnings, key
+        return _design_row(cfg, problems[(c["family"], c["mi"])], c)
 
 
-def _recheck_task(c):
-    cfg = _TASK["cfg"]
+def _recheck_task(cfg, c):
     g = _geometry_of(c["family"], _to_v(cfg, c["family"], c["u"])[None, :])
     with _compiled_mie.any_size():
         return _recheck(cfg, c, g)
