@@ -5,27 +5,15 @@ Submodules with more functions: ``nanoabs.illumination``, ``nanoabs.hotcarriers`
 ``nanoabs.quasistatic``, ``nanoabs.mie``, ``nanoabs.plotting``.
 """
 
-def _version() -> str:
-    """The installed distribution's version (pyproject.toml is the one source of it)."""
-    from importlib.metadata import PackageNotFoundError, version
-
-    try:
-        return version("nanoabs")
-    except PackageNotFoundError:  # a source tree on sys.path without an installation
-        return "0+unknown"
-
-
-__version__ = _version()
-
-from ._errors import NanoabsError  # noqa: E402
-from .drude_lorentz import DrudeLorentz, Oscillator, fit_drude_lorentz, rakic_1998  # noqa: E402
-from .materials import Material, load_table, material  # noqa: E402
-from .particles import CappedRod, Cylinder, Ellipsoid, LayeredSphere, RoundedDisc, Sphere, spheroid  # noqa: E402
-from .optics import Spectrum, spectrum  # noqa: E402
-from .environments import buried, homogeneous, on_substrate  # noqa: E402
-from .detector import HotCarrierResult, hot_carrier_estimate  # noqa: E402
-from .export import read_export, write_export  # noqa: E402
-from . import design, illumination  # noqa: E402
+from ._errors import NanoabsError
+from .drude_lorentz import DrudeLorentz, Oscillator, fit_drude_lorentz, rakic_1998
+from .materials import Material, load_table, material
+from .particles import CappedRod, Cylinder, Ellipsoid, LayeredSphere, RoundedDisc, Sphere, spheroid
+from .optics import Spectrum, spectrum
+from .environments import buried, homogeneous, on_substrate
+from .detector import HotCarrierResult, hot_carrier_estimate
+from .export import read_export, write_export
+from . import design, illumination
 
 __all__ = [
     "__version__",
@@ -56,3 +44,16 @@ __all__ = [
     "illumination",
     "design",
 ]
+
+
+def __getattr__(name):
+    """``__version__`` is read from the installed distribution on first use (start-up time)."""
+    if name == "__version__":
+        from ._version import version
+
+        return version()
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | {"__version__"})

@@ -143,8 +143,9 @@ def jit(numba, fn, state, **options):
     """``fn`` compiled (or loaded from numba's on-disk cache) on all cores; a failure goes to ``state``."""
     try:
         # 'arcp' (x/y as x*(1/y)) and 'contract' (fused multiply-add) let the loop vectorise;
-        # no flag that assumes finite values, so NaN/inf still propagate
-        state["kernel"] = numba.njit(parallel=True, cache=True, fastmath={"arcp", "contract"},
+        # no flag that assumes finite values, so NaN/inf still propagate; nogil: other Python threads
+        # (a search's worker threads) run while a kernel runs (kernels themselves are serialised by _LOCK)
+        state["kernel"] = numba.njit(parallel=True, cache=True, nogil=True, fastmath={"arcp", "contract"},
                                      **options)(fn)
     except Exception as exc:
         state["error"] = f"{type(exc).__name__}: {exc}"
@@ -163,9 +164,24 @@ def _build():
     return jit(numba, _mlwa_kernel, _STATE)
 
 
-def call(kernel, state, *args):
-    """Run ``kernel(*args)`` under the lock; a first-call compile failure is remembered in ``state``."""
+#: Calls with fewer points than this run on one thread: waking numba's pool costs more than such a
+#: call takes (on a loaded 2-core machine several milliseconds, against 0.1-1 ms of work).  Every
+#: point is computed the same way on any number of threads, so the results do not depend on it.
+SERIAL_POINTS = 20_000
+
+
+def call(kernel, state, *args, n_points=None):
+    """Run ``kernel(*args)`` under the lock; a first-call compile failure is remembered in ``state``.
+
+    ``n_points`` below `SERIAL_POINTS`: on one thread.
+    """
     with _LOCK:
+        serial = n_points is not None and n_points < SERIAL_POINTS
+        if serial:
+            import numba
+
+            threads = numba.get_num_threads()
+            numba.set_num_threads(1)
         try:
             return kernel(*args)
         except Exception as exc:  # compilation failed on this platform: remember, use numpy
@@ -173,6 +189,9 @@ def call(kernel, state, *args):
                 state["kernel"], state["error"] = None, f"{type(exc).__name__}: {exc}"
                 raise Unavailable(f"compiled path unavailable: {state['error']}") from None
             raise
+        finally:
+            if serial:
+                numba.set_num_threads(threads)
 
 
 def available() -> bool:
@@ -240,5 +259,5 @@ def ellipsoid_mlwa_map(eps_bulk, energy_eV, drude, extra_eV, eps_medium, k, depo
                          c(eps_m), c(k2), c(k2 * k / (6.0 * np.pi)), c(k * scale),
                          c(k2 * k2 / (6.0 * np.pi) * scale), c(depol, dtype=f64),
                          c(dyn_over_4pi_a, dtype=f64), c(weights, dtype=f64), c(volume, dtype=f64),
-                         sa, ss, se)
+                         sa, ss, se, n_points=sa.size)
     return sa, ss, se, int(n_clip), int(n_bad)

@@ -37,6 +37,9 @@ cache is keyed on this file, which holds every function the kernel compiles.
 
 from __future__ import annotations
 
+import threading
+from contextlib import contextmanager
+
 import numpy as np
 
 from . import _compiled
@@ -382,12 +385,30 @@ def _build():
     return _compiled.jit(numba, _mie_kernel, _STATE, error_model="numpy")
 
 
+_SCOPE = threading.local()
+
+
+@contextmanager
+def any_size():
+    """Within this block (in this thread) the kernel serves grids of any size, not only >= `MIN_POINTS`.
+
+    For callers that compute many small spectra in one process (the band search), where the
+    kernel's load is paid once.  A rule fixed by the caller, like `MIN_POINTS`: what ran before
+    never changes which path a result takes.
+    """
+    _SCOPE.depth = getattr(_SCOPE, "depth", 0) + 1
+    try:
+        yield
+    finally:
+        _SCOPE.depth -= 1
+
+
 def available(n_points=None) -> bool:
     """Whether the compiled Mie path is enabled (``nanoabs._compiled.ENABLED``) and numba imports.
 
-    With ``n_points``: also whether a grid of that size should use it (see `MIN_POINTS`).
+    With ``n_points``: also whether a grid of that size should use it (see `MIN_POINTS`, `any_size`).
     """
-    if n_points is not None and n_points < MIN_POINTS:
+    if n_points is not None and n_points < MIN_POINTS and not getattr(_SCOPE, "depth", 0):
         return False
     return _compiled.ENABLED and _build() is not None
 
@@ -404,5 +425,5 @@ def mie_efficiencies(m, x, n_stop):
     qsca, qabs = np.empty(n_pts), np.empty(n_pts)
     c = np.ascontiguousarray
     _compiled.call(kernel, _STATE, c(m, dtype=np.complex128), c(x, dtype=np.float64),
-                   c(n_stop, dtype=np.int64), qsca, qabs)
+                   c(n_stop, dtype=np.int64), qsca, qabs, n_points=n_pts)
     return qsca, qabs

@@ -6,7 +6,6 @@ what is allowed, so the CLI can print it as it is and exit with a non-zero code.
 
 from __future__ import annotations
 
-import difflib
 import math
 from typing import Iterable
 
@@ -118,6 +117,8 @@ def suggest(word: str, choices: Iterable[str]) -> str:
     """A ' (did you mean X?)' hint, or '' when nothing is close."""
     choices = list(choices)
     lower = {c.lower(): c for c in choices}
+    import difflib  # here, not at import (start-up)
+
     close = difflib.get_close_matches(str(word).lower(), list(lower), n=1, cutoff=0.6)
     return f" (did you mean {lower[close[0]]!r}?)" if close else ""
 

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__
+from ._version import version as _package_version
 from ._units import parse_irradiance
 from .validity import NanoabsWarning
 from ._errors import NanoabsError
@@ -171,7 +171,7 @@ def _cmd_materials(args) -> int:
             d = md.to_dict()
             d.update({"material": m.name, "source": m.source, "range_nm": list(res.range_nm),
                       "rms_relative_error": res.rms_relative_error,
-                      "fitted_by": f"nanoabs {__version__}"})
+                      "fitted_by": f"nanoabs {_package_version()}"})
             text = json.dumps(d, indent=2) + "\n"
             write_file_atomic(args.save, lambda fh: fh.write(text), force=args.force)
             print(f"wrote {args.save}")
@@ -332,16 +332,16 @@ def _cmd_spectrum(args) -> int:
     particle, spec = _spectrum_from_args(args)
     _print_warnings(spec.metadata)
     summ = spec.summary()
-    frame = spec.to_frame()
+    cols = spec.to_arrays()
     if args.output:
         spec.write(args.output, force=args.force)
         print(f"wrote {args.output}")
     else:
-        step = max(1, len(frame) // 20)
+        step = max(1, len(cols["wavelength_nm"]) // 20)
         print(f"{'wavelength_nm':>13s} {'sigma_abs_m2':>13s} {'sigma_sca_m2':>13s} {'q_abs':>8s} {'q_sca':>8s}")
-        for _, r in frame.iloc[::step].iterrows():
-            print(f"{r.wavelength_nm:13.1f} {r.sigma_abs_m2:13.4e} {r.sigma_sca_m2:13.4e} {r.q_abs:8.4f} "
-                  f"{r.q_sca:8.4f}")
+        for wl, sa, ss, qa, qs in zip(*(cols[c][::step] for c in ("wavelength_nm", "sigma_abs_m2", "sigma_sca_m2",
+                                                                   "q_abs", "q_sca"))):
+            print(f"{wl:13.1f} {sa:13.4e} {ss:13.4e} {qa:8.4f} {qs:8.4f}")
     fwhm = summ["fwhm_nm"]
     peak = (f"absorption peak {summ['peak_wavelength_nm']:.1f} nm" if summ["peak_status"] == "peak"
             else f"no absorption peak in the window ({summ['peak_status']})")
@@ -888,10 +888,21 @@ def _register_study_commands(sub):
     d.set_defaults(func=_cmd_demo)
 
 
+class _VersionAction(argparse.Action):
+    """--version: reads the installed version only when asked (importlib.metadata is slow to import)."""
+
+    def __init__(self, option_strings, dest, **kw):
+        super().__init__(option_strings, dest, nargs=0, help="show the version and exit", **kw)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        print(f"nanoabs {_package_version()}")
+        parser.exit()
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="nanoabs", description="Absorption of metal nanoparticles for hot-carrier "
                 "photodetectors: optical constants, spectra, absorbed power, injection estimates.")
-    p.add_argument("--version", action="version", version=f"nanoabs {__version__}")
+    p.add_argument("--version", action=_VersionAction)
     p.add_argument("--debug", action="store_true", help="show tracebacks of internal errors")
     sub = p.add_subparsers(dest="command", parser_class=_Parser)
 

@@ -39,7 +39,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import _si as _c
-from . import __version__
+from ._version import version as _package_version
 from . import carriers as cr
 from . import hotcarriers as hc
 from ._errors import NanoabsError, check_flag, check_nonnegative, check_positive
@@ -745,7 +745,7 @@ def hot_carrier_estimate(spec, particle, illumination, *, barrier_eV=None, conta
         "density_per_um2": density_per_um2,
         "thermal_conductivity_W_mK": kappa, "thermal_conductivity_source": kappa_src,
         "methods": _methods(geometry, generation, surface_emission, fermi_smearing), "notes": list(dict.fromkeys(notes)), "warnings": warnings,
-        "safety_caution": hc.SAFETY_CAUTION, "package_version": __version__,
+        "safety_caution": hc.SAFETY_CAUTION, "package_version": _package_version(),
     })
     return HotCarrierResult(frame, totals, meta, units)
 

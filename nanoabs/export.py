@@ -172,12 +172,43 @@ def _column_dtype(name: str, series: pd.Series) -> str:
     )
 
 
-def _check_frame(frame, units) -> list[dict]:
-    import pandas as pd
+def _check_columns(data: Mapping) -> list[str]:
+    """Names of a dict of columns; each must be a 1-D float, int, uint or bool array, all equally long."""
+    names = list(data)
+    lengths = set()
+    for name in names:
+        a = np.asarray(data[name]) if isinstance(name, str) and name else None
+        if a is not None and (a.ndim != 1 or a.dtype.kind not in "fiub"):
+            raise NanoabsError(f"frame[{name!r}]: a dict of columns needs 1-D float, int, uint or bool "
+                               f"arrays, found shape {a.shape} dtype {a.dtype} (use a DataFrame for text)")
+        lengths.add(None if a is None else a.shape[0])
+    if len(lengths - {None}) > 1:
+        raise NanoabsError(f"frame: the columns have different lengths {sorted(lengths - {None})}; "
+                           "give equally long columns")
+    return names
 
-    if not isinstance(frame, pd.DataFrame):
-        raise NanoabsError(f"frame = {type(frame).__name__}: must be a pandas DataFrame")
-    names = list(frame.columns)
+
+def _column(frame, name: str) -> np.ndarray:
+    """One column of a DataFrame or of a dict of columns, as a numpy array."""
+    return np.asarray(frame[name]) if isinstance(frame, Mapping) else frame[name].to_numpy()
+
+
+def _n_rows(frame) -> int:
+    if isinstance(frame, Mapping):
+        return int(np.asarray(next(iter(frame.values()))).shape[0]) if frame else 0
+    return int(len(frame))
+
+
+def _check_frame(frame, units) -> list[dict]:
+    if isinstance(frame, Mapping):  # a dict of numeric columns: no pandas needed (start-up of the CLI)
+        names = _check_columns(frame)
+    else:
+        import pandas as pd
+
+        if not isinstance(frame, pd.DataFrame):
+            raise NanoabsError(f"frame = {type(frame).__name__}: must be a pandas DataFrame or a dict "
+                               "of column name -> 1-D numeric array")
+        names = list(frame.columns)
     if not names:
         raise NanoabsError("frame has no columns: give at least one column")
     bad = [n for n in names if not isinstance(n, str) or not n]
@@ -201,7 +232,8 @@ def _check_frame(frame, units) -> list[dict]:
             raise NanoabsError(
                 f"units[{name!r}] = {unit!r}: must be a non-empty str ('1' for dimensionless)"
             )
-        columns.append({"name": name, "unit": unit, "dtype": _column_dtype(name, frame[name])})
+        dtype = str(np.asarray(frame[name]).dtype) if isinstance(frame, Mapping) else _column_dtype(name, frame[name])
+        columns.append({"name": name, "unit": unit, "dtype": dtype})
     return columns
 
 
@@ -261,10 +293,10 @@ def _package_version() -> str:
         return "unknown"
 
 
-def _json_data(frame: pd.DataFrame, columns: list[dict]) -> dict:
+def _json_data(frame, columns: list[dict]) -> dict:
     data = {}
     for col in columns:
-        values = frame[col["name"]].to_numpy()
+        values = _column(frame, col["name"])
         kind = np.dtype(col["dtype"]).kind if col["dtype"] not in _TEXT_DTYPES else "U"
         if kind == "f":
             if np.isinf(values).any():
@@ -330,10 +362,11 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
 
     Parameters
     ----------
-    frame : pandas.DataFrame
+    frame : pandas.DataFrame or dict
         The table; column names carry the unit (``wavelength_nm``, ``sigma_abs_m2``).
         Columns may be float, int, uint, bool or text. The index is not written
-        (call ``reset_index()`` first to keep it).
+        (call ``reset_index()`` first to keep it). A dict of column name -> 1-D
+        float, int, uint or bool array is written the same way without pandas.
     path : str or os.PathLike
         ``*.csv`` writes ``path`` and ``path.with_suffix('.json')``; ``*.json``
         writes one file holding the sidecar and the data.
@@ -371,7 +404,7 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
         "package_version": _package_version(),
         "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "data_file": None if single else targets[0].name,
-        "rows": int(len(frame)),
+        "rows": _n_rows(frame),
         "columns": columns,
         "provenance": provenance(metadata),
         "metadata": _jsonable(metadata, ""),
@@ -383,13 +416,27 @@ def write_export(frame, path, *, metadata, units, force: bool = False) -> tuple[
         # float32/float16 go out as the float64 repr of their exact value, so
         # parsing as float64 and casting back is exact
         wide = {c["name"]: "float64" for c in columns if c["dtype"] in ("float16", "float32")}
-        table = frame.astype(wide) if wide else frame
-        writers.append((targets[0], lambda fh: table.to_csv(fh, index=False, na_rep="nan",
-                                                            lineterminator="\n")))
+        if isinstance(frame, Mapping):
+            writers.append((targets[0], lambda fh: _write_csv_columns(fh, frame, wide)))
+        else:
+            table = frame.astype(wide) if wide else frame
+            writers.append((targets[0], lambda fh: table.to_csv(fh, index=False, na_rep="nan",
+                                                                lineterminator="\n")))
     writers.append((targets[-1], lambda fh: fh.write(json_text)))
     with exclusive_lock(targets[0], "export"):  # a CSV never lands beside another writer's sidecar
         check_writable(path, force=force)
         return place_together(writers)
+
+
+def _write_csv_columns(fh, data: Mapping, wide: dict) -> None:
+    """A dict of numeric columns as CSV, byte for byte what ``DataFrame.to_csv(fh, index=False,
+    na_rep="nan", lineterminator="\\n")`` writes for the same columns (pandas formats each value with
+    numpy's shortest round-trip ``astype(str)`` and quotes like the csv module; tests/test_export.py
+    compares the bytes), without importing pandas."""
+    writer = csv.writer(fh, lineterminator="\n")
+    writer.writerow(list(data))
+    cols = [np.asarray(data[name], dtype=wide.get(name)).astype(str) for name in data]
+    writer.writerows(zip(*cols))
 
 
 def place_together(writers) -> tuple[Path, ...]:

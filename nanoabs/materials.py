@@ -15,13 +15,11 @@ overshoots the data between points.
 from __future__ import annotations
 
 import csv
-import hashlib
 import io
 import math
 import os
 from dataclasses import dataclass, field
 from functools import lru_cache
-from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -90,6 +88,8 @@ def read_user_text(path, what: str) -> str:
 
 def _data_dir() -> Path:
     try:
+        from importlib import resources  # here, not at import (start-up)
+
         return Path(str(resources.files("nanoabs.material_data")))
     except ModuleNotFoundError:  # running from a source checkout without installing
         return Path(__file__).resolve().parents[1] / "materials"
@@ -252,6 +252,11 @@ class Material:
         wl = check_positive("wavelength", wavelength_nm, unit="nm")
         if self._constant is not None:
             return np.full(wl.shape, self._constant, dtype=complex)[()]
+        # one-entry memo: searches and sweeps ask again and again for the same grid
+        key = (self.extrapolate, id(self.model))
+        memo = self.__dict__.get("_memo")
+        if memo is not None and memo[0] == key and memo[1].shape == wl.shape and np.array_equal(memo[1], wl):
+            return memo[2].copy()[()]
         out = self.outside(wl)
         if np.any(out):
             if not (self.extrapolate and self.model is not None):
@@ -273,7 +278,9 @@ class Material:
             bad = np.asarray(np.broadcast_to(wl, np.shape(n)))[~np.isfinite(n)].flat[0]
             raise NanoabsError(f"material {self.label}: optical constants are not finite at "
                                f"{bad:g} nm (data or fitted model); choose another dataset or range")
-        return np.asarray(n)[()]
+        n = np.asarray(n)
+        self.__dict__["_memo"] = (key, wl.copy(), n.copy())
+        return n[()]
 
     def permittivity(self, wavelength_nm):
         """Complex permittivity ε = (n + ik)² (ε″ ≥ 0) at vacuum wavelengths [nm].
@@ -503,14 +510,65 @@ def _load_cached(key: str, source: str):
     return header, wl, n, note, model
 
 
+class _Pchip:
+    """Piecewise-cubic Hermite interpolant with Fritsch & Carlson's (1980) monotone derivatives.
+
+    Interior derivatives: 0 where the neighbouring secant slopes m_{k-1}, m_k differ in
+    sign or one is 0, else the weighted harmonic mean 1/d_k = (w1/m_{k-1} + w2/m_k) /
+    (w1 + w2), w1 = 2h_k + h_{k-1}, w2 = h_k + 2h_{k-1} (Fritsch & Carlson, SIAM J.
+    Numer. Anal. 17, 238 (1980), with the weights of Fritsch & Butland (1984) (from
+    memory)); end derivatives from the one-sided three-point formula, limited to keep the
+    shape (Moler, Numerical Computing with MATLAB (2004), Sec. 3.6, pchiptx (from
+    memory)).  Two points give the straight line.  NaN outside [x_0, x_N].  Written in
+    numpy so that reading a material does not import scipy.interpolate (start-up);
+    tests/test_materials.py holds it to 1e-12 of ``scipy.interpolate.PchipInterpolator``.
+    """
+
+    def __init__(self, x, y):
+        x = np.asarray(x, dtype=float)
+        y = np.asarray(y, dtype=float)
+        h = np.diff(x)
+        m = np.diff(y) / h
+        if y.size == 2:
+            d = np.array([m[0], m[0]])
+        else:
+            d = np.zeros_like(y)
+            w1, w2 = 2.0 * h[1:] + h[:-1], h[1:] + 2.0 * h[:-1]
+            flat = (np.sign(m[1:]) != np.sign(m[:-1])) | (m[1:] == 0) | (m[:-1] == 0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                whmean = (w1 / m[:-1] + w2 / m[1:]) / (w1 + w2)
+            d[1:-1][~flat] = 1.0 / whmean[~flat]
+            d[0] = self._end(h[0], h[1], m[0], m[1])
+            d[-1] = self._end(h[-1], h[-2], m[-1], m[-2])
+        # cubic per interval in s = x - x_k: y_k + d_k s + c1 s^2 + c0 s^3
+        t = (d[:-1] + d[1:] - 2.0 * m) / h
+        self._x = x
+        self._c = (t / h, (m - d[:-1]) / h - t, d[:-1], y[:-1])
+
+    @staticmethod
+    def _end(h0, h1, m0, m1):
+        d = ((2.0 * h0 + h1) * m0 - h0 * m1) / (h0 + h1)
+        if np.sign(d) != np.sign(m0):
+            return 0.0
+        if np.sign(m0) != np.sign(m1) and abs(d) > 3.0 * abs(m0):
+            return 3.0 * m0
+        return d
+
+    def __call__(self, xq):
+        xq = np.asarray(xq, dtype=float)
+        x = self._x
+        k = np.clip(np.searchsorted(x, xq, side="right") - 1, 0, x.size - 2)
+        s = xq - x[k]
+        c0, c1, c2, c3 = (c[k] for c in self._c)
+        out = c3 + s * c2 + s * s * c1 + s * s * s * c0
+        return np.where((xq >= x[0]) & (xq <= x[-1]), out, np.nan)
+
+
 def _interpolants(wl, n):
     """PCHIP interpolants of n and k on log(λ) (shape-preserving, no overshoot between points)."""
-    from scipy.interpolate import PchipInterpolator
-
     x = np.log(wl)
     with np.errstate(divide="ignore", over="ignore", invalid="ignore"):  # flat runs (k = 0)
-        return (PchipInterpolator(x, n.real, extrapolate=False),
-                PchipInterpolator(x, n.imag, extrapolate=False))
+        return _Pchip(x, n.real), _Pchip(x, n.imag)
 
 
 @lru_cache(maxsize=None)
@@ -558,6 +616,8 @@ def load_table(path, *, name: str | None = None, kind: str = "metal") -> Materia
     text = read_user_text(p, "material table")
     header, wl, n, note = _parse_table(p, text)
     info = dict(header)
+    import hashlib
+
     info["file_sha256"] = hashlib.sha256(text.encode("utf-8")).hexdigest()  # provenance of the user's file
     info.setdefault("dataset", f"user table {p.name}")
     if note:

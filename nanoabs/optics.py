@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import __version__
+from ._version import version as _package_version
 from ._errors import NanoabsError, check_finite_array, check_flag
 from .drude_lorentz import surface_damping_eV
 from .particles import _plain, check_size_family, resolve_polarization
@@ -257,18 +257,22 @@ class Spectrum:
 
         meta = dict(self.metadata)
         meta["summary"] = self.summary()
-        return write_export(self.to_frame(), path, metadata=meta, units=UNITS, force=force)
+        return write_export(self.to_arrays(), path, metadata=meta, units=UNITS, force=force)
+
+    def to_arrays(self) -> dict:
+        """The columns of :meth:`to_frame` as a dict of 1-D numpy arrays (no pandas needed)."""
+        if np.ndim(self.sigma_abs_m2) != 1:
+            raise NanoabsError("to_frame() and to_arrays() are for one particle; use nanoabs.design.sweep for families")
+        data = {"wavelength_nm": np.asarray(self.wavelength_nm, dtype=float)}
+        for c in FRAME_COLUMNS[1:]:
+            data[c] = np.broadcast_to(np.asarray(getattr(self, c), dtype=float), self.wavelength_nm.shape)
+        return data
 
     def to_frame(self):
         """pandas DataFrame with :data:`FRAME_COLUMNS` (one particle: one row per wavelength)."""
         import pandas as pd
 
-        if np.ndim(self.sigma_abs_m2) != 1:
-            raise NanoabsError("to_frame() is for one particle; use nanoabs.design.sweep for families")
-        data = {"wavelength_nm": self.wavelength_nm}
-        for c in FRAME_COLUMNS[1:]:
-            data[c] = np.broadcast_to(np.asarray(getattr(self, c), dtype=float), self.wavelength_nm.shape)
-        return pd.DataFrame(data, columns=FRAME_COLUMNS)
+        return pd.DataFrame(self.to_arrays(), columns=FRAME_COLUMNS)
 
 
 PEAK_STATUS = ("peak", "rises beyond the short end of the window", "rises beyond the long end of the window",
@@ -482,7 +486,7 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
         "surface_damping": notes["surface_damping"] if surface_damping else "off",
         "warnings": [c.message for c in cautions],
         "cautions": [c.to_dict() for c in cautions],
-        "package_version": __version__,
+        "package_version": _package_version(),
         **resp.metadata,
     }
     emit(cautions)

@@ -198,3 +198,26 @@ def test_later_d1_start_gives_identical_values(z, monkeypatch):
     start = mie.d1_start
     monkeypatch.setattr(mie, "d1_start", lambda az, ns: start(az, ns) + 60)
     np.testing.assert_array_equal(mie._d1_down(z, n_store), d)
+
+
+def test_any_size_scope_and_one_thread_small_calls(monkeypatch):
+    # Reference: the numpy path (the oracle of this file), 1e-12. Below MIN_POINTS spectrum() uses
+    # numpy unless the caller opened _compiled_mie.any_size() (the band search does); small calls run
+    # the kernel on one thread (_compiled.SERIAL_POINTS), which must not change a single bit.
+    monkeypatch.setattr(_compiled_mie, "MIN_POINTS", 20_000)
+    shell = nanoabs.LayeredSphere("SiO2", np.array([[30.0], [60.0]]), [("Au", 8.0)])
+    wl = np.linspace(500.0, 1200.0, 71)
+    ref = nanoabs.spectrum(shell, wl, medium="water")
+    assert ref.metadata["solver_backend"] == "numpy"
+    with _compiled_mie.any_size():
+        fast = nanoabs.spectrum(shell, wl, medium="water")
+    assert fast.metadata["solver_backend"] == "compiled (numba)"
+    assert nanoabs.spectrum(shell, wl, medium="water").metadata["solver_backend"] == "numpy"  # scope closed
+    np.testing.assert_allclose(fast.sigma_ext_m2, ref.sigma_ext_m2, rtol=RTOL, atol=0)
+    np.testing.assert_allclose(fast.sigma_abs_m2, ref.sigma_abs_m2, rtol=RTOL, atol=0)
+    m = np.array([[1.2 + 0.0j] * 300, [0.4 + 3.0j] * 300])
+    x = np.array([np.linspace(0.5, 3.0, 300), np.linspace(0.8, 4.0, 300)])
+    serial = _kernel(m, x)
+    monkeypatch.setattr(_compiled, "SERIAL_POINTS", 0)
+    threaded = _kernel(m, x)
+    assert all(np.array_equal(a, b) for a, b in zip(serial, threaded))

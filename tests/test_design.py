@@ -659,6 +659,28 @@ def test_search_ranks_families_and_reports_columns(tmp_path):
     assert shell.dpeak_d_thickness_nm < 0
 
 
+def test_search_on_worker_threads_equals_the_search_in_one_thread(monkeypatch):
+    # Source: contract — the worker threads run the same tasks as the one-thread loop, so the
+    # ranked table (every number, the warnings) is identical whatever the number of workers; the
+    # caller's warning filters are left as they were (catch_warnings is not thread-safe).
+    import warnings
+
+    from nanoabs.design import _search
+
+    def run():
+        return design.search((780.0, 820.0), families=["sphere", "shell", "rod"], objective="sigma_abs",
+                             top=5, n_starts=1, progress=False, peak_in_band=False)
+
+    monkeypatch.setattr(_search, "WORKERS", 1)
+    alone = run()
+    monkeypatch.setattr(_search, "WORKERS", 2)
+    filters = list(warnings.filters)
+    pooled = run()
+    assert warnings.filters == filters
+    assert_frame_equal(pooled, alone, check_exact=True)
+    assert pooled.attrs["metadata"]["warnings"] == alone.attrs["metadata"]["warnings"]
+
+
 # --------------------------------------------------------------------------- bad inputs
 
 

@@ -315,3 +315,53 @@ def test_provenance_of_a_user_table(tmp_path):
     s.write(tmp_path / "s.csv")
     _, header = read_export(tmp_path / "s.csv")
     assert header["metadata"]["medium"]["file_sha256"] == hashlib.sha256(text.encode()).hexdigest()
+
+
+def _same_bytes(tmp_path, columns, units):
+    """The pandas-free writer (dict of columns) and DataFrame.to_csv write the same CSV bytes."""
+    write_export(columns, tmp_path / "a.csv", metadata={}, units=units)
+    write_export(pd.DataFrame(columns), tmp_path / "b.csv", metadata={}, units=units)
+    a, b = (tmp_path / "a.csv").read_bytes(), (tmp_path / "b.csv").read_bytes()
+    assert a == b
+    ja, jb = (json.loads((tmp_path / f"{n}.json").read_text()) for n in "ab")
+    assert ja["columns"] == jb["columns"] and ja["rows"] == jb["rows"]
+    return a
+
+
+def test_dict_of_columns_writes_the_bytes_pandas_writes(tmp_path):
+    # reference: pandas' DataFrame.to_csv (the writer used before; general-purpose library), byte for
+    # byte, on values that exercise the float formatting: random magnitudes 1e-300..1e300, both signs,
+    # -0.0, nan, +-inf, subnormals, integers as floats; int, uint and bool columns; float32.
+    rng = np.random.default_rng(7)
+    n = 400
+    f = rng.standard_normal(n) * 10.0 ** rng.integers(-300, 300, n)
+    f[:8] = [0.0, -0.0, np.nan, np.inf, -np.inf, 5e-324, 1e16, 400.0]
+    cols = {"wavelength_nm": np.linspace(400.0, 900.0, n), "sigma_abs_m2": f,
+            "q_abs": rng.random(n).astype(np.float32), "order": rng.integers(-5, 5, n),
+            "count": rng.integers(0, 9, n).astype(np.uint16), "flag": rng.random(n) > 0.5}
+    units = {k: "1" for k in cols}
+    text = _same_bytes(tmp_path, cols, units)
+    assert text.count(b"\n") == n + 1
+    back, _ = read_export(tmp_path / "a.csv")
+    np.testing.assert_array_equal(back["sigma_abs_m2"].to_numpy(), f)
+
+
+def test_spectrum_export_is_written_without_pandas_and_unchanged(tmp_path):
+    import nanoabs
+
+    s = nanoabs.spectrum(nanoabs.Sphere("Au", 20.0), np.linspace(400.0, 900.0, 101), medium="water")
+    s.write(tmp_path / "s.csv")
+    write_export(s.to_frame(), tmp_path / "f.csv", metadata={}, units=nanoabs.optics.UNITS)
+    assert (tmp_path / "s.csv").read_bytes() == (tmp_path / "f.csv").read_bytes()
+    assert list(s.to_arrays()) == list(s.to_frame().columns)
+
+
+def test_dict_of_columns_is_checked(tmp_path):
+    units = {"a": "1", "b": "1"}
+    with pytest.raises(NanoabsError, match="different lengths"):
+        write_export({"a": np.zeros(3), "b": np.zeros(4)}, tmp_path / "x.csv", metadata={}, units=units)
+    with pytest.raises(NanoabsError, match=r"frame\['a'\].*1-D"):
+        write_export({"a": np.array(["x", "y"])}, tmp_path / "x.csv", metadata={}, units=units)
+    with pytest.raises(NanoabsError, match="DataFrame or a dict"):
+        write_export([1.0, 2.0], tmp_path / "x.csv", metadata={}, units=units)
+    assert not list(tmp_path.iterdir())

@@ -46,3 +46,16 @@ def test_constants_match_scipy(name):
     # by ~1e-9 relative) and Stefan-Boltzmann is tabulated to 10 digits: 1e-8 relative for those.
     exact = name in ("h", "c", "e", "k", "hbar")
     assert getattr(_si, name) == pytest.approx(getattr(constants, name), rel=1e-15 if exact else 1e-8, abs=0.0)
+
+
+def test_spectrum_command_loads_neither_pandas_nor_scipy_interpolate(fresh_python, tmp_path):
+    """The README's single-sphere `nanoabs spectrum` command with a CSV export: numpy PCHIP of the
+    tables and the pandas-free writer (start-up of the command line)."""
+    out = tmp_path / "au.csv"
+    loaded = _modules_after(
+        fresh_python,
+        "from nanoabs.cli import main\n"
+        f"assert main(['spectrum', '--shape', 'sphere', '--material', 'Au', '--radius', '20', '--medium',"
+        f" 'water', '--wl', '400:900:1', '-o', {str(out)!r}]) == 0\n")
+    assert out.exists()
+    assert sorted(m for m in ("pandas", "scipy.interpolate") if m in loaded) == []

@@ -12,6 +12,7 @@ from __future__ import annotations
 import hashlib
 import itertools
 import json
+import os
 import re
 import shutil
 from collections import deque
@@ -21,7 +22,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import __version__
+from .._version import version as _package_version
 from .._errors import NanoabsError
 
 PARTS_FORMAT = "nanoabs-sweep-parts"
@@ -148,6 +149,44 @@ def run_chunks(executor, fn, plan, todo):
             executor.shutdown(wait=True, cancel_futures=True)
 
 
+class NoBar:
+    """A progress bar that shows nothing (tasks running on worker threads)."""
+
+    def update(self, n=1):
+        pass
+
+
+def thread_pool(workers, warm_up=None):
+    """A pool of min(``workers``, usable cores) threads, or None for one; ``warm_up()`` runs first,
+    in the calling thread (load what the threads would otherwise race to load)."""
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    if min(workers, cores) < 2:
+        return None
+    from concurrent.futures import ThreadPoolExecutor
+
+    if warm_up is not None:
+        warm_up()
+    return ThreadPoolExecutor(max_workers=min(workers, cores))
+
+
+def map_ordered(pool, fn, items, bar, step):
+    """[fn(item) for item in items], on the pool's threads when there is a pool; results in order,
+    ``bar.update(step)`` as each is collected."""
+    items = list(items)
+    if pool is None or len(items) < 2:
+        out = []
+        for item in items:
+            out.append(fn(item))
+            bar.update(step)
+        return out
+    futures = [pool.submit(fn, item) for item in items]
+    out = []
+    for f in futures:
+        out.append(f.result())
+        bar.update(step)
+    return out
+
+
 def _exit_with_parent(parent_pid, period_s=1.0):
     """In a pool worker: exit when the process that started the pool is gone (killed, not shut down)."""
     import os
@@ -211,7 +250,7 @@ def prepare_workdir(workdir: Path, digest: str, n_chunks, force, chunk_rows, **m
         atomic_write_text(manifest, json.dumps({
             "format": PARTS_FORMAT, "format_version": 2, "hash": digest, "n_chunks": n_chunks, **manifest_extra,
             "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-            "package_version": __version__}, indent=2) + "\n")
+            "package_version": _package_version()}, indent=2) + "\n")
     for tmp in workdir.glob(".*.tmp"):  # left by a killed writer; we hold the lock
         tmp.unlink(missing_ok=True)
     finished = set()
@@ -274,7 +313,7 @@ def write_final(out: Path, workdir: Path, n_chunks: int, frame0, units, metadata
     columns = export._check_frame(frame0, units)
     doc = {
         "format": export.FORMAT_NAME, "format_version": export.FORMAT_VERSION,
-        "package_version": __version__,
+        "package_version": _package_version(),
         "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "data_file": targets[0].name, "rows": int(rows), "columns": columns,
         "metadata": export._jsonable(metadata, ""),

@@ -4,16 +4,20 @@ from __future__ import annotations
 
 import contextlib
 import math
+import warnings as _warnings
 from collections.abc import Mapping
+from functools import partial
 
 import numpy as np
 
-from .. import __version__
+from .. import _compiled_mie
+from .._version import version as _package_version
 from .._errors import NanoabsError, check_choice, check_finite_array, suggest
 from ..optics import METHODS, Spectrum, _peak
 from ..particles import MONOLAYER_NM
+from ..validity import NanoabsWarning
 from ._designs import SWEEP_AUTO, is_environment, _evaluate, _material_label, _material_list, _material_meta, _resolve_material, check_flag
-from ._engine import collapse, progress_bar, unique
+from ._engine import NoBar, collapse, map_ordered, progress_bar, thread_pool, unique
 from ._sweep import _TEXT_UNIT
 
 #: Particle families of :func:`search`.
@@ -407,19 +411,33 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
     n_tasks = len(cfg["families"]) * len(cfg["mats"]) * (1 + n_starts) + top
     bar = progress_bar(n_tasks, "search", progress)
     candidates, problems = [], {}
+    for fam in cfg["families"]:
+        for mi in range(len(cfg["mats"])):
+            problems[(fam, mi)] = _problem(cfg, fam, mi)
+    pool = thread_pool(WORKERS, _warm_up)
+    # warnings.catch_warnings is not thread-safe: the tasks' own catch_warnings (in _evaluate) may
+    # restore each other's filters; this outer one, left after the workers stop, restores the caller's
+    quiet = _warnings.catch_warnings()
+    quiet.__enter__()
+    _warnings.simplefilter("ignore", NanoabsWarning)
     try:
-        for fam in cfg["families"]:
-            for mi in range(len(cfg["mats"])):
-                prob = problems[(fam, mi)] = _problem(cfg, fam, mi)
-                candidates += _explore(cfg, prob, mi, bar)
-        rows = []
-        for c in _choose(candidates, top):
-            rows.append(_design_row(cfg, problems[(c["family"], c["mi"])], c))
-            bar.update()
+        for out in map_ordered(pool, partial(_explore_task, cfg, problems), list(problems), bar, 1 + n_starts):
+            candidates += out
+        chosen = _choose(candidates, top)
+        kept = []  # the tasks add their warnings to problems[...].warnings themselves
+        for row, c in zip(map_ordered(pool, partial(_row_task, cfg, problems), chosen, bar, 1), chosen):
+            if row["peak_in_band"] == "yes" or not cfg["peak_in_band"]:  # the refined peak decides
+                kept.append((row, c))
+        if cfg["recheck"]:  # only the rows kept (a recheck can be a T-matrix spectrum)
+            rechecks = map_ordered(pool, partial(_recheck_task, cfg), [c for _, c in kept], NoBar(), 0)
+            for (row, _), rc in zip(kept, rechecks):
+                row.update(rc)
+        rows = [row for row, _ in kept]
     finally:
+        if pool is not None:
+            pool.shutdown(wait=True, cancel_futures=True)
+        quiet.__exit__(None, None, None)
         bar.close()
-    if cfg["peak_in_band"]:
-        rows = [r for r in rows if r["peak_in_band"] == "yes"]  # the refined peak decides
     if not rows:
         problems_w = {"no design peaks inside the band(s) within the bounds; widen the bounds, change the "
                       "families or pass peak_in_band=False to see the nearest designs"}
@@ -430,6 +448,56 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         row["rank"] = rank
     warnings = sorted(set().union(*[p.warnings for p in problems.values()])) if problems else []
     return _ranked_frame(rows, cfg, warnings)
+
+
+# --------------------------------------------------------------------------- parallel evaluation
+
+#: Worker threads of a search (1: everything in the calling thread).  The explore stage runs one
+#: task per family and material, the report stage one per ranked design and one recheck per row
+#: kept; a task computes exactly what the sequential loop computes, so results do not depend on it.
+#: The compiled kernels release the GIL (one kernel call at a time); the numpy-heavy T-matrix
+#: rechecks hold it for much of their time, so on the loaded 2-core test machine two threads
+#: measured about the same as one, and forked processes slower (notes/speed.md).
+WORKERS = 2
+
+
+def _explore_task(cfg, problems, key):
+    with _compiled_mie.any_size():  # many small Mie spectra: the compiled kernel, loaded once
+        return _explore(cfg, problems[key], key[1], NoBar())
+
+
+def _row_task(cfg, problems, c):
+    with _compiled_mie.any_size():
+        return _design_row(cfg, problems[(c["family"], c["mi"])], c)
+
+
+def _recheck_task(cfg, c):
+    g = _geometry_of(c["family"], _to_v(cfg, c["family"], c["u"])[None, :])
+    with _compiled_mie.any_size():
+        return _recheck(cfg, c, g)
+
+
+def _warm_up():
+    """Load the compiled kernels (numba's import and cache load) and the search's scipy modules here,
+    once, before the worker threads could race to load them."""
+    import scipy.integrate  # noqa: F401
+    import scipy.optimize  # noqa: F401
+
+    from .. import _compiled
+
+    with _compiled_mie.any_size():
+        if _compiled_mie.available(1):
+            try:
+                _compiled_mie.mie_efficiencies(np.array([[1.5 + 0.1j]]), np.array([[1.0]]), np.array([2]))
+            except _compiled.Unavailable:
+                pass
+    if _compiled.available():
+        try:
+            one = np.ones(1)
+            _compiled.ellipsoid_mlwa_map(one + 1j, one, (0.0, 0.0), np.zeros(1), one, one, np.full((1, 1), 1 / 3),
+                                         np.zeros((1, 1)), one, one, 1.0)
+        except _compiled.Unavailable:
+            pass
 
 
 def _bands(band_nm):
@@ -760,9 +828,8 @@ def _design_row(cfg, prob, c):
     row["absorbed_fraction"] = float(ev["absorbed_fraction"][0])
     row["method"] = prob.settings["method"]
     row["validity"] = _validity(prob, g, cfg["window"])
-    row.update(_recheck(cfg, c, g) if cfg["recheck"] else
-               {"recheck_method": "", "recheck_peak_wavelength_nm": float("nan"),
-                "recheck_figure_of_merit": float("nan")})
+    row.update({"recheck_method": "", "recheck_peak_wavelength_nm": float("nan"),
+                "recheck_figure_of_merit": float("nan")})  # filled in by _recheck_task for the rows kept
     row["stage"] = c["stage"]
     return row
 
@@ -863,7 +930,7 @@ def _ranked_frame(rows, cfg, warnings):
         "sensitivity": "central difference of the sigma_abs peak for +-1 nm of each dimension "
                        "(+-value/4 below 4 nm), peak refined on a 0.1 nm grid",
         "warnings": collapse(warnings),
-        "package_version": __version__,
+        "package_version": _package_version(),
     }
     return frame
 

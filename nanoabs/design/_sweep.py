@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import __version__
+from .._version import version as _package_version
 from .._errors import NanoabsError
 from ..optics import UNITS as _SPECTRUM_UNITS
 from ..validity import emit_messages
@@ -143,7 +143,7 @@ def _plan_hash(plan):
         "medium": None if "medium_index" in swept else _content_token(plan["medium"], wl),
         "polarization": plan["polarization"], "method": plan["method"],
         "surface_damping": plan["surface_damping"], "chunk_size": plan["chunk_size"],
-        "package_version": __version__,
+        "package_version": _package_version(),
     }
     return hashlib.sha256(json.dumps(doc, sort_keys=True).encode()).hexdigest()
 
@@ -175,7 +175,7 @@ def _sweep_metadata(plan, n_chunks, warnings, methods, executor_name):
         "efficiency_reference_area": "as nanoabs.spectrum: pi r_outer^2 for spheres; projected area for "
                                      "polarised ellipsoids; surface area / 4 for random orientation",
         "warnings": _engine.collapse(warnings),
-        "package_version": __version__,
+        "package_version": _package_version(),
     }
 
 
