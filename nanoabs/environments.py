@@ -457,6 +457,10 @@ def apply_planar(env, solver, problem):
       Green's function (`nanoabs.surface.dipole_response`, Sommerfeld integrals).
     * Static dipole ("quasistatic"): its polarisability, radiatively corrected, with the
       quasi-static image dyadic (Yamaguchi et al. 1974; Wind et al. 1987).
+    * T-matrix solver ("tmatrix": spheroids, cylinders, capped rods, rounded discs lying
+      flat): multipole method with the full T-matrix (`nanoabs.surface_tmatrix.flat_on_stack`),
+      order chosen by convergence; if it does not converge, an error, or under
+      ``method="auto"`` the corrected dipole with a caution (see `_apply_body_tmatrix`).
 
     sigma_abs is per irradiance of the incident wave in the incidence medium;
     sigma_ext is the work of the drive field (the power taken from the specular
@@ -489,6 +493,8 @@ def apply_planar(env, solver, problem):
                 f"interface ({h:g} nm): the point-dipole coupling to the substrate is outside its validity and the "
                 "resonance can be far off (use a sphere or shell with the multipole method, or treat the result "
                 "as qualitative)", (float(wl.min()), float(wl.max())))]
+    elif hasattr(solver, "body_tmatrix"):
+        return _apply_body_tmatrix(env, solver, problem, sizes, meta)
     else:
         radii = [float(np.asarray(r, float).reshape(-1)[0]) for _, r in problem.particle.layers]
         out = sphere_on_stack(env, problem.eps_layers, radii, wl)
@@ -505,6 +511,62 @@ def apply_planar(env, solver, problem):
                         "substrate; treat the result as approximate or increase the gap",
                         (float(wl.min()), float(wl.max())))
             meta["environment_cautions"] = [c]  # spectrum() adds them to its cautions
+    meta["field_factor"] = np.asarray(out["field_factor"]).tolist()
+    meta["incidence_index"] = np.broadcast_to(np.real(env.resolve(wl).n_inc), wl.shape).tolist()
+    return Response(s_abs, s_ext - s_abs, s_ext, metadata=meta)
+
+
+def _apply_body_tmatrix(env, solver, problem, sizes, meta):
+    """Multipole method with the particle's full T-matrix (`nanoabs.surface_tmatrix`); see `apply_planar`.
+
+    When the order study does not converge (typically: the circumscribing sphere of a flat
+    rod reaches below the interface, where the reflected-field expansion is not guaranteed
+    to converge; Egel et al., Opt. Express 24, 25154 (2016), from memory), no number is
+    taken from it: under ``method="auto"`` a spheroid goes to the corrected dipole with
+    the reflected Green's function (cautioned), anything else raises NanoabsError.
+    """
+    from .solvers import METHODS, Response
+    from .surface_tmatrix import flat_on_stack
+    from .validity import Caution
+
+    wl = problem.wavelength_nm
+    tmatrix_at, axis, n_start, r_max = solver.body_tmatrix(problem)
+    out = flat_on_stack(env, tmatrix_at, axis, wl, half_height_nm=sizes[-1], r_max_nm=r_max,
+                        polarization=problem.polarization, n_start=n_start)
+    study = {"multipole_order_study": [{"n_max": n, "sigma_abs_nm2_at_samples": v} for n, v in out["order_study"]],
+             "multipole_converged": out["converged"], "circumscribing_sphere_crosses_interface":
+             out["circumscribing_sphere_crosses_interface"]}
+    span = (float(wl.min()), float(wl.max()))
+    if not out["converged"]:
+        where = (f"{problem.particle.describe()['shape']} with its centre {out['center_height_nm']:g} nm from the interface and a "
+                 f"circumscribing sphere of {r_max:g} nm")
+        dipole = METHODS["mlwa"]
+        if problem.method_requested != "auto" or dipole.accepts(problem.particle) is not None:
+            raise NanoabsError(f"method = 'tmatrix' in a {env.kind} environment: the multipole order does not "
+                               f"converge for a {where} ({out['reason']}); allowed: a particle whose "
+                               "circumscribing sphere stays above the interface (larger gap), or method='mlwa' "
+                               "for a spheroid (point dipole, qualitative)")
+        resp = apply_planar(env, dipole, problem)
+        resp.metadata.setdefault("environment_cautions", [])
+        resp.metadata["environment_cautions"] += [Caution(
+            "multipole-not-converged", f"auto: the T-matrix multipole method does not converge for a {where} "
+            f"({out['reason']}); the point dipole with the reflected Green's function was used instead", span)]
+        resp.metadata["environment_cautions"] += dipole.validity(problem)
+        resp.metadata |= study | {"method": dipole.name, "method_reference": dipole.reference,
+                                  "method_reason": "auto: the T-matrix multipole method did not converge here "
+                                                   "(multipole_order_study), so the corrected dipole"}
+        return resp
+    meta |= study | {"environment_method": "multipole (full T-matrix of the particle lying flat, coupled to the stack)",
+                     "multipole_order": out["n_max"], "multipole_order_change": out["order_change"],
+                     "multipole_truncation_change": out["n_max_change"],
+                     "sommerfeld_error": float(np.max(out["integration_error"])),
+                     "in_plane_orientations": len(np.atleast_1d(out["sigma_abs_each_nm2"][0]))}
+    if out["circumscribing_sphere_crosses_interface"]:
+        meta["environment_cautions"] = [Caution(
+            "multipole-near-interface", f"the particle's circumscribing sphere ({r_max:g} nm) reaches below the "
+            f"interface (centre {out['center_height_nm']:g} nm above it): the multipole order converged here, but "
+            "this is outside the proven range of the method; no full-wave check of such a case is in the tests", span)]
+    s_abs, s_ext = out["sigma_abs_nm2"], out["sigma_drive_nm2"]
     meta["field_factor"] = np.asarray(out["field_factor"]).tolist()
     meta["incidence_index"] = np.broadcast_to(np.real(env.resolve(wl).n_inc), wl.shape).tolist()
     return Response(s_abs, s_ext - s_abs, s_ext, metadata=meta)
