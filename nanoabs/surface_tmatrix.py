@@ -38,8 +38,8 @@ import numpy as np
 
 from ._errors import NanoabsError
 
-__all__ = ["surface_order", "to_surface_convention", "lab_tmatrix", "full_multipole_response",
-           "flat_on_stack", "orientation_nodes"]
+__all__ = ["surface_order", "to_surface_convention", "lab_tmatrix", "stack_reflection", "full_multipole_response",
+           "orientation", "orientation_nodes", "flat_on_stack", "uniform_absorbed_power_density"]
 
 
 def surface_order(n_max):
@@ -169,7 +169,7 @@ def _incident(environment, wl, half_height_nm, n_max, res):
     return np.concatenate(parts, 1), waves
 
 
-def stack_reflection(environment, wl, half_height_nm, n_max, *, rtol=1e-9, res=None):
+def stack_reflection(environment, wl, half_height_nm, n_max, *, rtol=1e-9, res=None, s_max=None):
     """Block-diagonal reflection matrix R (W, N, N) of the stack in the surface order, and its error (W,).
 
     Parameters
@@ -185,6 +185,8 @@ def stack_reflection(environment, wl, half_height_nm, n_max, *, rtol=1e-9, res=N
         Accuracy of the Sommerfeld integrals (`nanoabs.surface.reflection_matrix`).
     res : Resolved, optional
         The environment already resolved on ``wl``.
+    s_max : float, optional
+        Truncated contour (order studies only, `nanoabs.surface.sommerfeld`).
 
     Notes
     -----
@@ -210,7 +212,8 @@ def stack_reflection(environment, wl, half_height_nm, n_max, *, rtol=1e-9, res=N
         for i in range(0, len(wl), WAVELENGTH_CHUNK):
             c = slice(i, i + WAVELENGTH_CHUNK)
             stack_i = [np.broadcast_to(x, wl.shape)[c] for x in res.host_stack]
-            Rm[c], e_i = reflection_matrix(stack_i, res.host_thickness_nm, wl[c], h, m, n_max, rtol=rtol)
+            Rm[c], e_i = reflection_matrix(stack_i, res.host_thickness_nm, wl[c], h, m, n_max, rtol=rtol,
+                                               s_max=s_max)
             err[c] = np.maximum(err[c], e_i)
         R[:, sl, sl] = done[m] = Rm
     return R, err
@@ -402,10 +405,13 @@ def flat_on_stack(environment, tmatrix_at, axis, wavelength_nm, *, half_height_n
         cur = full_multipole_response(environment, T, ws, half_height_nm=half_height_nm, n_max=n, phis=phis,
                                       weights=weights, rtol=rtol, check_order=0)["sigma_abs_nm2"]
         study.append((n, cur.tolist()))
+        if np.any(cur < 0):      # a passive particle cannot: the expansion diverges (or lost precision)
+            reason = f"sigma_abs < 0 at degree {n}: the expansion diverges"
+            break
         if prev is not None:
             with np.errstate(invalid="ignore", divide="ignore"):
                 change = float(np.max(np.abs(cur - prev) / np.maximum(np.abs(cur), 1e-300)))
-            if change < conv_rtol and np.all(cur >= 0):
+            if change < conv_rtol:
                 n -= ORDER_STEP          # the last step bounds the change of the lower degree
                 break
         if n + ORDER_STEP > MAX_FULL_ORDER:
@@ -423,3 +429,40 @@ def flat_on_stack(environment, tmatrix_at, axis, wavelength_nm, *, half_height_n
     out = full_multipole_response(environment, T, wl, half_height_nm=half_height_nm, n_max=n, phis=phis,
                                   weights=weights, rtol=rtol, check_order=ORDER_STEP)
     return out | meta | {"converged": True}
+
+
+def uniform_absorbed_power_density(spec, irradiance_W_m2=1.0):
+    """Absorbed power density [W m^-3] inside a homogeneous non-spherical particle: a uniform approximation.
+
+    Parameters
+    ----------
+    spec : nanoabs.Spectrum
+        Spectrum of one homogeneous metal particle (spheroid, cylinder, capped rod, rounded
+        disc) in any environment (homogeneous host, on a substrate, buried).
+    irradiance_W_m2 : float or array (W,)
+        Irradiance I0 of the incident wave [W m^-2] in the spectrum's reference (the
+        incidence medium, for a planar environment).
+
+    Returns
+    -------
+    (W,) ndarray
+        p = I0 sigma_abs / V, the same at every point of the particle.
+
+    Notes
+    -----
+    A documented approximation: in the quasi-static limit the internal field of a homogeneous
+    ellipsoid in a uniform field is uniform (Bohren & Huffman 1983, Sec. 5.3), so the profile
+    shape is flat and its level follows from the volume integral, int p dV = I0 sigma_abs.
+    In a planar environment sigma_abs already carries the substrate's effect (standing wave,
+    coupling), so this is the homogeneous profile shape scaled by
+    sigma_abs(env) / sigma_abs(homogeneous). It ignores the field gradients of a particle
+    comparable to the wavelength, the hot spots at the tips of a rod, and the non-uniform
+    field a close substrate induces (its image field is strongest on the side facing it);
+    for spheres use the exact profiles (`nanoabs.detector.absorbed_power_density`,
+    `nanoabs.surface.sphere_absorption_profile`).
+    """
+    V = float(np.ravel(spec.metal_volume_m3)[0])
+    if V <= 0:
+        raise NanoabsError("uniform_absorbed_power_density: the particle has no metal volume")
+    I0 = np.broadcast_to(np.asarray(irradiance_W_m2, float), spec.wavelength_nm.shape)
+    return I0 * np.asarray(spec.sigma_abs_m2, float).reshape(spec.wavelength_nm.shape) / V

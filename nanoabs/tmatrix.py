@@ -586,6 +586,8 @@ class TMatrixSolver(Solver):
             Degree at which the free particle's T converges to this solver's tolerance.
         r_max_nm : float
             Radius of the circumscribing sphere [nm].
+        tol : float
+            This solver's convergence tolerance for the shape (:attr:`tol`).
         """
         shape, axis, L, D = _body(problem.particle)
         L, D = float(np.ravel(L)[0]), float(np.ravel(D)[0])
@@ -597,7 +599,7 @@ class TMatrixSolver(Solver):
         def tmatrix_at(n_max, wavelength_nm):
             i = np.searchsorted(wl_all, wavelength_nm)
             return TMatrix.axisymmetric(shape, eps[i], em[i], L, D, wl_all[i], n_max=int(n_max))
-        return tmatrix_at, np.eye(3)[axis], int(free.n_max), _r_max(shape, (L / 2, D / 2))
+        return tmatrix_at, np.eye(3)[axis], int(free.n_max), _r_max(shape, (L / 2, D / 2)), self.tol[shape]
 
     def validity(self, problem) -> list:
         """A caution for cylinders and capped rods: their series is converged to 2e-2 only."""

@@ -221,3 +221,25 @@ def test_rod_whose_circumscribing_sphere_crosses_the_interface_is_not_a_silent_n
     assert m["method"] == "mlwa" and m["multipole_converged"] is False
     codes = {c["code"] for c in m["cautions"]}
     assert {"multipole-not-converged", "dipole-near-surface"} <= codes
+
+
+def test_uniform_power_density_matches_the_quasi_static_internal_field():
+    # The documented approximation p = I0 sigma_abs / V against the quasi-static internal field of a small
+    # prolate spheroid, field along its axis (Bohren & Huffman 1983, Sec. 5.3, from memory):
+    # E_in = E0 / (1 + L (eps/eps_h - 1)), L = (1 - e^2)/e^2 (-1 + ln((1+e)/(1-e)) / 2e), and
+    # p = (1/2) omega eps0 Im(eps) |E_in|^2 with I0 = (1/2) c eps0 n_h |E0|^2, so p / I0 = k0 Im(eps) |E_in/E0|^2 / n_h.
+    # 20 x 10 nm Au rod in water (k a <= 0.07); tolerance 3 % (size corrections of order (k a)^2 and
+    # radiative damping, measured ~1 %). In a planar environment the same formula scales with sigma_abs(env).
+    from nanoabs.surface_tmatrix import uniform_absorbed_power_density
+
+    wl = np.array([600.0, 700.0, 800.0])
+    rod = nanoabs.spheroid("Au", 20, 10)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        s = nanoabs.spectrum(rod, wl, medium=1.33, polarization="long", method="tmatrix", surface_damping=False)
+    p = uniform_absorbed_power_density(s, 1.0)
+    e = np.sqrt(1 - (5.0 / 10.0) ** 2)
+    L = (1 - e ** 2) / e ** 2 * (-1 + np.log((1 + e) / (1 - e)) / (2 * e))
+    eps = AU.permittivity(wl)
+    ref = (2 * np.pi / (wl * 1e-9)) * eps.imag * np.abs(1 / (1 + L * (eps / 1.33 ** 2 - 1))) ** 2 / 1.33
+    np.testing.assert_allclose(p, ref, rtol=3e-2)
