@@ -209,7 +209,7 @@ def test_rod_whose_circumscribing_sphere_crosses_the_interface_is_not_a_silent_n
     # the order study does not converge (Egel et al., Opt. Express 24, 25154 (2016), from memory:
     # the plain method is not guaranteed to converge when the circumscribing sphere crosses the
     # interface). method="tmatrix" raises; "auto" falls back to the dipole method with cautions.
-    wl = np.array([1300.0, 1500.0])
+    wl = np.array([1300.0])
     rod = nanoabs.spheroid("Au", 100, 30)
     env = on_substrate("Si", gap_nm=2, spacer="SiO2:3", incidence="back")
     with pytest.raises(NanoabsError, match="does not converge"):
@@ -228,18 +228,23 @@ def test_uniform_power_density_matches_the_quasi_static_internal_field():
     # prolate spheroid, field along its axis (Bohren & Huffman 1983, Sec. 5.3, from memory):
     # E_in = E0 / (1 + L (eps/eps_h - 1)), L = (1 - e^2)/e^2 (-1 + ln((1+e)/(1-e)) / 2e), and
     # p = (1/2) omega eps0 Im(eps) |E_in|^2 with I0 = (1/2) c eps0 n_h |E0|^2, so p / I0 = k0 Im(eps) |E_in/E0|^2 / n_h.
-    # 20 x 10 nm Au rod in water (k a <= 0.07); tolerance 3 % (size corrections of order (k a)^2 and
-    # radiative damping, measured ~1 %). In a planar environment the same formula scales with sigma_abs(env).
+    # 10 x 5 nm Au rod in water, 500-800 nm: tolerance 3 % (size corrections of order (k a)^2, enlarged
+    # near the resonance; measured 2.5 %), and the error falls about 4x when the size halves from 20 x 10
+    # (the quasi-static limit is approached, not just matched). In a planar environment the same formula
+    # scales with sigma_abs(env).
     from nanoabs.surface_tmatrix import uniform_absorbed_power_density
 
-    wl = np.array([600.0, 700.0, 800.0])
-    rod = nanoabs.spheroid("Au", 20, 10)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        s = nanoabs.spectrum(rod, wl, medium=1.33, polarization="long", method="tmatrix", surface_damping=False)
-    p = uniform_absorbed_power_density(s, 1.0)
-    e = np.sqrt(1 - (5.0 / 10.0) ** 2)
-    L = (1 - e ** 2) / e ** 2 * (-1 + np.log((1 + e) / (1 - e)) / (2 * e))
+    wl = np.array([500.0, 550.0, 600.0, 650.0, 700.0, 800.0])
     eps = AU.permittivity(wl)
-    ref = (2 * np.pi / (wl * 1e-9)) * eps.imag * np.abs(1 / (1 + L * (eps / 1.33 ** 2 - 1))) ** 2 / 1.33
-    np.testing.assert_allclose(p, ref, rtol=3e-2)
+    err = []
+    for L, D in ((20.0, 10.0), (10.0, 5.0)):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            s = nanoabs.spectrum(nanoabs.spheroid("Au", L, D), wl, medium=1.33, polarization="long",
+                                 method="tmatrix", surface_damping=False)
+        e = np.sqrt(1 - (D / L) ** 2)
+        depol = (1 - e ** 2) / e ** 2 * (-1 + np.log((1 + e) / (1 - e)) / (2 * e))
+        ref = (2 * np.pi / (wl * 1e-9)) * eps.imag * np.abs(1 / (1 + depol * (eps / 1.33 ** 2 - 1))) ** 2 / 1.33
+        err.append(np.max(np.abs(uniform_absorbed_power_density(s, 1.0) / ref - 1)))
+    assert err[1] < 3e-2
+    assert 3.0 < err[0] / err[1] < 5.0
