@@ -539,8 +539,8 @@ def _apply_body_tmatrix(env, solver, problem, sizes, meta):
              out["circumscribing_sphere_crosses_interface"]}
     span = (float(wl.min()), float(wl.max()))
     if not out["converged"]:
-        where = (f"{problem.particle.describe()['shape']} with its centre {out['center_height_nm']:g} nm from the interface and a "
-                 f"circumscribing sphere of {r_max:g} nm")
+        where = (f"{problem.particle.describe()['shape']} with its centre {out['center_height_nm']:g} nm from the "
+                 f"interface and a circumscribing sphere of {r_max:g} nm")
         dipole = METHODS["mlwa"]
         if problem.method_requested != "auto" or dipole.accepts(problem.particle) is not None:
             raise NanoabsError(f"method = '{problem.method_requested or solver.name}' in the {env.kind} environment: "

@@ -124,7 +124,8 @@ def lab_tmatrix(tm, axis, n_max=None):
     from .tmatrix import _block_index, _rotation
 
     n_max = tm.n_max if n_max is None else int(n_max)
-    ux, uy, uz = (float(v) for v in axis)
+    u = np.asarray(axis, float)
+    ux, uy, uz = u / np.linalg.norm(u)
     beta = float(np.arccos(np.clip(uz, -1, 1)))
     alpha = float(np.arctan2(uy, ux)) if np.hypot(ux, uy) > 1e-12 else 0.0
     W = tm.k_nm.size
