@@ -75,7 +75,8 @@ def _path(c, h_norm, n_ellipse, n_tail, s_max=None):
     s2 = c + scale * u / (1 - u)
     w2 = scale / (1 - u) ** 2 * 0.5 * wu
     if s_max is not None:
-        s2, w2 = c + (s_max - c) * u + 0 * scale, (s_max - c) * 0.5 * wu + 0 * scale
+        span = np.maximum(s_max - c, 0.0)          # a cut inside the ellipse keeps the ellipse whole
+        s2, w2 = c + span * u + 0 * scale, span * 0.5 * wu + 0 * scale
     return np.concatenate([s1, s2 + 0j], 1), np.concatenate([w1, w2 + 0j], 1)
 
 
