@@ -204,23 +204,55 @@ def test_order_convergence_reported_and_result_stops_changing():
     np.testing.assert_allclose(hi["sigma_abs_nm2"], lo["sigma_abs_nm2"], rtol=2e-3)
 
 
-def test_rod_whose_circumscribing_sphere_crosses_the_interface_is_not_a_silent_number():
-    # The contract geometry (100 x 30 nm Au rod 2 nm above 3 nm SiO2 on Si, lit through the wafer):
-    # the order study does not converge (Egel et al., Opt. Express 24, 25154 (2016), from memory:
-    # the plain method is not guaranteed to converge when the circumscribing sphere crosses the
-    # interface). method="tmatrix" raises; "auto" falls back to the dipole method with cautions.
-    wl = np.array([1300.0])
+# Full-wave reference for a 100 x 30 nm Au spheroid lying along x, 2 nm above SiO2, air above, lit from
+# the air side at normal incidence with E along the rod, bulk Au permittivity of nanoabs.materials (no
+# surface damping): sigma_abs [nm^2] per incident irradiance from a 3-D finite-element solution
+# (general-purpose FEM library NGSolve, second-order Nedelec elements, scattered-field formulation with
+# a radial PML; 121 191 unknowns, 4 nm elements on the particle, 2 nm in the gap), computed for this
+# project by the full-wave bench script of the sibling branch (case aurod100x30_sio2_front), which
+# shares no code with the multipole method. The same script reproduces miepython for a 40 nm Au sphere
+# in air to 2e-4; its error for the rod (finer features, 2 nm gap) is not known to better than about 1 %.
+FEM_ROD_SIO2 = {650.0: 23335.267, 750.0: 829.45493, 900.0: 153.64172}
+
+
+def test_flat_rod_crossing_the_interface_against_the_full_wave_reference():
+    # The circumscribing sphere (50 nm) crosses the interface (centre 17 nm up): the full reflection
+    # integral does not converge in the multipole order, the integral cut at CONTOUR_CUT k_host does
+    # (Egel et al., Opt. Express 24, 25154 (2016), from memory). Against the FEM values above;
+    # tolerance 2 % (measured 0.2-0.4 %; the dipole fallback is off by -91 % to +3800 % here).
+    wl = np.array(sorted(FEM_ROD_SIO2))
     rod = nanoabs.spheroid("Au", 100, 30)
-    env = on_substrate("Si", gap_nm=2, spacer="SiO2:3", incidence="back")
-    with pytest.raises(NanoabsError, match="does not converge"):
-        nanoabs.spectrum(rod, wl, environment=env, polarization="long", method="tmatrix")
+    env = on_substrate("SiO2", gap_nm=2, polarization="p")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
+        s = nanoabs.spectrum(rod, wl, environment=env, polarization="long", surface_damping=False)
+    m = s.metadata
+    assert m["method"] == "tmatrix" and m["multipole_converged"] is True and m["multipole_contour_cut"] == 20.0
+    assert m["circumscribing_sphere_crosses_interface"] is True
+    assert "multipole-contour-cut" in {c["code"] for c in m["cautions"]}
+    np.testing.assert_allclose(s.sigma_abs_m2 * 1e18, [FEM_ROD_SIO2[w] for w in wl], rtol=2e-2)
+
+
+def test_no_number_when_neither_contour_converges(monkeypatch):
+    # Wiring, not physics: with the order cap at the first degree the study cannot converge on either
+    # contour; method="tmatrix" (and a cylinder, which has no dipole model) then raise one line, and
+    # "auto" falls back to the dipole method with its cautions and says so in the metadata.
+    import nanoabs.surface_tmatrix as st
+
+    monkeypatch.setattr(st, "MAX_FULL_ORDER", 3)
+    wl = np.array([650.0])
+    env = on_substrate("Si", gap_nm=5, polarization="p")
+    rod = nanoabs.spheroid("Au", 60, 20)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        with pytest.raises(NanoabsError, match="does not converge"):
+            nanoabs.spectrum(rod, wl, environment=env, polarization="long", method="tmatrix")
+        with pytest.raises(NanoabsError, match="does not converge"):
+            nanoabs.spectrum(nanoabs.Cylinder("Au", 60, 20), wl, environment=env, polarization="long")
         s = nanoabs.spectrum(rod, wl, environment=env, polarization="long")
     m = s.metadata
     assert m["method"] == "mlwa" and m["multipole_converged"] is False
-    codes = {c["code"] for c in m["cautions"]}
-    assert {"multipole-not-converged", "dipole-near-surface"} <= codes
+    assert {"multipole-not-converged", "dipole-near-surface"} <= {c["code"] for c in m["cautions"]}
 
 
 def test_uniform_power_density_matches_the_quasi_static_internal_field():
