@@ -457,7 +457,7 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
     damping = [_damping_extra_eV(mat, L, surface_damping, damping_A, notes, label)
                for mat, L, label in zip(particle.layer_materials(), particle.damping_lengths_nm(),
                                         particle.layer_labels())]
-    problem = Problem(particle, wl, n_med, pol, env, damping)
+    problem = Problem(particle, wl, n_med, pol, env, damping, method_requested=str(method).lower())
     resp = env.apply(solver, problem)
     sa, ss, se = (np.asarray(x) * NM2_TO_M2 for x in (resp.sigma_abs_nm2, resp.sigma_sca_nm2,
                                                       resp.sigma_ext_nm2))

@@ -31,7 +31,8 @@ import numpy as np
 from ._errors import NanoabsError, check_choice
 from .validity import Caution, size_check
 
-__all__ = ["Problem", "Response", "Solver", "Homogeneous", "METHODS", "AUTO_ORDER", "choose", "is_environment"]
+__all__ = ["Problem", "Response", "Solver", "Homogeneous", "METHODS", "AUTO_ORDER", "AUTO_ORDER_PLANAR", "choose",
+           "is_environment"]
 
 
 def is_environment(value) -> bool:
@@ -138,6 +139,9 @@ class Problem:
     clipped : list of str
         Filled while evaluating: labels of the layers whose surface-damped ε″ was
         clipped at 0 (reported as a ``damping-clipped`` caution).
+    method_requested : str
+        The caller's ``method`` ("auto" lets a planar environment fall back to the dipole
+        method when the multipole order of a T-matrix particle does not converge); "" unknown.
     """
 
     particle: object
@@ -148,6 +152,7 @@ class Problem:
     damping_eV: list
     _eps: list | None = field(default=None, repr=False)
     clipped: list = field(default_factory=list, repr=False)
+    method_requested: str = ""
 
     @property
     def k(self):
@@ -300,6 +305,10 @@ METHODS: dict = _table()
 
 #: Preference order of the ``"auto"`` rule: exact methods first, dipole methods last.
 AUTO_ORDER = ("mie", "mlwa", "tmatrix")
+#: The order in a planar environment (on a substrate, buried): the multipole method of a
+#: T-matrix before the point dipole, whose coupling to a close surface is poor for bodies
+#: longer than their height (the environment falls back to ``mlwa`` if the order does not converge).
+AUTO_ORDER_PLANAR = ("mie", "tmatrix", "mlwa")
 
 
 def _ka_max(particle, wavelength_nm, n_medium) -> float:
@@ -321,8 +330,11 @@ def choose(method: str, particle, environment, *, wavelength_nm=None, n_medium=N
     spheres and layered spheres; for spheroids the corrected quasi-static model up to
     k a_max = 0.5 (its validity; peak within about 2 % of the T-matrix) and the T-matrix beyond; the
     T-matrix for cylinders, capped rods and rounded discs; the corrected model for coated and
-    triaxial ellipsoids (with a caution beyond its range). The reason is recorded in the
-    metadata.
+    triaxial ellipsoids (with a caution beyond its range). In a planar environment the order
+    is :data:`AUTO_ORDER_PLANAR`: the T-matrix (multipole method coupled to the stack) comes
+    before the corrected dipole for every particle it accepts, and the environment falls
+    back to the dipole method, with a caution, when the multipole order does not converge.
+    The reason is recorded in the metadata.
 
     Parameters
     ----------
@@ -354,7 +366,8 @@ def choose(method: str, particle, environment, *, wavelength_nm=None, n_medium=N
         solver = METHODS[method]
         solver.check(particle, environment)
         return solver, "chosen by the caller"
-    able = [METHODS[n] for n in AUTO_ORDER
+    order = AUTO_ORDER if environment.kind == "homogeneous" else AUTO_ORDER_PLANAR
+    able = [METHODS[n] for n in order
             if METHODS[n].accepts(particle) is None and environment.kind in METHODS[n].environments]
     if not able:
         raise NanoabsError(f"no method accepts a {particle.shape} in a {environment.kind} environment")
@@ -364,6 +377,6 @@ def choose(method: str, particle, environment, *, wavelength_nm=None, n_medium=N
             continue
         why = (f"auto: k a_max = {ka:.2g} is above {able[i - 1].name}'s {able[i - 1].auto_max_ka:g}, so the next "
                f"method in the order that accepts a {particle.shape}" if i else
-               f"auto: first method in the order {', '.join(AUTO_ORDER)} that accepts a {particle.shape} in a "
+               f"auto: first method in the order {', '.join(order)} that accepts a {particle.shape} in a "
                f"{environment.kind} environment")
         return solver, why

@@ -57,10 +57,11 @@ def _gauss_legendre(n):
     return np.polynomial.legendre.leggauss(n)
 
 
-def _path(c, h_norm, n_ellipse, n_tail):
+def _path(c, h_norm, n_ellipse, n_tail, s_max=None):
     """Nodes and weights in s = k_par / k_h: ellipse 0 -> c (fourth quadrant), then c -> inf.
 
     c : (W,) end of the ellipse; h_norm : k_h h. Returns s (W, K), w (W, K) complex.
+    ``s_max`` (> c): stop the real-axis part there (a truncated contour, for studies only).
     """
     t, wt = _gauss_legendre(n_ellipse)
     th = 0.5 * np.pi * (t + 1)                                        # [0, pi]
@@ -73,10 +74,13 @@ def _path(c, h_norm, n_ellipse, n_tail):
     scale = 1.0 / np.maximum(2 * np.asarray(h_norm, float), 1e-3)[:, None]
     s2 = c + scale * u / (1 - u)
     w2 = scale / (1 - u) ** 2 * 0.5 * wu
+    if s_max is not None:
+        span = np.maximum(s_max - c, 0.0)          # a cut inside the ellipse keeps the ellipse whole
+        s2, w2 = c + span * u + 0 * scale, span * 0.5 * wu + 0 * scale
     return np.concatenate([s1, s2 + 0j], 1), np.concatenate([w1, w2 + 0j], 1)
 
 
-def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9, matrix=False):
+def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9, matrix=False, s_max=None):
     """Integral over s = k_par/k_h in [0, inf) of ``integrand(s)`` on the deformed path.
 
     Parameters
@@ -95,6 +99,9 @@ def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9, matrix=False):
         The C components are a square matrix R whose entries span many orders of
         magnitude (multipoles): entry (i, j) is then compared with
         sqrt(|R_ii| |R_jj|) + |R_ij| instead.
+    s_max : float, keyword-only
+        Truncate the integral at s = s_max (studies of the truncated contour only; the
+        package's results use the full path).
 
     Returns
     -------
@@ -107,7 +114,7 @@ def sommerfeld(integrand, n_max_stack, h_norm, *, rtol=1e-9, matrix=False):
     n2 = 24
     prev = None
     for _ in range(MAX_DOUBLINGS):
-        s, w = _path(c, h_norm, n1, n2)
+        s, w = _path(c, h_norm, n1, n2, s_max)
         val = integrand(s, w)
         if prev is not None:
             if matrix:
@@ -395,7 +402,7 @@ def _coupling_integrand(eps, thickness_nm, k0, k_h, h_nm, m, n_max):
     return f
 
 
-def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, rtol=1e-9):
+def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, rtol=1e-9, s_max=None):
     """Matrix R of order m: regular coefficients of the reflected wave = R x outgoing coefficients.
 
     Parameters
@@ -415,6 +422,8 @@ def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, 
     rtol : float, keyword-only
         Accuracy of the Sommerfeld integrals, entry (i, j) relative to
         sqrt(|R_ii| |R_jj|) + |R_ij|.
+    s_max : float, keyword-only
+        Truncate the k_par integral at s_max k_h (`sommerfeld`; order studies only).
 
     Returns
     -------
@@ -442,7 +451,7 @@ def reflection_matrix(eps, thickness_nm, wavelength_nm, height_nm, m, n_max, *, 
     k_h = n_h * k0
     nmax_stack = np.max([np.sqrt(x).real for x in eps], axis=0) / n_h
     vals, err = sommerfeld(_coupling_integrand(eps, thickness_nm, k0, k_h, height_nm, m, n_max),
-                           nmax_stack, k_h * height_nm, rtol=rtol, matrix=True)
+                           nmax_stack, k_h * height_nm, rtol=rtol, matrix=True, s_max=s_max)
     size = int(round(np.sqrt(vals.shape[-1])))
     return vals.reshape(len(wl), size, size), err
 

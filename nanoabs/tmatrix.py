@@ -956,7 +956,9 @@ class TMatrixSolver(Solver):
     Accepts spheroids (ellipsoids with two equal semi-axes, bare or with their confocal
     shell), :class:`~nanoabs.particles.Cylinder`, :class:`~nanoabs.particles.CappedRod`
     and :class:`~nanoabs.particles.RoundedDisc` (bare or with a uniform coating) in a
-    homogeneous host; a family of sizes is solved one size at a time.
+    homogeneous host (a family of sizes is solved one size at a time), and, through
+    :meth:`body_tmatrix`, bare bodies in the planar environments (multipole method of
+    :mod:`nanoabs.surface_tmatrix`, one size per call).
     """
 
     name = "tmatrix"
@@ -964,6 +966,7 @@ class TMatrixSolver(Solver):
                  "Barber & Yeh, Appl. Opt. 14, 2864 (1975); coated particles: Peterson & Strom, Phys. Rev. D "
                  "10, 2670 (1974); orientation average: Mishchenko, J. Opt. Soc. Am. A 8, 871 (1991)")
     shapes = frozenset({"ellipsoid", "cylinder", "capped-rod", "rounded-disc"})
+    environments = frozenset({"homogeneous", "on_substrate", "buried"})  # planar: nanoabs.surface_tmatrix
     #: Convergence tolerance per shape: the EBCM series of bodies with edges converges
     #: slowly and oscillates (notes/tmatrix.md), so they get a looser one and a caution.
     tol = {"spheroid": 1e-4, "cylinder": 2e-2, "capped-rod": 2e-2, "rounded-disc": 2e-2}
@@ -1026,6 +1029,45 @@ class TMatrixSolver(Solver):
             "achieved_change": max(r["achieved_change"] for r in reports)}}
         return Response(out[0], out[1], out[2], backend="numpy (EBCM)", metadata=meta)
 
+
+    def body_tmatrix(self, problem):
+        """What a planar environment needs: the T-matrix of the particle at any degree (one size).
+
+        Parameters
+        ----------
+        problem : Problem
+            One particle (scalar sizes), its damped permittivity and host on the grid.
+
+        Returns
+        -------
+        tmatrix_at : callable
+            ``tmatrix_at(n_max, wavelength_nm)`` -> :class:`TMatrix` (axis z) at that fixed
+            degree on a subset of the problem's grid (EBCM, quadrature of :func:`_quad_points`).
+        axis : (3,) ndarray
+            Lab direction of the symmetry axis (the particle's own frame: x for a rod, z for a disc).
+        n_start : int
+            Degree at which the free particle's T converges to this solver's tolerance.
+        r_max_nm : float
+            Radius of the circumscribing sphere [nm].
+        tol : float
+            This solver's convergence tolerance for the shape (:attr:`tol`).
+        """
+        if len(problem.eps_layers) > 1:
+            raise NanoabsError(f"particle = coated {problem.particle.shape}: in a substrate or buried environment "
+                               "the T-matrix multipole method takes bare bodies only (coated bodies: homogeneous "
+                               "host)")
+        shape, axis, L, D = _body(problem.particle)
+        L, D = float(np.ravel(L)[0]), float(np.ravel(D)[0])
+        wl_all = problem.wavelength_nm
+        eps = np.broadcast_to(problem.eps_layers[0], wl_all.shape)
+        em = np.broadcast_to(problem.eps_medium, wl_all.shape)
+        free = TMatrix.axisymmetric(shape, eps, em, L, D, wl_all, tol=self.tol[shape])
+
+        def tmatrix_at(n_max, wavelength_nm):
+            i = np.searchsorted(wl_all, wavelength_nm)
+            return TMatrix.axisymmetric(shape, eps[i], em[i], L, D, wl_all[i], n_max=int(n_max))
+        return tmatrix_at, np.eye(3)[axis], int(free.n_max), _r_max(shape, (L / 2, D / 2)), self.tol[shape]
+
     def validity(self, problem) -> list:
         """A caution for cylinders and capped rods: their series is converged to 2e-2 only."""
         from .validity import Caution
@@ -1037,6 +1079,16 @@ class TMatrixSolver(Solver):
                         f"converges slowly; cross-sections converged to {self.fine_tol[shape]:g} relative where the "
                         f"series allows, else {self.tol[shape]:g} (spheroids: 1e-4; metadata['tmatrix'] gives the "
                         "achieved change)")]
+
+
+def _body(p):
+    """(EBCM shape name, symmetry-axis index 0/1/2, length, diameter [nm]) of a particle the solver accepts."""
+    if p.shape == "ellipsoid":
+        axes = [np.asarray(a, dtype=float) for a in p.semi_axes_nm]
+        axis = _symmetry_axis(p.semi_axes_nm)
+        return "spheroid", axis, 2 * axes[axis], 2 * axes[(axis + 1) % 3]
+    return p.shape, (0 if p.kind == "rod" else 2), np.asarray(p.length_nm, dtype=float), np.asarray(
+        p.diameter_nm, dtype=float)
 
 
 def _symmetry_axis(semi_axes):
