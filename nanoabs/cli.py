@@ -623,8 +623,9 @@ def _cmd_export_generation(args) -> int:
                                    "symmetry axis (z_nm along it, rho_nm from it)"),
             "irradiance_W_m2": irradiance, "spectrum": spec.metadata,
             "absorbed_photon_rate_per_s": absorbed_photon_rate(spec, irradiance).tolist()}
-    if "energy_balance_relative_error" in frame.attrs:
-        meta["energy_balance_relative_error"] = frame.attrs["energy_balance_relative_error"]
+    for key in ("energy_balance_relative_error", "profile_approximation"):
+        if key in frame.attrs:
+            meta[key] = frame.attrs[key]
     write_export(frame, args.output, metadata=meta, units=GENERATION_UNITS, force=args.force)
     print(f"wrote {args.output}: G(r) at {len(spec.wavelength_nm)} wavelength(s), "
           f"{len(frame) // len(spec.wavelength_nm)} {'radii' if sphere else 'cells'}; peak G {frame['generation_rate_cm3_s'].max():.3g} "

@@ -54,7 +54,10 @@ def generation_profile(spec, particle, irradiance_W_m2, *, n_points: int = 50):
         Spheres: radial cells.  Cylinder, capped rod, rounded disc, and a spheroid whose
         spectrum was computed with ``method="tmatrix"``, in a homogeneous host: cells of a
         body-fitted grid (:func:`nanoabs.tmatrix.absorption_cells`), for the spectrum's
-        polarisation (``random``: orientation average).
+        polarisation (``random``: orientation average).  The same bodies (spheroids with any
+        method) on or in a planar stack: a documented approximation, the profile shape of the
+        body in the host medium scaled to the environment's σ_abs (``attrs["profile_approximation"]``);
+        spheres there get their exact profile (the multipole solution's internal field).
     irradiance_W_m2 : float or array (W,)
         Incident irradiance at each wavelength [W m⁻²].
     n_points : int
@@ -109,14 +112,15 @@ def _body_profile(spec, particle, I0, n_points):
     from .tmatrix import _incidence, _symmetry_axis, absorption_cells, solver_tmatrix
 
     env = spec.metadata.get("environment") or {}
+    planar = env.get("kind", "homogeneous") != "homogeneous"
     body = particle.shape in ("cylinder", "capped-rod", "rounded-disc")
-    spheroid = (particle.shape == "ellipsoid" and spec.metadata.get("method") == "tmatrix"
+    spheroid = (particle.shape == "ellipsoid" and (spec.metadata.get("method") == "tmatrix" or planar)
                 and _symmetry_axis(particle.semi_axes_nm) is not None)
-    if not (body or spheroid) or len(particle.layer_materials()) > 1 or env.get("kind", "homogeneous") != "homogeneous":
+    if not (body or spheroid) or len(particle.layer_materials()) > 1:
         raise NanoabsError("generation profile: defined for spheres and layered spheres, and for homogeneous "
-                           "spheroids (method tmatrix), cylinders, capped rods and rounded discs in a homogeneous "
-                           "host (an ellipsoid's quasi-static internal field is uniform: G = absorbed photon rate "
-                           "/ volume)")
+                           "spheroids (method tmatrix, or any method on / in a substrate), cylinders, capped rods "
+                           "and rounded discs (an ellipsoid's quasi-static internal field is uniform: G = absorbed "
+                           "photon rate / volume)")
     if any(np.size(v) > 1 for v in particle.outer_semi_axes_nm()):
         raise NanoabsError("generation profile: give one particle, not a size family")
     if spheroid:
@@ -128,6 +132,8 @@ def _body_profile(spec, particle, I0, n_points):
         shape, L, D = particle.shape, float(np.ravel(particle.length_nm)[0]), float(np.ravel(particle.diameter_nm)[0])
     wl = spec.wavelength_nm
     eps = np.broadcast_to(spec.layer_eps[0], wl.shape)
+    if planar and spec.metadata.get("incidence_index") is None:
+        raise NanoabsError("generation profile: the spectrum's metadata lacks incidence_index (recompute it)")
     tm = solver_tmatrix(shape, eps, np.asarray(spec.n_medium) ** 2, L, D, wl, internal=True)
     pol = spec.metadata.get("polarization", "random")
     theta_inc, psi = (None, 0.0) if pol == "random" else _incidence(axis, pol)
@@ -141,7 +147,12 @@ def _body_profile(spec, particle, I0, n_points):
                            f"{balance:.1e} (allowed {BODY_BALANCE_TOL:g}); its internal series is not converged "
                            "here (notes/tmatrix.md)")
     I0 = np.broadcast_to(np.asarray(I0, dtype=float), wl.shape)
-    p = I0[:, None] * cells["q_per_nm"] * 1e9  # [W m^-3]
+    q = cells["q_per_nm"]
+    if planar:  # documented approximation: the free body's profile shape, scaled to sigma_abs of the environment
+        free = q @ cells["cell_volume_nm3"]  # [nm^2]: C_abs of the body in the host, same illumination
+        with np.errstate(divide="ignore", invalid="ignore"):
+            q = np.where(free[:, None] > 0, q * (np.asarray(spec.sigma_abs_m2) * 1e18 / free)[:, None], 0.0)
+    p = I0[:, None] * q * 1e9  # [W m^-3]
     photon_J = HC_EV_NM / wl * _EV_J
     G = p / photon_J[:, None] * 1e-6
     C = cells["z_nm"].size
@@ -150,6 +161,11 @@ def _body_profile(spec, particle, I0, n_points):
                          "cell_volume_nm3": np.tile(cells["cell_volume_nm3"], wl.size),
                          "absorbed_power_density_W_m3": p.ravel(), "generation_rate_cm3_s": G.ravel()})
     frame.attrs["energy_balance_relative_error"] = balance
+    if planar:
+        frame.attrs["profile_approximation"] = (
+            "on or in a planar stack: the profile shape of the same body in the host medium (T-matrix internal "
+            "field), scaled so that it integrates to the environment's sigma_abs; the substrate's own field "
+            "gradient across the body (strongest on the side facing it) is not in the shape")
     return frame
 
 

@@ -52,6 +52,27 @@ def test_generation_in_planar_environment_integrates_to_its_absorbed_photon_rate
         assert abs(rate / rate_free - 1) > 1e-3  # so the free particle's profile would fail the check above
 
 
+def test_generation_of_a_body_on_a_substrate_is_the_scaled_free_profile():
+    # Documented approximation (issue 11: "a documented approximation for others"): the free body's
+    # T-matrix profile shape scaled to the environment's sigma_abs. Checks: it integrates to the
+    # environment's absorbed photon rate (identity, 1e-9) and its shape is the free body's (cell ratios
+    # equal to 1e-9), so the substrate enters only through sigma_abs, as the sidecar says.
+    p = nanoabs.spheroid("Au", length_nm=40.0, diameter_nm=16.0)
+    wl = np.array([560.0, 620.0])
+    env = nanoabs.on_substrate("SiO2", superstrate="air", gap_nm=5.0)
+    s = nanoabs.spectrum(p, wl, environment=env, method="mlwa", polarization="long")
+    s_free = nanoabs.spectrum(p, wl, medium=env.host_material(), method="tmatrix", polarization="long")
+    f = generation_profile(s, p, 10.0, n_points=12)
+    f_free = generation_profile(s_free, p, 10.0, n_points=12)
+    assert "scaled" in f.attrs["profile_approximation"]
+    for w, rate in zip(wl, absorbed_photon_rate(s, 10.0)):
+        rows, free = f[f.wavelength_nm == w], f_free[f_free.wavelength_nm == w]
+        total = float(np.sum(rows.generation_rate_cm3_s * rows.cell_volume_nm3 * 1e-21))
+        assert total == pytest.approx(float(rate), rel=1e-9)
+        ratio = rows.generation_rate_cm3_s.to_numpy() / free.generation_rate_cm3_s.to_numpy()
+        assert np.ptp(ratio) <= 1e-9 * ratio.mean()
+
+
 @pytest.mark.parametrize("text, value", [
     ("10", 10.0), ("10W/m2", 10.0), ("1mW/cm2", 10.0), ("1 mW/cm^2", 10.0), ("5kW/m2", 5000.0),
     ("2uW/um2", 2e6), ("1e-3 W/cm2", 10.0),
