@@ -113,6 +113,28 @@ def test_spectrum_dipole_methods_on_substrate_and_rod_orientations():
     assert "image" in qs.metadata["environment_method"] and np.all(qs.sigma_abs_m2 > 0)
 
 
+def test_dipole_method_cautions_for_a_sphere_closer_than_its_radius():
+    # Source: bench/substrate.md (the multipole method vs the dipole method, itself held to miepython
+    # and the energy balance): for a 40 nm Au sphere 1 nm above Si the dipole's peak sigma_abs is ~25 %
+    # off. A gap below the radius gets the caution, a gap above it does not; the multipole method
+    # never does.
+    import warnings
+
+    import nanoabs
+
+    wl = np.array([520.0, 560.0])
+    sph = nanoabs.Sphere("Au", 40.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        near = nanoabs.spectrum(sph, wl, environment=on_substrate("Si", gap_nm=1.0), method="mlwa")
+        far = nanoabs.spectrum(sph, wl, environment=on_substrate("Si", gap_nm=45.0), method="mlwa")
+        exact = nanoabs.spectrum(sph, wl, environment=on_substrate("Si", gap_nm=1.0))
+    codes = lambda s: [c["code"] for c in s.metadata["cautions"]]  # noqa: E731
+    assert "dipole-near-surface" in codes(near)
+    assert "dipole-near-surface" not in codes(far) and "dipole-near-surface" not in codes(exact)
+    assert abs(near.sigma_abs_m2[0] / exact.sigma_abs_m2[0] - 1) > 0.05  # the error the caution names
+
+
 def test_array_of_sizes_refused_on_substrate():
     import nanoabs
 
