@@ -112,6 +112,8 @@ MIEPYTHON, JIT_ON, T_IMPORT_MIEPYTHON, NUMBA_CACHE_BEFORE, BACKEND_NOTE = _impor
 
 import scipy  # noqa: E402
 
+# the nanoabs of the checkout this script lives in (not an installed copy elsewhere)
+sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 import nanoabs  # noqa: E402
 from nanoabs import _compiled_mie  # noqa: E402
 from nanoabs.validity import NanoabsWarning  # noqa: E402
@@ -169,7 +171,8 @@ SEARCH_TIMER = (
     " medium='Si', max_size_nm=200.0, min_shell_nm=5.0, progress=False)\n"
     "run()\n"
     "t0 = time.perf_counter(); r = run(); t = time.perf_counter() - t0\n"
-    "print(json.dumps({{'s': t, 'designs': [[f, float(x)] for f, x in zip(r['family'], r['figure_of_merit'])]}}))\n"
+    "print(json.dumps({{'s': t, 'designs': [[f, float(x), float(y)] for f, x, y in zip(r['family'], r['figure_of_merit'],"
+    " r['recheck_figure_of_merit'])]}}))\n"
 )
 
 
@@ -243,6 +246,10 @@ def ratio(times, name, base):
 
 
 def _run(cmd, env=None, timeout=600):
+    """Run ``cmd`` with this checkout's nanoabs first on the path (PYTHONPATH); (seconds, result)."""
+    env = dict(os.environ if env is None else env)
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    env["PYTHONPATH"] = os.pathsep.join([root] + [v for v in [env.get("PYTHONPATH")] if v])
     t0 = time.perf_counter()
     p = subprocess.run(cmd, capture_output=True, text=True, env=env, timeout=timeout)
     return time.perf_counter() - t0, p
@@ -466,7 +473,8 @@ def main(argv=None):
           f"({facts['cores_logical']} logical); {facts['platform']}; load average "
           + " ".join(f"{v:.1f}" for v in os.getloadavg()))
     print(f"python {facts['python']}, numpy {facts['numpy']}, scipy {facts['scipy']}, "
-          f"numba {facts['numba'] or 'absent'}, miepython {facts['miepython']}, nanoabs {facts['nanoabs']}")
+          f"numba {facts['numba'] or 'absent'}, miepython {facts['miepython']}, nanoabs {facts['nanoabs']} "
+          f"({os.path.dirname(nanoabs.__file__)})")
     print("miepython backend: " + ("numba JIT" if JIT_ON else "pure Python, NO JIT (the baseline is far slower) "
                                    + BACKEND_NOTE))
     print(f"nanoabs Mie backend: {out['a'].metadata['solver_backend']}; "
@@ -493,11 +501,17 @@ def main(argv=None):
         for key, label in (("new", "this code"), ("old", args.search_baseline)):
             t = np.array(search["times"][key])
             print(f"{'(d) design.search, 3 families, ' + label:<{w}}  {t.min():9.4f}  {np.median(t):9.4f}")
-        same = [f for f, _ in search["designs"]["new"]] == [f for f, _ in search["designs"]["old"]]
-        fom = [(a[1], b[1]) for a, b in zip(search["designs"]["new"], search["designs"]["old"])]
-        worst = max((abs(a - b) / abs(b) for a, b in fom if b), default=0.0)
+        same = [d[0] for d in search["designs"]["new"]] == [d[0] for d in search["designs"]["old"]]
+        pairs = list(zip(search["designs"]["new"], search["designs"]["old"]))
+
+        def worst(i):  # largest relative change of column i over the rows where both are finite
+            return max((abs(a[i] - b[i]) / abs(b[i]) for a, b in pairs if b[i] and np.isfinite(a[i] + b[i])),
+                       default=0.0)
+
+        nan_same = all(np.isnan(a[2]) == np.isnan(b[2]) for a, b in pairs)
         print(f"    (d) ranked families {'equal' if same else 'DIFFER'}; largest relative change of a "
-              f"figure of merit {worst:.1e}")
+              f"figure of merit {worst(1):.1e}, of a recheck figure of merit {worst(2):.1e} "
+              f"(NaN rechecks {'alike' if nan_same else 'DIFFER'})")
     else:
         print(f"(d) not measured: {search_note}")
     if kernel_ok:

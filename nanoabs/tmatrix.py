@@ -53,6 +53,8 @@ raised.  See notes/tmatrix.md for the validated range.
 
 from __future__ import annotations
 
+import contextlib
+import threading
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -937,6 +939,44 @@ def solver_tmatrix(shape, eps, eps_medium, length_nm, diameter_nm, wavelength_nm
         series of a capped rod loses accuracy at the higher orders of the tighter target).
     """
     args = (shape, eps, eps_medium, length_nm, diameter_nm, wavelength_nm)
+    memo = getattr(_ORDERS, "memo", None)
+    key = (shape, float(length_nm), float(diameter_nm), None if coating is None else
+           (float(coating[1]), float(coating[2])), bool(internal))
+    if memo is not None and key in memo:  # the same body again, inside reuse_orders()
+        first = memo[key]
+        tm = TMatrix.axisymmetric(*args, n_max=first["n_max"], n_quad=first["n_quad"], coating=coating,
+                                  internal=internal, extended=first["precision"] == "extended")
+        tm.info.update(first)
+        return tm
+    tm = _solver_tmatrix(args, coating, internal)
+    if memo is not None:
+        memo[key] = {k: tm.info.get(k) for k in ("n_max", "n_quad", "precision", "tolerance", "achieved_change",
+                                                 "quadrature_change")}
+    return tm
+
+
+_ORDERS = threading.local()
+
+
+@contextlib.contextmanager
+def reuse_orders():
+    """Within this scope (this thread only), :func:`solver_tmatrix` converges a body the first time it
+    meets it and solves the same body (shape, sizes, coating sizes) again with the orders found then
+    (n_max, n_quad, precision), without a new convergence loop.  For a caller that completes one
+    body's spectrum at more wavelengths in several calls: the values at a wavelength then do not
+    depend on which wavelengths each call held (apart from the early stop over m, 1e-2 of the
+    tolerance, module docstring of :func:`_compute`).  The recorded orders met the tolerance on the
+    first call's wavelengths only."""
+    outer = getattr(_ORDERS, "memo", None)
+    _ORDERS.memo = {} if outer is None else outer
+    try:
+        yield
+    finally:
+        _ORDERS.memo = outer
+
+
+def _solver_tmatrix(args, coating, internal):
+    shape = args[0]
     fine = TMatrixSolver.fine_tol.get(shape)
     if fine is not None and not internal:  # the internal-field series of edged bodies degrades at high orders
         try:

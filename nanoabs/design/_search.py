@@ -210,12 +210,13 @@ class _Problem:
         E, eta = injection
         return sa * E * (self.grid[idx] * 1e-9) / _HC_J_M * eta, af  # [s^-1 nm^-1]
 
-    def evaluate(self, g):
+    def evaluate(self, g, spectra=None):
         """Figures of merit of designs g: dict with the combined value, one per band, the band-average
-        absorbed fraction, the coarse peak [nm] and whether it lies in a band."""
+        absorbed fraction, the coarse peak [nm] and whether it lies in a band.  ``spectra``: the
+        result of :meth:`spectra` on ``self.grid`` if already at hand."""
         from scipy.integrate import trapezoid
 
-        res = self.spectra(g, self.grid)
+        res = self.spectra(g, self.grid) if spectra is None else spectra
         per_band, afs = [], []
         for (lo, hi, _, inj), idx in zip(self.bands, self.band_idx):
             y, af = self._band_values(res, idx, inj)
@@ -378,7 +379,10 @@ def search(band_nm, *, families=("sphere", "shell", "rod"), objective="sigma_abs
         ``"auto"`` rule of :func:`nanoabs.solvers.choose`, exact methods first) and report
         it in the ``recheck_*`` columns beside the coarse method's values (cylinders and
         capped rods: the T-matrix; ``recheck_method`` says "tmatrix: failed (not converged)"
-        with NaN values when the exact solver does not converge for a design).
+        with NaN values when the exact solver does not converge for a design).  A T-matrix
+        recheck solves the body at about a third of the search grid's wavelengths (nodes
+        24 nm apart, refined where a cubic spline misses the next midpoint by more than
+        2e-3 of the largest cross-section) and interpolates the rest.
 
     Returns
     -------
@@ -868,7 +872,7 @@ def _recheck(cfg, c, g):
         best, _ = choose("auto", _one_particle(prob0, g), where, wavelength_nm=window,
                          n_medium=where.host_index(window)[0])
         prob = _problem(cfg, fam, c["mi"], method=best.name)
-        ev = prob.evaluate(g)
+        ev = prob.evaluate(g, spectra=_recheck_spectra(prob, g, best.name))
     except NanoabsError as exc:
         name = best.name if best is not None else "none"
         why = "not converged" if ("converge" in str(exc) or "passive" in str(exc)) else "refused"
@@ -880,6 +884,79 @@ def _recheck(cfg, c, g):
     return {"recheck_method": best.name,
             "recheck_peak_wavelength_nm": float(_peak(prob.grid, ev["sigma_abs_m2"][0])),
             "recheck_figure_of_merit": float(per_band.min() if cfg["combine"] == "worst" else per_band.mean())}
+
+
+#: The T-matrix recheck solves its body on a subset of the search grid: nodes about
+#: RECHECK_STEP_NM apart, then the midpoints of every interval whose last midpoint missed the cubic
+#: spline through the nodes by more than RECHECK_TOL (relative to the largest cross-section met),
+#: until the intervals pass or hold no grid point; the rest of the grid is interpolated.
+RECHECK_STEP_NM = 24.0
+RECHECK_TOL = 2e-3
+
+
+def _recheck_spectra(prob, g, method):
+    """Spectra of the recheck on ``prob.grid``: :func:`_sparse_spectra` for the T-matrix, or the direct
+    spectrum where a sparse solve fails (e.g. a later node is not passive at the first call's orders,
+    where the direct solve may switch to extended precision)."""
+    if method == "tmatrix":
+        try:
+            return _sparse_spectra(prob, g)
+        except NanoabsError:
+            pass
+    return prob.spectra(g, prob.grid)
+
+
+def _sparse_spectra(prob, g):
+    """:meth:`_Problem.spectra` of the one design ``g`` on ``prob.grid`` from T-matrix solves at a subset
+    of the grid, adaptively refined (RECHECK_STEP_NM, RECHECK_TOL) and completed by a not-a-knot cubic
+    spline in wavelength (scipy.interpolate.CubicSpline; de Boor, A Practical Guide to Splines, 1978,
+    ch. IV-V: error O(h^4) on smooth data, checked here at every midpoint added).  The body is
+    converged once (first call) and solved with the same orders at later nodes
+    (:func:`nanoabs.tmatrix.reuse_orders`), so each node equals the direct spectrum at the same orders."""
+    from scipy.interpolate import CubicSpline
+
+    from ..tmatrix import reuse_orders
+
+    wl = prob.grid
+    W = wl.size
+    checked = ("sigma_abs_m2", "sigma_sca_m2", "sigma_ext_m2")
+    keys = checked + ("geometric_cross_section_m2", "equal_volume_area_m2", "n_medium")
+    first = np.unique(np.r_[np.searchsorted(wl, np.arange(wl[0], wl[-1], RECHECK_STEP_NM)), W - 1].clip(0, W - 1))
+    if first.size < 4 or first.size * 2 >= W:  # too few points to gain anything
+        return prob.spectra(g, wl)
+
+    def spline(k, at):
+        x = np.array(sorted(known[k]))
+        return CubicSpline(wl[x], [known[k][i] for i in x])(at)
+
+    with reuse_orders():
+        res = prob.spectra(g, wl[first])
+        known = {k: dict(zip(first.tolist(), res[k][0])) for k in keys}
+        nodes, todo = first, first[:-1]  # left ends of the intervals to split
+        while todo.size:
+            right = nodes[np.searchsorted(nodes, todo) + 1]
+            split = (right - todo) >= 2
+            left, right = todo[split], right[split]
+            if left.size == 0:
+                break
+            mid = (left + right) // 2
+            new = prob.spectra(g, wl[mid])
+            err = np.zeros(mid.size)
+            for k in checked:
+                scale = max(max(abs(v) for v in known[k].values()), float(np.max(np.abs(new[k][0]))), 1e-300)
+                err = np.maximum(err, np.abs(spline(k, wl[mid]) - new[k][0]) / scale)
+            for k in keys:
+                known[k].update(zip(mid.tolist(), new[k][0]))
+            nodes = np.union1d(nodes, mid)
+            bad = err > RECHECK_TOL
+            todo = np.union1d(left[bad], mid[bad])
+    out = dict(res)
+    for k in keys:
+        full = spline(k, wl)
+        full[list(known[k])] = list(known[k].values())
+        out[k] = full[None, :]
+    out["recheck_nodes"] = nodes.size
+    return out
 
 
 def _ranked_frame(rows, cfg, warnings):
