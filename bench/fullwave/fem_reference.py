@@ -56,15 +56,15 @@ HERE = Path(__file__).resolve().parent
 # name: (metal, shape, size [nm], substrate, incidence, default wavelengths [nm])
 # shape "sphere": size = radius; "spheroid": size = (length, diameter), long axis along x (the field)
 CASES = {
-    "au20_si_front": ("Au", "sphere", 20.0, "Si", "front", np.arange(470.0, 561.0, 10.0)),
-    "au40_si_front": ("Au", "sphere", 40.0, "Si", "front", np.arange(470.0, 561.0, 10.0)),
-    "au80_si_front": ("Au", "sphere", 80.0, "Si", "front", np.arange(460.0, 571.0, 10.0)),
-    "au40_sio2_front": ("Au", "sphere", 40.0, "SiO2", "front", np.arange(470.0, 561.0, 10.0)),
-    "au40_sio2_back": ("Au", "sphere", 40.0, "SiO2", "back", np.arange(470.0, 561.0, 10.0)),
-    "au40_tio2_front": ("Au", "sphere", 40.0, "TiO2", "front", np.arange(470.0, 561.0, 10.0)),
-    "ag40_sio2_front": ("Ag", "sphere", 40.0, "SiO2", "front", np.arange(320.0, 401.0, 10.0)),
+    "au40_si_front": ("Au", "sphere", 40.0, "Si", "front", np.arange(480.0, 551.0, 10.0)),
+    "au20_si_front": ("Au", "sphere", 20.0, "Si", "front", np.arange(480.0, 551.0, 10.0)),
+    "au40_sio2_front": ("Au", "sphere", 40.0, "SiO2", "front", np.arange(480.0, 551.0, 10.0)),
+    "au40_sio2_back": ("Au", "sphere", 40.0, "SiO2", "back", np.arange(480.0, 551.0, 10.0)),
+    "au40_tio2_front": ("Au", "sphere", 40.0, "TiO2", "front", np.arange(480.0, 551.0, 10.0)),
+    "ag40_sio2_front": ("Ag", "sphere", 40.0, "SiO2", "front", np.arange(320.0, 391.0, 10.0)),
     "au40_si_back": ("Au", "sphere", 40.0, "Si", "back", np.arange(1100.0, 1601.0, 100.0)),
-    "aurod100x30_sio2_front": ("Au", "spheroid", (100.0, 30.0), "SiO2", "front", np.arange(500.0, 1101.0, 50.0)),
+    "au80_si_front": ("Au", "sphere", 80.0, "Si", "front", np.arange(470.0, 561.0, 15.0)),
+    "aurod100x30_sio2_front": ("Au", "spheroid", (100.0, 30.0), "SiO2", "front", np.arange(600.0, 1101.0, 50.0)),
     # FEM self-check: substrate = superstrate = air, against miepython
     "validate_au40_air": ("Au", "sphere", 40.0, "air", "front", np.array([500.0, 520.0, 540.0])),
     "validate_au20_air": ("Au", "sphere", 20.0, "air", "front", np.array([520.0])),
@@ -99,10 +99,10 @@ def fresnel_background(n1, n2, incidence):
 
 
 def build_mesh(shape, size, gap, wl_min, n_up, n_down, *, ppw, maxh_particle, maxh_gap, margin, pml_width,
-               refine_gap=True):
+               refine_gap=True, pml_layers=6):
     """Quarter-ball mesh: particle, superstrate, substrate, two PML shells (netgen OCC)."""
     from netgen.meshing import MeshingParameters
-    from netgen.occ import X, Y, Box, Ellipsoid, Glue, OCCGeometry, Pnt, Sphere, gp_Ax3, gp_Dir
+    from netgen.occ import X, Y, Axes, Box, Ellipsoid, Glue, OCCGeometry, Pnt, Sphere
     import ngsolve as ng
 
     if shape == "sphere":
@@ -123,7 +123,7 @@ def build_mesh(shape, size, gap, wl_min, n_up, n_down, *, ppw, maxh_particle, ma
     if shape == "sphere":
         part = Sphere(Pnt(0, 0, zc), a)
     else:
-        part = Ellipsoid(gp_Ax3(Pnt(0, 0, zc), gp_Dir(0, 0, 1), gp_Dir(1, 0, 0)), a, b, c)
+        part = Ellipsoid(Axes(Pnt(0, 0, zc), n=(1, 0, 0), h=(0, 0, 1)), a, b, c)  # r1 along n; seam on y = 0 meshes
     part = part * quarter
     part.mat("particle")
     part.maxh = maxh_particle
@@ -135,10 +135,10 @@ def build_mesh(shape, size, gap, wl_min, n_up, n_down, *, ppw, maxh_particle, ma
     down.maxh = wl_min / (n_down * ppw)
     pml_up = ((outer - inner) * top) * quarter
     pml_up.mat("pml_up")
-    pml_up.maxh = wl_min / (n_up * ppw)
+    pml_up.maxh = min(wl_min / (n_up * ppw), pml_width / pml_layers)
     pml_down = ((outer - inner) - top) * quarter
     pml_down.mat("pml_down")
-    pml_down.maxh = wl_min / (n_down * ppw)
+    pml_down.maxh = min(wl_min / (n_down * ppw), pml_width / pml_layers)
     geo = OCCGeometry(Glue([part, up, down, pml_up, pml_down]))
     mp = MeshingParameters(maxh=wl_min / ppw, grading=0.3)
     # refine the gap (not in the homogeneous check): points on the particle's underside and on the
@@ -155,7 +155,7 @@ def build_mesh(shape, size, gap, wl_min, n_up, n_down, *, ppw, maxh_particle, ma
 
 
 def solve_case(name, wavelengths, *, order=2, ppw=5.0, maxh_particle=None, maxh_gap=None, margin=None,
-               pml_width=None, alpha=1.0, curve=None, progress=True, mesh_only=False):
+               pml_width=None, alpha=2.0, pml_layers=6, curve=None, progress=True, mesh_only=False):
     """sigma_abs [nm^2] of one case on a wavelength grid; returns (sigma, facts)."""
     import ngsolve as ng
     from ngsolve import pml
@@ -176,14 +176,15 @@ def solve_case(name, wavelengths, *, order=2, ppw=5.0, maxh_particle=None, maxh_
         gap = 50.0  # any position: homogeneous check; the sphere sits away from the (fictitious) plane
     t0 = time.perf_counter()
     mesh, facts = build_mesh(shape, size, gap, wl_min, n_up, n_down, ppw=ppw, maxh_particle=maxh_particle,
-                             maxh_gap=maxh_gap, margin=margin, pml_width=pml_width, refine_gap=sub != "air")
+                             maxh_gap=maxh_gap, margin=margin, pml_width=pml_width, refine_gap=sub != "air",
+                             pml_layers=pml_layers)
     mesh.Curve(curve or order)
     mesh.SetPML(pml.Radial(origin=(0, 0, 0), rad=facts["r_in_nm"], alpha=1j * alpha), "pml_up|pml_down")
     fes = ng.HCurl(mesh, order=order, complex=True, dirichlet="symx|outer")
     E, v = fes.TnT()
     gfu = ng.GridFunction(fes)
     facts.update(mesh_elements=mesh.ne, ndof=fes.ndof, order=order, ppw=ppw, maxh_particle_nm=maxh_particle,
-                 maxh_gap_nm=maxh_gap, margin_nm=margin, pml_width_nm=pml_width, pml_alpha=alpha,
+                 maxh_gap_nm=maxh_gap, margin_nm=margin, pml_width_nm=pml_width, pml_alpha=alpha, pml_layers=pml_layers,
                  gap_nm=0.0 if sub == "air" else gap, mesh_seconds=round(time.perf_counter() - t0, 1))
     print(f"{name}: {mesh.ne} elements, {fes.ndof} dof, mesh {facts['mesh_seconds']} s", file=sys.stderr)
     if mesh_only:
