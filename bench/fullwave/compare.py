@@ -96,7 +96,8 @@ def main(argv=None):
     ap.add_argument("--force", action="store_true")
     args = ap.parse_args(argv)
     warnings.simplefilter("ignore")
-    files = sorted(p for p in HERE.glob("*.csv") if not p.name.startswith(("validate", "convergence")))
+    files = sorted(p for p in HERE.glob("*.csv") if not p.name.startswith(("validate", "convergence"))
+                   and not p.stem.endswith("_coarse"))
     if not files:
         print(f"error: no FEM CSV in {HERE}: run fem_reference.py first", file=sys.stderr)
         return 2

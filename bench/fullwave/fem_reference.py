@@ -246,6 +246,36 @@ def write_csv(path, wl, sig, header, force):
     os.replace(tmp, path)
 
 
+def convergence(name, wl, force):
+    """Re-solve one case at one wavelength with each discretisation parameter refined in turn."""
+    base = dict(margin=0.12 * wl, pml_width=0.3 * wl)
+    variants = [("baseline (order 2, 5 elements per wavelength, PML a = 2)", {}),
+                ("8 elements per wavelength", dict(ppw=8.0)),
+                ("order 3", dict(order=3)),
+                ("gap mesh halved", dict(maxh_gap=0.5 * max(GAP_NM[CASES[name][1]], 1.0))),
+                ("particle mesh halved", dict(maxh_particle="half")),
+                ("domain margin x2, PML x1.5", dict(margin=0.24 * wl, pml_width=0.45 * wl)),
+                ("PML strength a = 1", dict(alpha=1.0))]
+    path = HERE / f"convergence_{name}.csv"
+    if path.exists() and not force:
+        raise SystemExit(f"error: {path} exists: pass --force to overwrite")
+    c = CASES[name][2] if CASES[name][1] == "sphere" else CASES[name][2][1] / 2
+    lines = ["variant,wavelength_nm,ndof,order,sigma_abs_nm2,change_vs_baseline"]
+    ref = None
+    for label, kw in variants:
+        kw = {**base, **kw}
+        if kw.get("maxh_particle") == "half":
+            kw["maxh_particle"] = 0.5 * max(c / 4, 4.0)
+        sig, facts = solve_case(name, [wl], progress=False, **kw)
+        ref = sig[0] if ref is None else ref
+        lines.append(f"\"{label}\",{wl:g},{facts['ndof']},{facts['order']},{sig[0]:.8g},{sig[0] / ref - 1:+.5f}")
+        print(lines[-1], flush=True)
+    tmp = path.with_suffix(".csv.tmp")
+    tmp.write_text("\n".join(lines) + "\n")
+    os.replace(tmp, path)
+    print(f"wrote {path}")
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("cases", nargs="*", help="case names (see --list)")
@@ -257,6 +287,9 @@ def main(argv=None):
     ap.add_argument("--maxh-particle", type=float, default=None, help="mesh size in the particle [nm]")
     ap.add_argument("--maxh-gap", type=float, default=None, help="mesh size in the gap [nm]")
     ap.add_argument("--wl", default=None, help="wavelengths START:STOP:STEP [nm] (default: the case's grid)")
+    ap.add_argument("--convergence", type=float, default=None, metavar="WL",
+                    help="instead of a spectrum: re-solve the case at this wavelength [nm] with a finer mesh, "
+                         "higher order, finer gap, larger domain / PML and a softer PML; writes convergence_<case>.csv")
     ap.add_argument("--suffix", default="", help="append to the CSV name (convergence runs)")
     ap.add_argument("--force", action="store_true", help="overwrite an existing CSV")
     args = ap.parse_args(argv)
@@ -268,6 +301,10 @@ def main(argv=None):
         if name not in CASES:
             print(f"error: case {name!r} unknown; choose from {', '.join(CASES)}", file=sys.stderr)
             return 2
+    if args.convergence is not None:
+        for name in args.cases:
+            convergence(name, args.convergence, args.force)
+        return 0
     for name in args.cases:
         metal, shape, size, sub, inc, wl = CASES[name]
         if args.wl:
