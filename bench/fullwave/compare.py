@@ -133,6 +133,15 @@ def main(argv=None):
         h, wl, fem = read_case(path)
         val.append(f"| {path.stem} | {', '.join(f'{w:g}' for w in wl)} | {h['relative_error_vs_miepython']} "
                    f"| {h['ndof']}, {h['order']} |")
+    conv = []
+    for path in sorted(HERE.glob("convergence_*.csv")):
+        lines = path.read_text().splitlines()[1:]
+        conv.append(f"\n**{path.stem[len('convergence_'):]}** at {lines[0].split(',')[-5]} nm\n\n"
+                    "| variant | dof | order | sigma_abs [nm^2] | change |\n|---|---|---|---|---|")
+        for line in lines:
+            label, rest = line[1:].split('",')
+            w, ndof, order, sig, change = rest.split(",")
+            conv.append(f"| {label} | {ndof} | {order} | {float(sig):.5g} | {100 * float(change):+.2f} % |")
     detail = []
     for name, wl, fem, curves in spectra:
         detail.append(f"\n**{name}**\n\n| wavelength [nm] | FEM [nm^2] | auto | dipole | image |\n|---|---|---|---|---|")
@@ -151,12 +160,14 @@ def main(argv=None):
             "parabola through the three highest grid points (same fit for every method). "
             f"Target (issue 11): peak within {100 * PEAK_TOL:g} %, peak sigma_abs within {100 * SIGMA_TOL:g} %. "
             "'n/a' + 'max over grid': no peak in the window, the largest deviation of sigma_abs on the grid "
-            "is judged instead.\n\n" + "\n".join(rows)
+            "is judged instead. Package: nanoabs " + str(getattr(nanoabs, "__version__", "?"))
+            + " imported from `" + str(Path(nanoabs.__file__).parent.parent.name) + "`.\n\n" + "\n".join(rows)
             + "\n\n## The reference's own accuracy\n\nHomogeneous check (substrate = superstrate = air) "
             "against miepython (relative error of sigma_abs):\n\n| case | wavelengths [nm] | FEM/miepython - 1 "
             "| dof, order |\n|---|---|---|---|\n" + "\n".join(val)
-            + "\n\nConvergence of the reference: see `bench/fullwave/convergence_*.csv` and the table "
-            "in docs/validation.md.\n\n## Spectra\n" + "\n".join(detail) + "\n")
+            + "\n\nConvergence of the reference (one parameter refined at a time, "
+            "`fem_reference.py CASE --convergence WL`):\n" + "\n".join(conv)
+            + "\n\n## Spectra\n" + "\n".join(detail) + "\n")
     path = Path(args.out)
     if path.exists() and not args.force:
         print(f"{path} exists: pass --force to overwrite", file=sys.stderr)

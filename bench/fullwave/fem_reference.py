@@ -63,6 +63,8 @@ CASES = {
     "au40_tio2_front": ("Au", "sphere", 40.0, "TiO2", "front", np.arange(480.0, 551.0, 10.0)),
     "ag40_sio2_front": ("Ag", "sphere", 40.0, "SiO2", "front", np.arange(320.0, 391.0, 10.0)),
     "au40_si_back": ("Au", "sphere", 40.0, "Si", "back", np.arange(1100.0, 1601.0, 100.0)),
+    "ag40_si_front": ("Ag", "sphere", 40.0, "Si", "front", np.arange(340.0, 411.0, 10.0)),
+    "au40_tio2_back": ("Au", "sphere", 40.0, "TiO2", "back", np.arange(480.0, 551.0, 10.0)),
     "au80_si_front": ("Au", "sphere", 80.0, "Si", "front", np.arange(470.0, 561.0, 15.0)),
     "aurod100x30_sio2_front": ("Au", "spheroid", (100.0, 30.0), "SiO2", "front", np.arange(600.0, 1101.0, 50.0)),
     # FEM self-check: substrate = superstrate = air, against miepython
