@@ -120,7 +120,8 @@ def main(argv=None):
             curves[name] = sig
             label = ""
             if name == "auto":
-                label = " (" + str(s.metadata.get("environment_method", s.metadata["method"])).split(" (")[0] + ")"
+                label = (f" ({s.metadata['method']}: "
+                         + str(s.metadata.get("environment_method", "")).split(" (")[0] + ")")
             cells.append(fmt(*judge(wl, fem, sig)[:3]) + label)
         lf, sf, edge = peak(wl, fem)
         where = f"{lf:.0f} (edge: no peak, {wl[0]:g}-{wl[-1]:g})" if edge else f"{lf:.1f}"
