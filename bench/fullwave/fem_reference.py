@@ -63,10 +63,11 @@ CASES = {
     "au40_tio2_front": ("Au", "sphere", 40.0, "TiO2", "front", np.arange(480.0, 551.0, 10.0)),
     "ag40_sio2_front": ("Ag", "sphere", 40.0, "SiO2", "front", np.arange(320.0, 391.0, 10.0)),
     "au40_si_back": ("Au", "sphere", 40.0, "Si", "back", np.arange(1100.0, 1601.0, 100.0)),
-    "ag40_si_front": ("Ag", "sphere", 40.0, "Si", "front", np.arange(340.0, 411.0, 10.0)),
+    "ag40_si_front": ("Ag", "sphere", 40.0, "Si", "front", np.arange(345.0, 396.0, 10.0)),
     "au40_tio2_back": ("Au", "sphere", 40.0, "TiO2", "back", np.arange(480.0, 551.0, 10.0)),
     "au80_si_front": ("Au", "sphere", 80.0, "Si", "front", np.arange(470.0, 561.0, 15.0)),
-    "aurod100x30_sio2_front": ("Au", "spheroid", (100.0, 30.0), "SiO2", "front", np.arange(600.0, 1101.0, 50.0)),
+    "aurod100x30_sio2_front": ("Au", "spheroid", (100.0, 30.0), "SiO2", "front", np.arange(620.0, 761.0, 10.0)),
+    # (its 650-1050 nm / 50 nm run is kept as aurod100x30_sio2_front_coarse.csv)
     # FEM self-check: substrate = superstrate = air, against miepython
     "validate_au40_air": ("Au", "sphere", 40.0, "air", "front", np.array([500.0, 520.0, 540.0])),
     "validate_au20_air": ("Au", "sphere", 20.0, "air", "front", np.array([520.0])),
@@ -310,7 +311,14 @@ def main(argv=None):
     for name in args.cases:
         metal, shape, size, sub, inc, wl = CASES[name]
         if args.wl:
-            a, b, s = (float(x) for x in args.wl.split(":"))
+            try:
+                a, b, s = (float(x) for x in args.wl.split(":"))
+                if not (0 < a <= b and s > 0):
+                    raise ValueError
+            except ValueError:
+                print(f"error: --wl {args.wl!r}: expected START:STOP:STEP in nm, 0 < START <= STOP, STEP > 0",
+                      file=sys.stderr)
+                return 2
             wl = np.arange(a, b + 0.5 * s, s)
         path = HERE / f"{name}{args.suffix}.csv"
         if path.exists() and not args.force:
