@@ -205,7 +205,7 @@ def _profile_q(spec, particle, r_nm):
 
     eps = [np.broadcast_to(np.asarray(e, dtype=complex), wl.shape) for e in spec.layer_eps]
     radii = [float(np.asarray(rr, dtype=float).reshape(-1)[0]) for _, rr in particle.layers]
-    out = sphere_on_stack(env, eps, radii, wl)
+    out = getattr(spec, "_stack_solution", None) or sphere_on_stack(env, eps, radii, wl)
     for j in range(wl.size):
         one = {"n_max": out["n_max"], "e": {mm: e[j:j + 1] for mm, e in out["e"].items()}}
         q[j] = sphere_absorption_profile(env, one, [e[j:j + 1] for e in eps], radii, wl[j:j + 1], k[j] * r)[0]

@@ -510,6 +510,7 @@ def apply_planar(env, solver, problem):
     else:
         radii = [float(np.asarray(r, float).reshape(-1)[0]) for _, r in problem.particle.layers]
         out = sphere_on_stack(env, problem.eps_layers, radii, wl)
+        meta["_stack_solution"] = out  # spectrum() keeps it (not in the metadata) for the internal-field profile
         s_abs, s_ext = out["sigma_abs_nm2"], out["sigma_drive_nm2"]
         meta |= {"environment_method": "multipole (T-matrix coupled to the stack)",
                  "multipole_order": out["n_max"], "multipole_order_change": out["n_max_change"],

@@ -82,6 +82,7 @@ class Spectrum:
     metadata: dict = field(default_factory=dict)
     _layer_eps: object = field(default_factory=list, repr=False)  # list, or a callable returning it
     _environment: object = field(default=None, repr=False)  # the environment object that was solved in
+    _stack_solution: object = field(default=None, repr=False)  # multipole solution of a sphere on a stack
 
     @property
     def layer_eps(self) -> list:
@@ -463,6 +464,7 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
                                                       resp.sigma_ext_nm2))
     cautions += [Caution("damping-clipped", _CLIP_NOTE.format(label)) for label in problem.clipped]
     cautions += resp.metadata.pop("environment_cautions", [])
+    stack_solution = resp.metadata.pop("_stack_solution", None)
     cautions += solver.validity(problem)
     nonfinite = resp.nonfinite
     if nonfinite is None:
@@ -494,7 +496,7 @@ def spectrum(particle, wavelength_nm, *, medium=None, environment=None, method: 
     eps = problem._eps if problem._eps is not None else (lambda: problem.eps_layers)
     return Spectrum(wl, sa, ss, se, np.broadcast_to(np.asarray(geo) * NM2_TO_M2, shape),
                     np.broadcast_to(np.asarray(particle.equal_volume_area_nm2()) * NM2_TO_M2, shape),
-                    np.asarray(particle.metal_volume_nm3(), dtype=float) * 1e-27, n_med, meta, eps, env)
+                    np.asarray(particle.metal_volume_nm3(), dtype=float) * 1e-27, n_med, meta, eps, env, stack_solution)
 
 
 _CLIP_NOTE = "surface-damped eps'' of {} clipped at 0 at some wavelengths"
