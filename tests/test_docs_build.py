@@ -57,7 +57,7 @@ def test_pages_carry_what_they_promise(site):
     assert "How to add a solver" in _text(site / "architecture.html")
     # every method has its independent reference on the validation page; the hand-off page is real
     validation = _text(site / "validation.html")
-    assert "pytmatrix" in validation and "tmm" in validation and "No external full-wave reference" in validation
+    assert "pytmatrix" in validation and "tmm" in validation and "Full-wave reference" in validation and "NGSolve" in validation
     assert "To be filled" not in validation
     handoff = _text(site / "device_handoff.html")
     assert "generation_rate_cm3_s" in handoff and "responsivity_table" in handoff and "TODO" not in handoff
