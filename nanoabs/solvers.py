@@ -370,7 +370,10 @@ def choose(method: str, particle, environment, *, wavelength_nm=None, n_medium=N
     able = [METHODS[n] for n in order
             if METHODS[n].accepts(particle) is None and environment.kind in METHODS[n].environments]
     if not able:
-        raise NanoabsError(f"no method accepts a {particle.shape} in a {environment.kind} environment")
+        why_not = [f"{METHODS[n].name}: {r}" for n in order if environment.kind in METHODS[n].environments
+                   for r in [METHODS[n].accepts(particle)] if r is not None]
+        raise NanoabsError(f"no method accepts a {particle.shape} in a {environment.kind} environment"
+                           + (" (" + "; ".join(why_not) + ")" if why_not else ""))
     ka = None if wavelength_nm is None else _ka_max(particle, wavelength_nm, n_medium)
     for i, solver in enumerate(able):
         if ka is not None and ka > solver.auto_max_ka and i + 1 < len(able):
