@@ -109,7 +109,7 @@ def _body_profile(spec, particle, I0, n_points):
     """
     import pandas as pd
 
-    from .tmatrix import _incidence, _symmetry_axis, absorption_cells, solver_tmatrix
+    from .tmatrix import _body, _incidence, _symmetry_axis, absorption_cells, solver_tmatrix
 
     env = spec.metadata.get("environment") or {}
     planar = env.get("kind", "homogeneous") != "homogeneous"
@@ -123,13 +123,8 @@ def _body_profile(spec, particle, I0, n_points):
                            "photon rate / volume)")
     if any(np.size(v) > 1 for v in particle.outer_semi_axes_nm()):
         raise NanoabsError("generation profile: give one particle, not a size family")
-    if spheroid:
-        axes = [float(np.ravel(a)[0]) for a in particle.semi_axes_nm]
-        axis = _symmetry_axis(particle.semi_axes_nm)
-        shape, L, D = "spheroid", 2 * axes[axis], 2 * axes[(axis + 1) % 3]
-    else:
-        axis = 0 if particle.kind == "rod" else 2
-        shape, L, D = particle.shape, float(np.ravel(particle.length_nm)[0]), float(np.ravel(particle.diameter_nm)[0])
+    shape, axis, L, D = _body(particle)
+    L, D = float(np.ravel(L)[0]), float(np.ravel(D)[0])
     wl = spec.wavelength_nm
     eps = np.broadcast_to(spec.layer_eps[0], wl.shape)
     if planar and spec.metadata.get("incidence_index") is None:

@@ -25,6 +25,7 @@ import nanoabs
 from nanoabs._errors import NanoabsError
 from nanoabs.mie import mie_coefficients_layered, mie_cross_sections_nm2
 from nanoabs.tmatrix import TMatrix
+from test_tmatrix import _asymmetry  # reciprocity measure, Mishchenko et al. 2002 §5.3
 
 N_WATER = 1.333  # refractive index of water in the visible (from memory)
 WL = np.array([450.0, 550.0, 700.0, 900.0])
@@ -75,17 +76,6 @@ def test_coating_of_host_index_is_the_bare_core_and_of_core_material_is_the_bigg
         assert _rel(host.cross_sections(*args), bare.cross_sections(*args)) < 1e-8
         assert _rel(same.cross_sections(*args), big.cross_sections(*args)) < 1e-6
     assert _rel(same.orientation_average(), big.orientation_average()) < 1e-6
-
-
-def _asymmetry(tm):
-    worst = 0.0
-    for T in tm.blocks:
-        K = T.shape[-1] // 2
-        t11, t12, t21, t22 = T[:, :K, :K], T[:, :K, K:], T[:, K:, :K], T[:, K:, K:]
-        tr = (0, 2, 1)
-        worst = max(worst, np.max(np.abs(t11 - t11.transpose(tr))), np.max(np.abs(t22 - t22.transpose(tr))),
-                    np.max(np.abs(t12 + t21.transpose(tr))))
-    return worst / max(np.max(np.abs(b)) for b in tm.blocks)
 
 
 def test_coated_spheroid_reciprocity():
