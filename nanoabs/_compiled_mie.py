@@ -104,18 +104,22 @@ def expm1_2iz(a, b):
     return (np.expm1(-2.0 * b) * (1.0 - 2.0 * s2) - 2.0 * s2) + 2j * (np.exp(-2.0 * b) * (s * c))
 
 
-def layer_order0(z1, z2):
-    """w_0 = i/(psi_0 xi_0) at z1 and z2, Q_0 and e(z1)/e(z2) with e = exp(2iz) - 1.
+def layer_order0(d1a, d1b, z1, z2):
+    """w_0 = i/(psi_0 xi_0) at z1 and z2, Q_0 and e(z1)/e(z2) with e = exp(2iz) - 1, from D1_0 = cot z.
 
-    psi_0 xi_0 = -e/2 (Yang 2003, eq. 20 (from memory)); Q_0 = [psi_0/xi_0](z1) /
-    [psi_0/xi_0](z2) = exp(2i (z2 - z1)) e(z1)/e(z2) (Yang 2003, eq. 19 (from
-    memory)), since psi_0/xi_0 = psi_0 xi_0 / xi_0^2 and xi_0^2 = -exp(2iz).
+    ``d1a``, ``d1b`` are D1_0 = psi_0'/psi_0 = cot z at z1 and z2, which the
+    downward D1 recurrence gives anyway.  psi_0 xi_0 = -e/2 (Yang 2003, eq. 20
+    (from memory)) and cot z = i (e + 2)/e, so w_0 = -2i/e = i - cot z, with no
+    cancellation for Im z >= 0 (there cot z -> -i, w_0 -> 2i) and no
+    transcendental call.  Q_0 = [psi_0/xi_0](z1) / [psi_0/xi_0](z2) =
+    exp(2i (z2 - z1)) e(z1)/e(z2) (Yang 2003, eq. 19 (from memory)), since
+    psi_0/xi_0 = psi_0 xi_0 / xi_0^2 and xi_0^2 = -exp(2iz); e(z1)/e(z2) =
+    w_0(z2)/w_0(z1).
     """
-    e1 = expm1_2iz(z1.real, z1.imag)
-    e2 = expm1_2iz(z2.real, z2.imag)
-    inv_e2 = recip(e2)
-    r = e1 * inv_e2
-    return -2j * recip(e1), -2j * inv_e2, np.exp(2j * (z2 - z1)) * r, r
+    w1 = 1j - d1a
+    w2 = 1j - d1b
+    r = w2 * recip(w1)
+    return w1, w2, np.exp(2j * (z2 - z1)) * r, r
 
 
 def outer_order0(x):
@@ -185,171 +189,236 @@ def coefficients(rx, ha, hb, d1x, d3x, inv_xix):
 # --------------------------------------------------------------------------
 
 
-def _d1_block(zr, zi, n_store, dr, di, rr, ri):
-    """D1_n(z_j) and R_n = psi_n/psi_{n-1}(z_j), n <= n_store, for a block of z = zr + i zi.
+# How the loops vectorise.  LLVM vectorises a loop over the points j of a block only if it
+# can prove that its stores never overwrite what another point's iteration reads.  It can
+# when the loop indexes 1-D arrays as a[OFFSET + j], where OFFSET is fixed during the loop:
+# every block quantity is a row of _BLOCK values (a compile-time constant), and row r of a
+# table sits at offset r * _BLOCK.  (Rows of 2-D numba arrays, whose row length the index
+# arithmetic reads from the array at run time, defeat the proof: "too many memory checks".)
+# Complex values are (real, imaginary) row pairs, rebuilt as complex scalars, so the formulas
+# above run on them unchanged; arrays are indexed in place, not handed to helper functions
+# inside a loop (their reference counting adds calls, which do not vectorise).  The loop
+# functions are inlined into `_block` (numba's ``inline="always"``).
 
-    Downward recurrence D_{n-1} = n/z - R_n, R_n = 1/(D_n + n/z) (Bohren &
+_IM = _BLOCK  # offset of the imaginary part of a complex row pair
+# rows of `st`: the outer argument, its medium ratio, the sums, the last order of each point
+_INV_X, _D3, _RX, _IX, _MO, _IMO, _SSCA, _SABS, _NSTOP = (k * _BLOCK for k in (0, 1, 3, 5, 7, 9, 11, 12, 13))
+_N_ST = 14 * _BLOCK
+# rows of `ly` (the layer l >= 1 being computed): carried w_n(z1), w_n(z2), Q_n; the constants
+# m_l/m_{l-1}, its inverse, B_1(z1), B_1(z2)
+_W1, _W2, _Q, _MU, _IMU, _B11, _B21 = (k * _BLOCK for k in (0, 2, 4, 6, 8, 10, 12))
+_N_LY = 14 * _BLOCK
+# rows of order n of the table `tab` (n_rows rows per order, order n from row n * n_rows): D1_n
+# and R_n = psi_n/psi_{n-1} (n >= 1) of each argument as (re, im) pairs, D1 in rows r, r + 1 and
+# R in r + 2, r + 3: the outer x (r = _TX), the core m_1 x_1 (_TC), then for each layer l >= 1
+# z1 = m_l x_{l-1} (`_tl(l)`) and z2 = m_l x_l (`_tl(l) + 4`).  The table `h` holds H^a_n, H^b_n
+# (re, im: 4 rows per order) of the layer last computed.
+_TX, _TC, _T1 = 0, 4, 8
+# rows of the scratch `wk` of `_d1_table`: z (re, im), 1/z (re, im), the carried D (re, im)
+_ZR, _ZI, _IZR, _IZI, _DR, _DI = (k * _BLOCK for k in range(6))
+
+
+def _tl(l):
+    """First row of layer l >= 1 in an order of the table."""
+    return _T1 + 8 * (l - 1)
+
+
+def _d1_table(tab, n_rows, row, wk, nb, nmx):
+    """D1_n and R_n of the block's arguments z_j = wk[_ZR + j] + i wk[_ZI + j] into the order table.
+
+    Downward recurrence R_n = 1/(D_n + n/z), D_{n-1} = n/z - R_n (Bohren &
     Huffman 1983, eq. 4.89, as in mie._d1_down) from D = 0 at the block's
-    `d1_start`, with the reciprocal written out.  All points advance together
-    and the inner loops have no branches, so they vectorise.  Results:
-    ``dr[n, j] + i di[n, j]`` (n <= n_store + 1), ``rr + i ri`` (1 <= n <= n_store + 1).
+    `d1_start`; D1_n -> rows ``row``, ``row + 1`` of order n (n = 0..nmx), R_n ->
+    rows ``row + 2``, ``row + 3`` (n = 1..nmx).  All points advance together and
+    the inner loops have no branches, so they vectorise; a lossless argument
+    (every z real) runs in real arithmetic.
     """
-    nb = zr.size
-    izr = np.empty(nb)
-    izi = np.empty(nb)
     az = 0.0
+    lossless = True
     for j in range(nb):
-        a2 = zr[j] * zr[j] + zi[j] * zi[j]
+        zr, zi = wk[_ZR + j], wk[_ZI + j]
+        a2 = zr * zr + zi * zi
         az = max(az, np.sqrt(a2))
-        izr[j] = zr[j] / a2
-        izi[j] = -zi[j] / a2
-    d_r = np.zeros(nb)
-    d_i = np.zeros(nb)
-    for n in range(d1_start(az, n_store), n_store + 1, -1):
-        for j in range(nb):
-            _d1_step(n, izr, izi, d_r, d_i, j)
-    for n in range(n_store + 1, 0, -1):
-        for j in range(nb):
-            rr[n, j], ri[n, j] = _d1_step(n, izr, izi, d_r, d_i, j)
-            dr[n - 1, j] = d_r[j]
-            di[n - 1, j] = d_i[j]
-
-
-def _d1_step(n, izr, izi, d_r, d_i, j):
-    """One step of `_d1_block` at point j: D_n -> D_{n-1} in place; returns R_n (real, imaginary)."""
-    nzr = n * izr[j]
-    nzi = n * izi[j]
-    tr = d_r[j] + nzr
-    ti = d_i[j] + nzi
-    sc = 1.0 / (tr * tr + ti * ti)
-    d_r[j] = nzr - tr * sc
-    d_i[j] = nzi + ti * sc
-    return tr * sc, -ti * sc
-
-
-def _d1_block_real(z, n_store, dr, rr):
-    """`_d1_block` for real arguments, in real arithmetic (the imaginary parts stay 0)."""
-    nb = z.size
-    iz = np.empty(nb)
-    az = 0.0
+        wk[_IZR + j] = zr / a2
+        wk[_IZI + j] = -zi / a2
+        wk[_DR + j] = 0.0
+        wk[_DI + j] = 0.0
+        lossless = lossless and zi == 0.0
+    n0 = d1_start(az, nmx)
+    for n in range(n0, 0, -1):
+        # steps n > nmx store into order nmx, which step nmx then overwrites
+        o = (min(n, nmx) * n_rows + row) * _BLOCK
+        t = tab[o:o + 4 * _BLOCK]
+        if lossless:
+            for j in range(nb):
+                nz = n * wk[_IZR + j]
+                t[j] = wk[_DR + j]
+                t[_IM + j] = 0.0
+                r = 1.0 / (wk[_DR + j] + nz)
+                t[2 * _BLOCK + j] = r
+                t[3 * _BLOCK + j] = 0.0
+                wk[_DR + j] = nz - r
+        else:
+            for j in range(nb):  # one step of the recurrence, the reciprocal written out
+                nzr = n * wk[_IZR + j]
+                nzi = n * wk[_IZI + j]
+                t[j] = wk[_DR + j]
+                t[_IM + j] = wk[_DI + j]
+                tr = wk[_DR + j] + nzr
+                ti = wk[_DI + j] + nzi
+                sc = 1.0 / (tr * tr + ti * ti)
+                t[2 * _BLOCK + j] = tr * sc  # R_n = 1/(D_n + n/z)
+                t[3 * _BLOCK + j] = -ti * sc
+                wk[_DR + j] = nzr - tr * sc  # D_{n-1} = n/z - R_n
+                wk[_DI + j] = nzi + ti * sc
+    t = tab[row * _BLOCK:(row + 2) * _BLOCK]
     for j in range(nb):
-        az = max(az, abs(z[j]))
-        iz[j] = 1.0 / z[j]
-    d = np.zeros(nb)
-    for n in range(d1_start(az, n_store), n_store + 1, -1):
-        for j in range(nb):
-            nz = n * iz[j]
-            d[j] = nz - 1.0 / (d[j] + nz)
-    for n in range(n_store + 1, 0, -1):
-        for j in range(nb):
-            nz = n * iz[j]
-            r = 1.0 / (d[j] + nz)
-            rr[n, j] = r
-            d[j] = nz - r
-            dr[n - 1, j] = d[j]
+        t[j] = wk[_DR + j]
+        t[_IM + j] = wk[_DI + j]
 
 
 def _mie_kernel(m, x, n_stop, qsca, qabs):
     """Q_sca and Q_abs of the points ``p`` of ``m``, ``x`` (L, P); orders 1..n_stop[p]."""
-    n_layers, n_pts = m.shape
+    n_pts = m.shape[1]
     n_blocks = (n_pts + _BLOCK - 1) // _BLOCK
     for blk in prange(n_blocks):
         lo = blk * _BLOCK
-        hi = min(n_pts, lo + _BLOCK)
-        nb = hi - lo
-        nmx = 1
-        for p in range(lo, hi):
-            nmx = max(nmx, n_stop[p])
-        # D1 and psi ratios: [layer, 0 = z1 (m_l x_{l-1}) or 1 = z2 (m_l x_l), n, point];
-        # the core's D1_n(m_1 x_1) is [0, 1]; the outer x is [0, 0]
-        dr = np.zeros((n_layers, 2, nmx + 2, nb))
-        di = np.zeros((n_layers, 2, nmx + 2, nb))
-        rr = np.zeros((n_layers, 2, nmx + 2, nb))
-        ri = np.zeros((n_layers, 2, nmx + 2, nb))
-        zr = np.empty(nb)
-        zi = np.empty(nb)
-        _d1_block_real(x[n_layers - 1, lo:hi].copy(), nmx, dr[0, 0], rr[0, 0])
-        for l in range(n_layers):
-            for side in range(1 if l == 0 else 0, 2):
-                lossless = True
-                for j in range(nb):
-                    z = m[l, lo + j] * x[l - 1 + side, lo + j]
-                    zr[j] = z.real
-                    zi[j] = z.imag
-                    lossless = lossless and z.imag == 0.0
-                if lossless:  # a lossless layer: real arithmetic
-                    _d1_block_real(zr, nmx, dr[l, side], rr[l, side])
-                else:
-                    _d1_block(zr, zi, nmx, dr[l, side], di[l, side], rr[l, side], ri[l, side])
-        _orders(m[:, lo:hi], x[:, lo:hi], n_stop[lo:hi], nmx, dr, di, rr, ri, qsca[lo:hi], qabs[lo:hi])
+        _block(m, x, n_stop, lo, min(n_pts, lo + _BLOCK), qsca, qabs)
 
 
-def _orders(m, x, n_stop, nmx, dr, di, rr, ri, qsca, qabs):
-    """The order loop of one block of points in lockstep (orders above a point's n_stop are not summed).
-
-    The points of a block advance together, order by order and layer by layer,
-    so that the divisions of different points overlap (each point's recursion
-    is a chain of dependent divisions).
-    """
-    n_layers, nb = m.shape
-    c16 = np.complex128
-    inv_x = np.empty(nb)
-    rx = np.empty(nb, dtype=c16)
-    ix = np.empty(nb, dtype=c16)
-    d3 = np.full(nb, 1j)  # D3_0 = i
-    mo = np.empty(nb, dtype=c16)
-    inv_mo = np.empty(nb, dtype=c16)
-    ha = np.empty(nb, dtype=c16)
-    hb = np.empty(nb, dtype=c16)
-    s_sca = np.zeros(nb)
-    s_abs = np.zeros(nb)
-    w1 = np.empty((n_layers, nb), dtype=c16)
-    w2 = np.empty((n_layers, nb), dtype=c16)
-    q = np.empty((n_layers, nb), dtype=c16)
-    per_layer = np.empty((4, n_layers, nb), dtype=c16)  # mu, 1/mu, B_1(z1), B_1(z2)
+def _block(m, x, n_stop, lo, hi, qsca, qabs):
+    """Q_sca and Q_abs of the points lo..hi-1 (at most _BLOCK), in lockstep."""
+    n_layers = m.shape[0]
+    nb = hi - lo
+    nmx = 1
+    for p in range(lo, hi):
+        nmx = max(nmx, n_stop[p])
+    n_rows = _T1 + 8 * (n_layers - 1)
+    tab = np.empty((nmx + 1) * n_rows * _BLOCK)
+    wk = np.empty(6 * _BLOCK)
+    # D1 and R tables: the outer x, the core, z1 and z2 of every further layer
     for j in range(nb):
-        xo = x[n_layers - 1, j]
-        inv_x[j] = 1.0 / xo
-        rx[j], ix[j] = outer_order0(xo)
-        mo[j] = m[n_layers - 1, j]
-        inv_mo[j] = recip(mo[j])
-        for l in range(1, n_layers):
-            ml = m[l, j]
-            z1 = ml * x[l - 1, j]
-            z2 = ml * x[l, j]
-            w1[l, j], w2[l, j], q[l, j], _ = layer_order0(z1, z2)
-            per_layer[0, l, j] = ml * recip(m[l - 1, j])
-            per_layer[1, l, j] = m[l - 1, j] * recip(ml)
-            per_layer[2, l, j] = recip(z1) - 1j  # B_1 = xi_1/xi_0 = 1/z - D3_0, D3_0 = i
-            per_layer[3, l, j] = recip(z2) - 1j
-    for n in range(1, nmx + 1):
-        for j in range(nb):
-            d3[j], rx[j], ix[j] = outer_step(n, inv_x[j], dr[0, 0, n, j], d3[j], rx[j], ix[j])
-            ha[j] = complex(dr[0, 1, n, j], di[0, 1, n, j])  # core: H = D1_n(m_1 x_1)
-            hb[j] = ha[j]
-        for l in range(1, n_layers):
+        wk[_ZR + j] = x[n_layers - 1, lo + j]
+        wk[_ZI + j] = 0.0
+    _d1_table(tab, n_rows, _TX, wk, nb, nmx)
+    for l in range(n_layers):
+        for side in range(1 if l == 0 else 0, 2):
             for j in range(nb):
-                out = layer_step(n, ha[j], hb[j], complex(dr[l, 0, n, j], di[l, 0, n, j]),
-                                 complex(dr[l, 1, n, j], di[l, 1, n, j]),
-                                 complex(rr[l, 0, n, j], ri[l, 0, n, j]),
-                                 complex(rr[l, 1, n, j], ri[l, 1, n, j]), w1[l, j], w2[l, j], q[l, j],
-                                 per_layer[0, l, j], per_layer[1, l, j], per_layer[2, l, j],
-                                 per_layer[3, l, j])
-                ha[j], hb[j], w1[l, j], w2[l, j], q[l, j] = out[0], out[1], out[2], out[3], out[4]
-        c = 2 * n + 1
-        for j in range(nb):
-            an, bn, t_abs, _, _ = coefficients(rx[j], ha[j] * inv_mo[j], mo[j] * hb[j], dr[0, 0, n, j], d3[j],
-                                               ix[j])
-            keep = n <= n_stop[j]  # a select, not a product: orders past n_stop may overflow
-            s_sca[j] += c * (an.real ** 2 + an.imag ** 2 + bn.real ** 2 + bn.imag ** 2) if keep else 0.0
-            s_abs[j] += c * t_abs if keep else 0.0
+                z = m[l, lo + j] * x[l - 1 + side, lo + j]
+                wk[_ZR + j] = z.real
+                wk[_ZI + j] = z.imag
+            _d1_table(tab, n_rows, _TC if l == 0 else _tl(l) + 4 * side, wk, nb, nmx)
+    # order-0 values of the outer argument
+    st = np.empty(_N_ST)
     for j in range(nb):
-        x2 = x[n_layers - 1, j] ** 2
-        qsca[j] = 2.0 * s_sca[j] / x2
+        p = lo + j
+        xo = x[n_layers - 1, p]
+        rx, ix = outer_order0(xo)
+        mo = m[n_layers - 1, p]
+        imo = recip(mo)
+        st[_INV_X + j] = 1.0 / xo
+        st[_RX + j], st[_RX + _IM + j] = rx.real, rx.imag
+        st[_IX + j], st[_IX + _IM + j] = ix.real, ix.imag
+        st[_D3 + j], st[_D3 + _IM + j] = 0.0, 1.0  # D3_0 = i
+        st[_MO + j], st[_MO + _IM + j] = mo.real, mo.imag
+        st[_IMO + j], st[_IMO + _IM + j] = imo.real, imo.imag
+        st[_SSCA + j] = 0.0
+        st[_SABS + j] = 0.0
+        st[_NSTOP + j] = n_stop[p]
+    # H of the core (H^a = H^b = D1_n(m_1 x_1), Yang 2003, eq. 11), then of each layer in turn
+    h = np.empty((nmx + 1) * 4 * _BLOCK)
+    for n in range(1, nmx + 1):
+        for k in range(4):
+            o, oc = (n * 4 + k) * _BLOCK, (n * n_rows + _TC + k % 2) * _BLOCK
+            hk, tk = h[o:o + _BLOCK], tab[oc:oc + _BLOCK]
+            for j in range(nb):
+                hk[j] = tk[j]
+    ly = np.empty(_N_LY)
+    for l in range(1, n_layers):
+        _layer(m, x, lo, tab, n_rows, h, ly, l, nb, nmx)
+    _sums(tab, n_rows, h, st, nb, nmx)
+    for j in range(nb):
+        p = lo + j
+        x2 = x[n_layers - 1, p] ** 2
+        qsca[p] = 2.0 * st[_SSCA + j] / x2
         lossless = True
         for l in range(n_layers):
-            lossless = lossless and m[l, j].imag == 0.0
-        qabs[j] = 0.0 if lossless else max(2.0 * s_abs[j] / x2, 0.0)
+            lossless = lossless and m[l, p].imag == 0.0
+        qabs[p] = 0.0 if lossless else max(2.0 * st[_SABS + j] / x2, 0.0)
+
+
+def _layer(m, x, lo, tab, n_rows, h, ly, l, nb, nmx):
+    """H^a_n, H^b_n of layer l >= 1 for n = 1..nmx from those of layer l - 1 (in ``h``, overwritten)."""
+    r = _tl(l)
+    for j in range(nb):  # order 0
+        p = lo + j
+        ml, mp = m[l, p], m[l - 1, p]
+        z1, z2 = ml * x[l - 1, p], ml * x[l, p]
+        w1, w2, q, _ = layer_order0(complex(tab[r * _BLOCK + j], tab[(r + 1) * _BLOCK + j]),
+                                    complex(tab[(r + 4) * _BLOCK + j], tab[(r + 5) * _BLOCK + j]), z1, z2)
+        mu, imu = ml * recip(mp), mp * recip(ml)
+        b11, b21 = recip(z1) - 1j, recip(z2) - 1j  # B_1 = xi_1/xi_0 = 1/z - D3_0, D3_0 = i
+        ly[_W1 + j], ly[_W1 + _IM + j] = w1.real, w1.imag
+        ly[_W2 + j], ly[_W2 + _IM + j] = w2.real, w2.imag
+        ly[_Q + j], ly[_Q + _IM + j] = q.real, q.imag
+        ly[_MU + j], ly[_MU + _IM + j] = mu.real, mu.imag
+        ly[_IMU + j], ly[_IMU + _IM + j] = imu.real, imu.imag
+        ly[_B11 + j], ly[_B11 + _IM + j] = b11.real, b11.imag
+        ly[_B21 + j], ly[_B21 + _IM + j] = b21.real, b21.imag
+    for n in range(1, nmx + 1):
+        ot, oh = (n * n_rows + r) * _BLOCK, n * 4 * _BLOCK
+        if n == 1:  # layer_step with a literal order: a branch on a variable one stops vectorisation
+            _layer_points(tab[ot:ot + 8 * _BLOCK], h[oh:oh + 4 * _BLOCK], ly, nb, 1)
+        else:
+            _layer_points(tab[ot:ot + 8 * _BLOCK], h[oh:oh + 4 * _BLOCK], ly, nb, 2)
+
+
+def _layer_points(t, hn, ly, nb, n):
+    """One order of `_layer` at the points of the block; ``n`` is 1 or a literal > 1 (see `layer_step`).
+
+    ``t``: the layer's 8 rows of this order of the table; ``hn``: this order's H (4 rows).
+    """
+    for j in range(nb):
+        out = layer_step(n, complex(hn[j], hn[_IM + j]),
+                         complex(hn[2 * _BLOCK + j], hn[3 * _BLOCK + j]),
+                         complex(t[j], t[_IM + j]),
+                         complex(t[4 * _BLOCK + j], t[5 * _BLOCK + j]),
+                         complex(t[2 * _BLOCK + j], t[3 * _BLOCK + j]),
+                         complex(t[6 * _BLOCK + j], t[7 * _BLOCK + j]),
+                         complex(ly[_W1 + j], ly[_W1 + _IM + j]), complex(ly[_W2 + j], ly[_W2 + _IM + j]),
+                         complex(ly[_Q + j], ly[_Q + _IM + j]), complex(ly[_MU + j], ly[_MU + _IM + j]),
+                         complex(ly[_IMU + j], ly[_IMU + _IM + j]), complex(ly[_B11 + j], ly[_B11 + _IM + j]),
+                         complex(ly[_B21 + j], ly[_B21 + _IM + j]))
+        hn[j], hn[_IM + j] = out[0].real, out[0].imag
+        hn[2 * _BLOCK + j], hn[3 * _BLOCK + j] = out[1].real, out[1].imag
+        ly[_W1 + j], ly[_W1 + _IM + j] = out[2].real, out[2].imag
+        ly[_W2 + j], ly[_W2 + _IM + j] = out[3].real, out[3].imag
+        ly[_Q + j], ly[_Q + _IM + j] = out[4].real, out[4].imag
+
+
+def _sums(tab, n_rows, h, st, nb, nmx):
+    """The outer argument's recurrences and the sums over orders (orders above a point's n_stop are not summed)."""
+    for n in range(1, nmx + 1):
+        ox, oh = (n * n_rows + _TX) * _BLOCK, n * 4 * _BLOCK
+        tx, hn = tab[ox:ox + _BLOCK], h[oh:oh + 4 * _BLOCK]
+        for j in range(nb):
+            d3, rx, ix = outer_step(n, st[_INV_X + j], tx[j], complex(st[_D3 + j], st[_D3 + _IM + j]),
+                                    complex(st[_RX + j], st[_RX + _IM + j]), complex(st[_IX + j], st[_IX + _IM + j]))
+            st[_D3 + j], st[_D3 + _IM + j] = d3.real, d3.imag
+            st[_RX + j], st[_RX + _IM + j] = rx.real, rx.imag
+            st[_IX + j], st[_IX + _IM + j] = ix.real, ix.imag
+        c = 2 * n + 1
+        for j in range(nb):
+            mo = complex(st[_MO + j], st[_MO + _IM + j])
+            ha = complex(hn[j], hn[_IM + j]) * complex(st[_IMO + j], st[_IMO + _IM + j])
+            hb = mo * complex(hn[2 * _BLOCK + j], hn[3 * _BLOCK + j])
+            an, bn, t_abs, _, _ = coefficients(complex(st[_RX + j], st[_RX + _IM + j]), ha, hb, tx[j],
+                                               complex(st[_D3 + j], st[_D3 + _IM + j]),
+                                               complex(st[_IX + j], st[_IX + _IM + j]))
+            keep = n <= st[_NSTOP + j]  # a select, not a product: orders past n_stop may overflow
+            s_sca = an.real * an.real + an.imag * an.imag + bn.real * bn.real + bn.imag * bn.imag
+            st[_SSCA + j] += c * s_sca if keep else 0.0
+            st[_SABS + j] += c * t_abs if keep else 0.0
 
 
 def _build():
@@ -365,7 +434,7 @@ def _build():
         from numba.core import types
         from numba.extending import overload, register_jitable
 
-        @overload(recip)
+        @overload(recip, inline="always")
         def _recip(z):  # one real division instead of numba's three (CPython's complex division)
             if isinstance(z, types.Complex):
                 def impl(z):
@@ -374,10 +443,11 @@ def _build():
                 return impl
             return lambda z: 1.0 / z
 
-        for fn in (d1_start, expm1_2iz, layer_order0, outer_order0, outer_step, layer_step,
-                   coefficients, _d1_block, _d1_block_real, _orders):
+        for fn in (d1_start, layer_order0, outer_order0, _d1_table, _block):
             register_jitable(fn)
-        register_jitable(inline="always")(_d1_step)  # inlined before typing: the loops still vectorise
+        # inlined into `_block` before typing, so that its loops see constant strides and vectorise
+        for fn in (outer_step, layer_step, coefficients, _tl, _layer, _layer_points, _sums):
+            register_jitable(inline="always")(fn)
     except Exception as exc:
         _STATE["error"] = f"{type(exc).__name__}: {exc}"
         return None

@@ -312,7 +312,7 @@ def _recursion(m, x, nstop, n_max, *, want_coeffs=False, want_profile=False):
             d, r = _d1_down(z, n_max, ratio=True)
             D1.append(d)
             R.append(r)
-        w1_0, w2_0, q_0, e_ratio = layer_order0(z1, z2)
+        w1_0, w2_0, q_0, e_ratio = layer_order0(D1z1[l][0], D1z2[l][0], z1, z2)
         for lst, v in zip((w1, w2, Q), (w1_0, w2_0, q_0)):
             lst.append(v)
         Pr.append(np.exp(-1j * (z1 - z2)) * e_ratio if want_profile else None)  # psi_0(z1)/psi_0(z2)
